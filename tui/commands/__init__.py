@@ -1,0 +1,1 @@
+"""One module per group of command-line commands; each exposes ``register(main)``."""
