@@ -1,0 +1,220 @@
+"""Alert states and their event trail, kept in the ``alerts`` and ``alert_events`` tables.
+
+An alert belongs to one characteristic × factor. Its life: ``open`` → (``acknowledged``: who,
+when, note) → ``cleared`` → ``open`` again when the signal returns (the same row is reopened, so
+one alert carries its whole history). Every change appends an event (opened, held, acknowledged,
+cleared, reopened); nothing is ever updated away or deleted. Each write is one ``store.write()``
+transaction. What counts as a signal is decided elsewhere (``stats.monitor``); this module only
+keeps the record.
+"""
+
+from __future__ import annotations
+
+import json
+from dataclasses import dataclass, field
+from typing import Any
+
+from store.errors import Conflict, NotFound
+from store.timeutil import format_stored, now_utc
+
+EVENTS = ("opened", "held", "acknowledged", "cleared", "reopened")
+STATES = ("open", "acknowledged", "cleared")
+
+
+@dataclass(frozen=True)
+class Alert:
+    """One alert: where it points (characteristic, factor, groups), how big, and its state."""
+
+    id: int
+    characteristic: str
+    factor: str
+    state: str
+    opened_at: str
+    opened_window: str | None
+    last_window: str | None
+    groups: list[str]
+    direction: str | None  # "higher" | "lower"
+    size: float | None  # in the characteristic's unit
+    size_fraction: float | None  # size / (USL − LSL), None without both limits
+    q: float | None
+    updated_at: str
+
+
+@dataclass(frozen=True)
+class AlertEvent:
+    """One step in an alert's trail."""
+
+    id: int
+    alert_id: int
+    at: str
+    event: str
+    by: str | None
+    note: str | None
+    window: str | None
+    details: dict[str, Any] = field(default_factory=dict)
+
+
+_SELECT = """
+SELECT a.id, c.name, a.factor, a.state, a.opened_at, a.opened_window, a.last_window, a.groups,
+       a.direction, a.size, a.size_fraction, a.q, a.updated_at
+FROM alerts a JOIN characteristics c ON c.id = a.characteristic_id
+"""
+
+
+def _alert(row: tuple) -> Alert:
+    groups = json.loads(row[7]) if row[7] else []
+    return Alert(int(row[0]), row[1], row[2], row[3], row[4], row[5], row[6], list(groups), row[8],
+                 row[9], row[10], row[11], row[12])
+
+
+def list_alerts(store, *, state: str | None = None, characteristic: str | None = None,
+                factor: str | None = None) -> list[Alert]:
+    """Alerts, newest change first; filter by state ("open", "acknowledged", "cleared", or
+    "active" for open or acknowledged), characteristic and factor."""
+    where, args = [], []
+    if state is not None:
+        if state == "active":
+            where.append("a.state IN ('open', 'acknowledged')")
+        elif state in STATES:
+            where.append("a.state = ?")
+            args.append(state)
+        else:
+            raise NotFound(f"alert state {state!r}: use open, acknowledged, cleared or active")
+    if characteristic is not None:
+        where.append("c.name = ?")
+        args.append(characteristic)
+    if factor is not None:
+        where.append("a.factor = ?")
+        args.append(factor)
+    sql = _SELECT + (" WHERE " + " AND ".join(where) if where else "") + \
+        " ORDER BY a.updated_at DESC, a.id DESC"
+    return [_alert(r) for r in store.conn.execute(sql, args).fetchall()]
+
+
+def get_alert(store, alert_id: int) -> Alert:
+    """One alert by id; ``NotFound`` with the id when there is none."""
+    row = store.conn.execute(_SELECT + " WHERE a.id = ?", (int(alert_id),)).fetchone()
+    if row is None:
+        raise NotFound(f"no alert with id {alert_id}; list them with: lotwatch alerts list")
+    return _alert(row)
+
+
+def latest_alert(store, characteristic: str, factor: str) -> Alert | None:
+    """The most recent alert of a characteristic × factor (any state), or None."""
+    row = store.conn.execute(_SELECT + " WHERE c.name = ? AND a.factor = ? ORDER BY a.id DESC LIMIT 1",
+                             (characteristic, factor)).fetchone()
+    return _alert(row) if row else None
+
+
+def alert_history(store, alert_id: int) -> list[AlertEvent]:
+    """Every event of an alert, oldest first."""
+    get_alert(store, alert_id)
+    rows = store.conn.execute(
+        "SELECT id, alert_id, at, event, by, note, window, details FROM alert_events "
+        "WHERE alert_id = ? ORDER BY id", (int(alert_id),)).fetchall()
+    return [AlertEvent(int(r[0]), int(r[1]), r[2], r[3], r[4], r[5], r[6],
+                       json.loads(r[7]) if r[7] else {}) for r in rows]
+
+
+@dataclass(frozen=True)
+class Transition:
+    """What a review decided for one characteristic × factor (see ``record_transition``)."""
+
+    characteristic: str
+    factor: str
+    event: str  # opened | reopened | held | cleared
+    window: str
+    groups: list[str]
+    direction: str | None
+    size: float | None
+    size_fraction: float | None
+    q: float | None
+    details: dict[str, Any] = field(default_factory=dict)
+
+
+def record_transitions(store, transitions: list[Transition], *, by: str | None = None,
+                       at: str | None = None) -> list[Alert]:
+    """Apply a review's decisions in one transaction; returns the alerts as written.
+
+    "opened" inserts a new alert; the others update the characteristic × factor's latest alert
+    ("reopened" requires it cleared, "held"/"cleared" require it open or acknowledged; "held"
+    keeps an acknowledgement). An event is appended for each.
+    """
+    stamp = at or format_stored(now_utc())
+    ids: list[int] = []
+    with store.write():
+        for t in transitions:
+            if t.event not in ("opened", "reopened", "held", "cleared"):
+                raise ValueError(f"unknown alert event {t.event!r}")
+            row = store.conn.execute("SELECT id FROM characteristics WHERE name = ?",
+                                     (t.characteristic,)).fetchone()
+            if row is None:
+                raise NotFound(f"no characteristic named {t.characteristic!r}")
+            char_id = int(row[0])
+            groups = json.dumps(list(t.groups))
+            current = store.conn.execute(
+                "SELECT id, state FROM alerts WHERE characteristic_id = ? AND factor = ? "
+                "ORDER BY id DESC LIMIT 1", (char_id, t.factor)).fetchone()
+            if t.event == "opened" or current is None:
+                if current is not None and current[1] != "cleared":
+                    raise Conflict(f"{t.characteristic} by {t.factor} already has an active alert "
+                                   f"(id {current[0]})")
+                cur = store.conn.execute(
+                    "INSERT INTO alerts(characteristic_id, factor, state, opened_at, opened_window, "
+                    "last_window, groups, direction, size, size_fraction, q, updated_at) "
+                    "VALUES (?, ?, 'open', ?, ?, ?, ?, ?, ?, ?, ?, ?)",
+                    (char_id, t.factor, stamp, t.window, t.window, groups, t.direction, t.size,
+                     t.size_fraction, t.q, stamp))
+                alert_id = int(cur.lastrowid)
+                event = "opened"
+            else:
+                alert_id, state = int(current[0]), current[1]
+                event = t.event
+                if event == "reopened":
+                    if state != "cleared":
+                        raise Conflict(f"alert {alert_id} is {state}, not cleared; cannot reopen")
+                    store.conn.execute(
+                        "UPDATE alerts SET state = 'open', opened_window = ?, last_window = ?, "
+                        "groups = ?, direction = ?, size = ?, size_fraction = ?, q = ?, "
+                        "updated_at = ? WHERE id = ?",
+                        (t.window, t.window, groups, t.direction, t.size, t.size_fraction, t.q,
+                         stamp, alert_id))
+                elif state == "cleared":
+                    raise Conflict(f"alert {alert_id} is cleared; cannot record {event}")
+                elif event == "held":
+                    store.conn.execute(
+                        "UPDATE alerts SET last_window = ?, groups = ?, direction = ?, size = ?, "
+                        "size_fraction = ?, q = ?, updated_at = ? WHERE id = ?",
+                        (t.window, groups, t.direction, t.size, t.size_fraction, t.q, stamp,
+                         alert_id))
+                else:  # cleared
+                    store.conn.execute(
+                        "UPDATE alerts SET state = 'cleared', last_window = ?, updated_at = ? "
+                        "WHERE id = ?", (t.window, stamp, alert_id))
+            store.conn.execute(
+                "INSERT INTO alert_events(alert_id, at, event, by, note, window, details) "
+                "VALUES (?, ?, ?, ?, NULL, ?, ?)",
+                (alert_id, stamp, event, by, t.window, json.dumps(t.details, default=str)))
+            ids.append(alert_id)
+    return [get_alert(store, i) for i in ids]
+
+
+def acknowledge(store, alert_id: int, *, by: str, note: str = "") -> Alert:
+    """Mark an open alert as seen by ``by`` with a note (an acknowledged one may get a further
+    note). A cleared alert cannot be acknowledged. Returns the alert as written."""
+    who = (by or "").strip()
+    if not who:
+        raise Conflict("an acknowledgement needs a name: say who is acknowledging (--by NAME)")
+    stamp = format_stored(now_utc())
+    with store.write():
+        alert = get_alert(store, alert_id)
+        if alert.state == "cleared":
+            raise Conflict(f"alert {alert_id} is cleared (last window {alert.last_window}); "
+                           "there is nothing to acknowledge")
+        store.conn.execute("UPDATE alerts SET state = 'acknowledged', updated_at = ? WHERE id = ?",
+                           (stamp, alert.id))
+        store.conn.execute(
+            "INSERT INTO alert_events(alert_id, at, event, by, note, window, details) "
+            "VALUES (?, ?, 'acknowledged', ?, ?, ?, '{}')",
+            (alert.id, stamp, who, note or "", alert.last_window))
+    return get_alert(store, alert_id)
