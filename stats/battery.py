@@ -1,0 +1,193 @@
+"""The full battery for one comparison: ANOVA and every companion, in one ``BatteryResult``.
+
+Order of work: drop non-finite values (noted), exclude groups with fewer than ``min_n`` values
+(listed with the reason), sort groups by name, then the classical ANOVA (exact when a resolution
+is declared), Welch, Kruskal-Wallis, Brown-Forsythe, Bartlett, residual normality, the resolution
+check, the recommendation, post-hoc comparisons (Tukey-Kramer, Games-Howell, Dunnett against a
+reference, Dunn), compact letters for the recommended post-hoc, analysis of means, effect sizes,
+variance components, power and, with specification limits, capability per group.
+
+Degenerate input (no groups, one group, single-value groups, all values equal, zero within-group
+variance, NaN/inf) never raises: the result's ``status`` says what happened in words and the
+parts that cannot be computed carry their own status.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Sequence
+from typing import Any, TypeVar
+
+import numpy as np
+from scipy import special
+
+from stats import anom as _anom
+from stats import letters as _letters
+from stats import posthoc as _posthoc
+from stats.anova import one_way_anova
+from stats.capability import capability
+from stats.checks import (
+    bartlett_test,
+    brown_forsythe,
+    kruskal_wallis,
+    recommend,
+    residual_normality,
+    resolution_check,
+)
+from stats.effect import effect_sizes, variance_components
+from stats.power import power_analysis
+from stats.results import (
+    OK,
+    AnomResult,
+    BatteryResult,
+    ExcludedGroup,
+    GroupSummary,
+    PairComparison,
+    Recommendation,
+)
+from stats.welch import welch_anova
+
+T = TypeVar("T")
+DUNN_ADJUST = ("holm", "bh", "by", "bonferroni", "none")
+
+
+def _group_summaries(names: list[str], arrays: list[np.ndarray],
+                     alpha: float) -> list[GroupSummary]:
+    ns = np.array([a.size for a in arrays], dtype=float)
+    sums = np.array([math.fsum(a.tolist()) for a in arrays])
+    total, n_total = math.fsum(sums.tolist()), float(ns.sum())
+    out = []
+    for name, a, n, s in zip(names, arrays, ns, sums, strict=True):
+        mean = float(s / n)
+        mean = mean + math.fsum((a - mean).tolist()) / n  # one refinement pass
+        sd = float(np.std(a, ddof=1)) if n > 1 else None
+        lo = hi = None
+        if sd is not None:
+            half = float(special.stdtrit(n - 1, 1 - alpha / 2)) * sd / math.sqrt(n)
+            lo, hi = mean - half, mean + half
+        rest = n_total - n
+        diff = mean - (total - s) / rest if rest > 0 else None
+        out.append(GroupSummary(name=name, n=int(n), mean=mean, sd=sd, ci_low=lo, ci_high=hi,
+                                diff_from_others=diff))
+    return out
+
+
+def _guard(notes: list[str], what: str, fn: Callable[[], T], fallback: T) -> T:
+    """Run one optional part; a failure becomes a note instead of an exception."""
+    try:
+        return fn()
+    except (ValueError, ArithmeticError, RuntimeError, np.linalg.LinAlgError) as exc:
+        notes.append(f"{what} could not be computed: {exc}")
+        return fallback
+
+
+def run_battery(samples: Sequence[Any], names: Sequence[str], *, alpha: float = 0.05,
+                resolution: str | float | None = None, reference: str | None = None,
+                lsl: float | None = None, usl: float | None = None, shift: float | None = None,
+                dunn_adjust: str = "holm", min_n: int = 2) -> BatteryResult:
+    """Run the whole battery on ``samples`` (one array-like per group) labelled by ``names``."""
+    notes: list[str] = []
+    if not 0 < alpha < 1:
+        raise ValueError(f"alpha must be between 0 and 1, got {alpha!r}")
+    if dunn_adjust not in DUNN_ADJUST:
+        raise ValueError(f"dunn_adjust must be one of {', '.join(DUNN_ADJUST)}, "
+                         f"got {dunn_adjust!r}")
+    if len(samples) != len(names):
+        raise ValueError(f"{len(samples)} samples but {len(names)} names")
+    if lsl is not None and usl is not None and not usl > lsl:
+        raise ValueError(f"USL {usl} must be greater than LSL {lsl}")
+    labels = [str(n) for n in names]
+    dupes = sorted({n for n in labels if labels.count(n) > 1})
+    if dupes:
+        raise ValueError("duplicate group names: " + ", ".join(dupes))
+
+    cleaned: dict[str, np.ndarray] = {}
+    for name, s in zip(labels, samples, strict=True):
+        a = np.asarray(s, dtype=float).ravel()
+        bad = ~np.isfinite(a)
+        if bad.any():
+            notes.append(f"Dropped {int(bad.sum())} non-finite value(s) from group {name}.")
+            a = a[~bad]
+        cleaned[name] = a
+    excluded = [ExcludedGroup(name=n, n=int(a.size),
+                              reason=f"fewer than {min_n} values" if a.size else "no values")
+                for n, a in sorted(cleaned.items()) if a.size < min_n]
+    kept = sorted((n, a) for n, a in cleaned.items() if a.size >= min_n)
+    gnames = [n for n, _ in kept]
+    arrays = [a for _, a in kept]
+    ns = [a.size for a in arrays]
+
+    table = None
+    if resolution is not None:
+        try:
+            table = one_way_anova(arrays, gnames, alpha=alpha, resolution=resolution)
+        except ValueError as exc:
+            notes.append(f"Exact computation at resolution {resolution} not possible ({exc}); "
+                         "used floating point.")
+    if table is None:
+        table = one_way_anova(arrays, gnames, alpha=alpha)
+
+    groups = _group_summaries(gnames, arrays, alpha) if arrays else []
+    welch = welch_anova(arrays)
+    kw = kruskal_wallis(arrays, alpha=alpha)
+    bf = brown_forsythe(arrays, alpha=alpha)
+    bart = bartlett_test(arrays, alpha=alpha)
+    normality = residual_normality(arrays, alpha=alpha)
+    tolerance = usl - lsl if lsl is not None and usl is not None else None
+    res_warning = resolution_check(table.resid_sd, resolution, tolerance)
+    can_compare = table.status == OK
+    if can_compare:
+        rec = recommend(bf, normality, ns, alpha=alpha)
+    else:
+        rec = Recommendation(test="none", posthoc="none",
+                             reason=f"No test can be read: {table.status}.")
+
+    tukey: list[PairComparison] = []
+    gh: list[PairComparison] = []
+    dunn_pairs: list[PairComparison] = []
+    dunnett = None
+    if can_compare:
+        tukey = _guard(notes, "Tukey-Kramer", lambda: _posthoc.tukey_kramer(
+            arrays, gnames, alpha=alpha), [])
+        gh = _guard(notes, "Games-Howell", lambda: _posthoc.games_howell(
+            arrays, gnames, alpha=alpha), [])
+        if kw.status == OK:
+            dunn_pairs = _guard(notes, "Dunn", lambda: _posthoc.dunn(
+                arrays, gnames, adjust=dunn_adjust, alpha=alpha), [])
+    if reference is not None:
+        if reference not in gnames:
+            where = ("was excluded" if any(e.name == reference for e in excluded)
+                     else "is not among the groups")
+            notes.append(f"Reference group {reference} {where}; Dunnett's test skipped.")
+        elif can_compare:
+            dunnett = _guard(notes, "Dunnett", lambda: _posthoc.dunnett(
+                arrays, gnames, reference=reference, alpha=alpha), [])
+    chosen = {"Tukey-Kramer": tukey, "Games-Howell": gh, "Dunn": dunn_pairs}.get(rec.posthoc, [])
+    letters: dict[str, str] = {}
+    if can_compare:
+        letters = _guard(notes, "Compact letters",
+                         lambda: _letters.compact_letters(gnames, chosen), {})
+    anom_fallback = AnomResult(grand_mean=table.grand_mean, alpha=alpha, critical_value=None,
+                               status=table.status if not can_compare else "not computed")
+    anom = (_guard(notes, "Analysis of means", lambda: _anom.analysis_of_means(
+        arrays, gnames, alpha=alpha), anom_fallback) if can_compare else anom_fallback)
+
+    effect = effect_sizes(table, alpha)
+    vc = variance_components(table, ns, alpha=alpha)
+    power = power_analysis(ns, table.resid_sd, alpha=alpha, shift=shift)
+    cap = None
+    if lsl is not None or usl is not None:
+        cap = [_guard(notes, f"Capability of {n}", lambda n=n, a=a: capability(
+            n, a, table.resid_sd, lsl=lsl, usl=usl, alpha=alpha), None) for n, a in kept]
+        cap = [c for c in cap if c is not None]
+
+    status = table.status
+    if not arrays and not cleaned:
+        status = "no groups"
+    return BatteryResult(status=status, alpha=alpha, groups=groups, excluded=excluded,
+                         anova=table, welch=welch, kruskal=kw, brown_forsythe=bf, bartlett=bart,
+                         normality=normality, resolution_warning=res_warning,
+                         recommendation=rec, tukey=tukey, games_howell=gh, dunnett=dunnett,
+                         reference=reference, dunn=dunn_pairs, dunn_adjust=dunn_adjust,
+                         letters=letters, anom=anom, effect=effect, variance_components=vc,
+                         power=power, capability=cap, notes=notes)
