@@ -34,6 +34,10 @@ class StoreFull(StoreError):
     """The disk (or file-system quota) is full; the transaction was rolled back."""
 
 
+class StoreExists(StoreError):
+    """``Store.create`` was asked to make a store where a file already exists."""
+
+
 class NotFound(StoreError):
     """A named characteristic, factor, measurement or alert does not exist."""
 

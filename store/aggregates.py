@@ -1,0 +1,145 @@
+"""Sufficient statistics per (characteristic, factor, level, UTC day): n, sum d, sum d^2.
+
+With ``d = units - origin`` an exact integer, a bucket's rows can be added and subtracted
+exactly, so group means and the ANOVA sums of squares of any window are rebuilt from a few
+thousand bucket rows instead of every measurement (SS_within = sum d^2 - (sum d)^2 / n per group;
+e.g. Montgomery, Design and Analysis of Experiments, ch. 3, "computing formulas").
+Every insert, correction and void changes the buckets in the same transaction; ``check``
+recomputes them from the raw rows and compares exactly.
+"""
+
+from __future__ import annotations
+
+import sqlite3
+from collections import defaultdict
+from collections.abc import Iterable
+from typing import TYPE_CHECKING
+
+from store.model import CheckReport
+
+if TYPE_CHECKING:
+    from store.connection import Store
+
+BucketKey = tuple[int, str, str, str]  # characteristic_id, factor, level, day
+
+
+class Deltas:
+    """Accumulates bucket changes in memory, then writes them with one UPSERT per bucket."""
+
+    def __init__(self) -> None:
+        self._d: defaultdict[BucketKey, list[int]] = defaultdict(lambda: [0, 0, 0])
+
+    def add(self, key: BucketKey, d: int, sign: int = 1) -> None:
+        cell = self._d[key]
+        cell[0] += sign
+        cell[1] += sign * d
+        cell[2] += sign * d * d
+
+    def add_measurement(self, characteristic_id: int, day: str, d: int,
+                        factor_levels: Iterable[tuple[str, str]], sign: int = 1) -> None:
+        for factor, level in factor_levels:
+            self.add((characteristic_id, factor, level, day), d, sign)
+
+    def __len__(self) -> int:
+        return len(self._d)
+
+    def apply(self, conn: sqlite3.Connection) -> None:
+        rows = [(*k, *v) for k, v in self._d.items() if v != [0, 0, 0]]
+        # A new row must satisfy the table's CHECKs before the UPSERT's conflict branch runs, so
+        # only growing buckets go through INSERT ... ON CONFLICT; the others exist and UPDATE.
+        grow = [r for r in rows if r[4] > 0 and r[6] >= 0]
+        shrink = [(r[4], r[5], r[6], *r[:4]) for r in rows if not (r[4] > 0 and r[6] >= 0)]
+        conn.executemany(
+            "INSERT INTO buckets(characteristic_id, factor, level, day, n, sum_d, sum_d2) "
+            "VALUES (?, ?, ?, ?, ?, ?, ?) "
+            "ON CONFLICT(characteristic_id, factor, level, day) DO UPDATE SET "
+            "n = n + excluded.n, sum_d = sum_d + excluded.sum_d, "
+            "sum_d2 = sum_d2 + excluded.sum_d2",
+            grow,
+        )
+        if shrink:
+            cur = conn.executemany(
+                "UPDATE buckets SET n = n + ?, sum_d = sum_d + ?, sum_d2 = sum_d2 + ? "
+                "WHERE characteristic_id = ? AND factor = ? AND level = ? AND day = ?",
+                shrink,
+            )
+            if cur.rowcount != len(shrink):
+                raise RuntimeError("bucket update found no bucket to subtract from (a bug)")
+            # Emptied buckets are dropped so that the table equals a fresh recomputation.
+            conn.executemany(
+                "DELETE FROM buckets WHERE characteristic_id = ? AND factor = ? AND level = ? "
+                "AND day = ? AND n = 0",
+                [r[3:] for r in shrink],
+            )
+        self._d.clear()
+
+def lot_factor_levels(conn: sqlite3.Connection, lot_id: int) -> list[tuple[str, str]]:
+    """(factor, level) pairs of a lot: its tags whose key is a grouping factor."""
+    return conn.execute(
+        "SELECT t.key, t.value FROM lot_tags t JOIN factors f ON f.name = t.key "
+        "WHERE t.lot_id = ? ORDER BY t.key",
+        (lot_id,),
+    ).fetchall()
+
+
+_RECOMPUTE = """
+SELECT m.characteristic_id AS characteristic_id, t.key AS factor, t.value AS level, m.day AS day,
+       count(*) AS n,
+       sum(m.current_units - c.origin_units) AS sum_d,
+       sum((m.current_units - c.origin_units) * (m.current_units - c.origin_units)) AS sum_d2
+FROM measurements m
+JOIN characteristics c ON c.id = m.characteristic_id
+JOIN lot_tags t ON t.lot_id = m.lot_id
+JOIN factors f ON f.name = t.key
+WHERE m.voided = 0 {extra}
+GROUP BY m.characteristic_id, t.key, t.value, m.day
+"""
+
+
+def backfill_factor(conn: sqlite3.Connection, factor: str) -> int:
+    """Build the buckets of a newly added factor from stored lots' tags (caller holds the
+    write transaction). Returns the number of bucket rows made."""
+    sql = ("INSERT INTO buckets(characteristic_id, factor, level, day, n, sum_d, sum_d2) "
+           + _RECOMPUTE.format(extra="AND t.key = ?"))
+    cur = conn.execute(sql, (factor,))
+    return cur.rowcount
+
+
+def check(store: Store) -> CheckReport:
+    """Recompute every bucket from the current, non-voided raw rows and compare exactly; also
+    run ``PRAGMA integrity_check`` and ``PRAGMA foreign_key_check`` and look for measurements
+    without their 'log' audit entry or with an impossible state."""
+    conn = store.conn
+    problems: list[str] = []
+    integrity = [r[0] for r in conn.execute("PRAGMA integrity_check").fetchall()]
+    if integrity != ["ok"]:
+        problems.extend(f"integrity: {msg}" for msg in integrity[:20])
+    for table, rowid, parent, _fk in conn.execute("PRAGMA foreign_key_check").fetchall()[:20]:
+        problems.append(f"foreign key: {table} row {rowid} points to a missing {parent} row")
+    recompute = _RECOMPUTE.format(extra="")
+    cols = "characteristic_id, factor, level, day, n, sum_d, sum_d2"
+    missing = conn.execute(
+        f"SELECT {cols} FROM ({recompute}) EXCEPT SELECT {cols} FROM buckets LIMIT 20"
+    ).fetchall()
+    extra = conn.execute(
+        f"SELECT {cols} FROM buckets EXCEPT SELECT {cols} FROM ({recompute}) LIMIT 20"
+    ).fetchall()
+    for row in missing:
+        problems.append(f"bucket mismatch: raw rows give {_fmt_bucket(row)}")
+    for row in extra:
+        problems.append(f"bucket mismatch: stored bucket {_fmt_bucket(row)} disagrees with raw rows")
+    no_log = conn.execute(
+        "SELECT m.id FROM measurements m WHERE NOT EXISTS "
+        "(SELECT 1 FROM audit a WHERE a.measurement_id = m.id AND a.action = 'log') LIMIT 20"
+    ).fetchall()
+    problems.extend(f"measurement {r[0]} has no 'log' entry in the audit trail" for r in no_log)
+    n_buckets = conn.execute("SELECT count(*) FROM buckets").fetchone()[0]
+    n_meas = conn.execute("SELECT count(*) FROM measurements").fetchone()[0]
+    return CheckReport(ok=not problems, problems=problems, buckets_checked=int(n_buckets),
+                       measurements=int(n_meas))
+
+
+def _fmt_bucket(row: tuple) -> str:
+    cid, factor, level, day, n, s1, s2 = row
+    return (f"characteristic {cid}, {factor}={level!r}, {day}: n={n}, sum_d={s1}, "
+            f"sum_d2={s2}")
