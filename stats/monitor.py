@@ -479,8 +479,8 @@ def window_statistics(sums: GroupSums, *, min_n: int) -> WindowStats:
 
 def detectable_shift(stats: WindowStats, *, alpha: float = 0.05, power: float = 0.8,
                      rows: Sequence[int] | None = None) -> np.ndarray:
-    """Smallest shift of one average-sized group from the others detected with ``power`` by the
-    F test at ``alpha`` (see the module docstring), for the given window rows (default: all).
+    """Smallest shift of one group from the others detected with ``power`` by the F test at
+    ``alpha`` (hardest group; see the module docstring), for the given window rows (default all).
 
     Returns an array (len(rows), C) in the characteristic's unit; NaN where undefined.
     """
@@ -491,11 +491,12 @@ def detectable_shift(stats: WindowStats, *, alpha: float = 0.05, power: float = 
     ok = (k >= 2) & (N - k > 0) & np.isfinite(msw) & (msw > 0)
     dfb = np.where(ok, k - 1, 1.0)
     dfw = np.where(ok, N - k, 1.0)
+    nn = np.where(stats.usable[idx], stats.sums.n[idx], 0).astype(np.float64)
     with np.errstate(divide="ignore", invalid="ignore"):
+        coef = np.where(nn > 0, nn * (N[:, :, None] - nn) / N[:, :, None], np.inf).min(axis=2)
         fcrit = special.fdtri(dfb, dfw, 1 - alpha)
         lam = special.ncfdtrinc(dfb, dfw, 1 - power, fcrit)
-        nbar = N / np.where(ok, k, 1.0)
-        delta = np.sqrt(msw * lam * N / (nbar * (N - nbar)))
+        delta = np.sqrt(msw * lam / coef)
     return np.where(ok, delta, np.nan)
 
 
