@@ -48,7 +48,7 @@ from stats.results import (
 from stats.welch import welch_anova
 
 T = TypeVar("T")
-DUNN_ADJUST = ("holm", "bh", "by", "bonferroni", "none")
+DUNN_ADJUST = _posthoc.ADJUST_METHODS
 
 
 def _group_summaries(names: list[str], arrays: list[np.ndarray],
@@ -162,6 +162,11 @@ def run_battery(samples: Sequence[Any], names: Sequence[str], *, alpha: float = 
         elif can_compare:
             dunnett = _guard(notes, "Dunnett", lambda: _posthoc.dunnett(
                 arrays, gnames, reference=reference, alpha=alpha), [])
+    for title, method, got in (("Tukey-Kramer", "tukey", tukey), ("Games-Howell", "games-howell", gh),
+                               ("Dunn", "dunn", dunn_pairs), ("Dunnett", "dunnett", dunnett)):
+        why = _posthoc.posthoc_problem(arrays, gnames, method) if got == [] else None
+        if can_compare and why:
+            notes.append(f"{title}: not computed ({why}).")
     chosen = {"Tukey-Kramer": tukey, "Games-Howell": gh, "Dunn": dunn_pairs}.get(rec.posthoc, [])
     letters: dict[str, str] = {}
     if can_compare:

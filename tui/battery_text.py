@@ -48,6 +48,12 @@ def pval(p: float | None, width: int = 8) -> str:
     return ("<0.0001" if p < 1e-4 else f"{p:.4f}").rjust(width)
 
 
+def _p_words(p: float | None) -> str:
+    if p is None or math.isnan(p):
+        return "n/a"
+    return "< 0.0001" if p < 1e-4 else f"= {p:.4f}"
+
+
 def _wrap(text: str, indent: str = "  ") -> list[str]:
     return textwrap.wrap(clean_text(text), WIDTH - 1, initial_indent=indent,
                          subsequent_indent=indent + "  ") or [indent]
@@ -83,7 +89,7 @@ def _checks(r: BatteryResult) -> list[str]:
     w = r.welch
     if w.status == "ok":
         lines.extend(_wrap(f"Welch ANOVA F = {num(w.f, 0).strip()} on {num(w.df_between, 0).strip()}"
-                           f" and {num(w.df_within, 0, 4).strip()} df ({pval(w.p, 0).strip()})."))
+                           f" and {num(w.df_within, 0, 4).strip()} df (p {_p_words(w.p)})."))
     else:
         lines.extend(_wrap(f"Welch ANOVA: not computed ({w.status})."))
     tests: Iterable[TestResult] = (r.kruskal, r.brown_forsythe, r.bartlett, r.normality)
@@ -161,14 +167,15 @@ def _effect_power(r: BatteryResult, unit: str) -> list[str]:
     e, v, p = r.effect, r.variance_components, r.power
     lines = _heading("Effect size, variance components, power")
     level = f"{1 - r.alpha:g}"
-    lines.append(f"  eta-squared {num(e.eta_squared, 0, 4).strip()}{_ci(e.eta_squared_ci)}   "
-                 f"omega-squared {num(e.omega_squared, 0, 4).strip()}   "
-                 f"Cohen's f {num(e.cohen_f, 0, 4).strip()}{_ci(e.cohen_f_ci)}"
-                 + (f"  ({level} CI)" if e.eta_squared_ci else ""))
+    lines.extend(_wrap(f"eta-squared {num(e.eta_squared, 0, 4).strip()}{_ci(e.eta_squared_ci)},"
+                       f" omega-squared {num(e.omega_squared, 0, 4).strip()}, "
+                       f"Cohen's f {num(e.cohen_f, 0, 4).strip()}{_ci(e.cohen_f_ci)}"
+                       + (f" ({level} intervals)." if e.eta_squared_ci else ".")))
     if v.status == "ok":
-        lines.append(f"  between-group variance {num(v.var_between, 0, 4).strip()}   "
-                     f"within-group variance {num(v.var_within, 0, 4).strip()}   "
-                     f"ICC {num(v.icc, 0, 3).strip()}{_ci(v.icc_ci)}")
+        lines.extend(_wrap(f"Random-effects view: between-group variance "
+                           f"{num(v.var_between, 0, 4).strip()}, within-group variance "
+                           f"{num(v.var_within, 0, 4).strip()}, intraclass correlation "
+                           f"{num(v.icc, 0, 3).strip()}{_ci(v.icc_ci)}."))
     u = f" {clean_text(unit, 10)}" if unit else ""
     if p.detectable_shift_80 is not None:
         lines.extend(_wrap(f"Smallest shift of one group detectable with 80% power now: "
