@@ -109,7 +109,7 @@ def csv_text(frame) -> str:
     stamp = "%Y-%m-%dT%H:%M:%SZ"
     times = [pl.col(c).dt.convert_time_zone("UTC").dt.strftime(stamp)
              for c in ("measured_at", "logged_at")]
-    frame = neutralise_text(frame.with_columns(times))
+    frame = neutralise_text(frame.with_columns(times), keep=tuple(_NUMBER_TEXT.values()))
     # numbers come from the exact text after neutralising, so "-0.5" is never quoted
     frame = frame.with_columns(pl.col(text).alias(col) for col, text in _NUMBER_TEXT.items())
     return frame.drop(list(_NUMBER_TEXT.values())).write_csv()
