@@ -9,6 +9,7 @@ from __future__ import annotations
 from datetime import date
 from typing import TYPE_CHECKING
 
+import numpy as np
 import polars as pl
 
 from store.errors import BadInput, NotFound, RowProblem
@@ -74,10 +75,13 @@ def bucket_frame(store: Store, *, characteristic: str | None = None, factor: str
     return frame.with_columns(pl.col("day").str.to_date("%Y-%m-%d"))
 
 
-def _value_expr(units: str, resolution: str) -> pl.Expr:
-    """units * resolution as f64 with one rounding (exact integer m*units over 10**k)."""
+def _float_values(units: pl.Series, resolution: str, name: str) -> pl.Series:
+    """units * resolution as f64 with one rounding: the exact integer m*units divided by 10**k
+    (IEEE 754 division is correctly rounded). numpy, because polars turns division by a scalar
+    into multiplication by its reciprocal (5004 * 0.1 = 500.40000000000003)."""
     m, k = scale_of(resolution)
-    return (pl.col(units) * m).cast(pl.Float64) / float(10**k)
+    exact = units.to_numpy().astype(np.int64) * m
+    return pl.Series(name, exact.astype(np.float64) / float(10**k), dtype=pl.Float64)
 
 
 def values_frame(store: Store, characteristic: str, factor: str, *, since: date | None = None,
@@ -120,7 +124,7 @@ def values_frame(store: Store, characteristic: str, factor: str, *, since: date 
     frame = pl.DataFrame(rows, schema=VALUES_SCHEMA, orient="row")
     return frame.select(
         "measurement_id", "lot", "level", _ts("measured_at").alias("measured_at"),
-        _value_expr("units", char.resolution).alias("value"), "units",
+        _float_values(frame["units"], char.resolution, "value"), "units",
     )
 
 
@@ -175,10 +179,11 @@ def measurements_frame(store: Store, *, characteristic: str | None = None,
                          orient="row")
     parts = []
     for res in frame["resolution"].unique().sort().to_list():
-        parts.append(frame.filter(pl.col("resolution") == res).with_columns(
-            _value_expr("current_units", res).alias("value"),
+        part = frame.filter(pl.col("resolution") == res)
+        parts.append(part.with_columns(
+            _float_values(part["current_units"], res, "value"),
             _text_expr("current_units", res).alias("value_text"),
-            _value_expr("original_units", res).alias("original_value"),
+            _float_values(part["original_units"], res, "original_value"),
             _text_expr("original_units", res).alias("original_text"),
         ))
     if parts:

@@ -1,0 +1,269 @@
+"""Store files: creation, opening, refusal of foreign/newer/damaged files, transactions, errors."""
+
+from __future__ import annotations
+
+import os
+import sqlite3
+from pathlib import Path
+
+import pytest
+
+from store import (
+    BadInput,
+    Store,
+    StoreCorrupt,
+    StoreError,
+    StoreExists,
+    StoreFull,
+    StoreLocked,
+    StoreMissing,
+    StoreReadOnly,
+    StoreTooNew,
+    schema,
+)
+
+TABLES = {"store_info", "settings", "characteristics", "factors", "lots", "lot_tags",
+          "measurements", "audit", "buckets", "alerts", "alert_events"}
+
+
+def test_create_makes_strict_tables_wal_and_default_factors(store: Store, store_path: Path) -> None:
+    rows = dict(store.conn.execute(
+        "SELECT name, sql FROM sqlite_master WHERE type = 'table'").fetchall())
+    assert TABLES <= set(rows)
+    for name in TABLES:
+        assert "STRICT" in rows[name], name  # no type inference anywhere
+    assert store.conn.execute("PRAGMA journal_mode").fetchone()[0] == "wal"
+    assert store.conn.execute("PRAGMA foreign_keys").fetchone()[0] == 1
+    assert store.conn.execute("PRAGMA busy_timeout").fetchone()[0] == 30_000
+    assert schema.user_version(store.conn) == schema.SCHEMA_VERSION
+    assert [(f.name, f.required) for f in store.factors()] == [
+        ("site", True), ("line", True), ("shift", True)]
+    assert store.info()["created_by"] == schema.LOTWATCH_VERSION
+    assert store.db.table("factors").count == 3  # sqlite-utils view over the same connection
+
+
+def test_strict_tables_refuse_wrong_types(store: Store) -> None:
+    with pytest.raises(sqlite3.IntegrityError, match="cannot store TEXT value in INTEGER column factors.required"):
+        with store.write():
+            store.conn.execute("INSERT INTO factors(name, required, created_at) VALUES ('a', 'yes', 'b')")
+
+
+def test_foreign_keys_enforced(store: Store) -> None:
+    with pytest.raises(sqlite3.IntegrityError, match="FOREIGN KEY"):
+        with store.write():
+            store.conn.execute("INSERT INTO lot_tags(lot_id, key, value) VALUES (99, 'k', 'v')")
+
+
+def test_migrations_are_contiguous() -> None:
+    assert sorted(schema.MIGRATIONS) == list(range(1, schema.SCHEMA_VERSION + 1))
+
+
+def test_reopen(store_path: Path) -> None:
+    Store.create(store_path).close()
+    with Store.open(store_path) as s:
+        assert len(s.factors()) == 3
+    with Store.open(store_path, read_only=True) as s:
+        assert len(s.factors()) == 3
+
+
+def test_create_refuses_existing_file(store_path: Path) -> None:
+    store_path.write_text("keep me")
+    with pytest.raises(StoreExists, match="already exists"):
+        Store.create(store_path)
+    assert store_path.read_text() == "keep me"
+
+
+def test_create_makes_parent_folders(tmp_path: Path) -> None:
+    with Store.create(tmp_path / "a" / "b" / "s.sqlite") as s:
+        assert s.path.exists()
+
+
+def test_missing_file(tmp_path: Path) -> None:
+    with pytest.raises(StoreMissing, match="no store at"):
+        Store.open(tmp_path / "nope.sqlite")
+    assert not (tmp_path / "nope.sqlite").exists()  # opening never creates a file
+
+
+def test_random_bytes_are_corrupt(tmp_path: Path) -> None:
+    p = tmp_path / "junk.sqlite"
+    p.write_bytes(os.urandom(8192))
+    before = p.read_bytes()
+    with pytest.raises(StoreCorrupt, match="not a readable lotwatch store"):
+        Store.open(p)
+    with pytest.raises(StoreCorrupt):
+        Store.open(p, read_only=True)
+    assert p.read_bytes() == before
+
+
+def test_empty_file_is_not_a_store(tmp_path: Path) -> None:
+    p = tmp_path / "empty.sqlite"
+    p.write_bytes(b"")
+    with pytest.raises(StoreCorrupt, match="is an empty file, not a lotwatch store"):
+        Store.open(p)
+
+
+def test_other_programs_database(tmp_path: Path) -> None:
+    p = tmp_path / "other.sqlite"
+    conn = sqlite3.connect(p)
+    conn.execute("CREATE TABLE invoices (id INTEGER PRIMARY KEY, total REAL)")
+    conn.commit()
+    conn.close()
+    with pytest.raises(StoreCorrupt, match="another program"):
+        Store.open(p)
+
+
+def test_damaged_store_is_corrupt(store_path: Path) -> None:
+    Store.create(store_path).close()
+    data = bytearray(store_path.read_bytes())
+    data[100:4096] = os.urandom(4096 - 100)  # wreck the schema page after the header
+    store_path.write_bytes(bytes(data))
+    with pytest.raises(StoreCorrupt):
+        Store.open(store_path)
+
+
+def test_newer_schema_refused(store_path: Path) -> None:
+    Store.create(store_path).close()
+    conn = sqlite3.connect(store_path)
+    conn.execute(f"PRAGMA user_version = {schema.SCHEMA_VERSION + 1}")
+    conn.execute("UPDATE store_info SET value = '9.4.0' WHERE key = 'last_written_by'")
+    conn.commit()
+    conn.close()
+    with pytest.raises(StoreTooNew, match=r"written by lotwatch 9\.4\.0 .*Upgrade lotwatch"):
+        Store.open(store_path)
+    with pytest.raises(StoreTooNew):
+        Store.open(store_path, read_only=True)
+
+
+def test_read_only_refuses_writes(store_path: Path) -> None:
+    Store.create(store_path).close()
+    with Store.open(store_path, read_only=True) as s:
+        with pytest.raises(StoreReadOnly, match="opened read-only"):
+            s.set_setting("window", "7d")
+        with pytest.raises(StoreReadOnly):
+            s.add_factor("oven")
+
+
+def test_read_only_sees_other_writers(store_path: Path) -> None:
+    writer = Store.create(store_path)
+    reader = Store.open(store_path, read_only=True)
+    try:
+        v0 = reader.data_version()
+        writer.set_setting("window", "14d")
+        assert reader.get_setting("window") == "14d"
+        assert reader.data_version() != v0  # another connection committed
+    finally:
+        reader.close()
+        writer.close()
+
+
+@pytest.mark.skipif(os.geteuid() == 0, reason="root ignores folder permissions")
+def test_read_only_in_unwritable_folder(tmp_path: Path) -> None:
+    folder = tmp_path / "ro"
+    folder.mkdir()
+    Store.create(folder / "s.sqlite").close()
+    folder.chmod(0o555)
+    try:
+        with Store.open(folder / "s.sqlite", read_only=True) as s:
+            assert len(s.factors()) == 3
+    finally:
+        folder.chmod(0o755)
+
+
+def test_file_not_writable(store_path: Path) -> None:
+    if os.geteuid() == 0:
+        pytest.skip("root can write read-only files")
+    Store.create(store_path).close()
+    store_path.chmod(0o444)
+    try:
+        with pytest.raises(StoreReadOnly):
+            with Store.open(store_path) as s:
+                s.set_setting("a", "b")
+    finally:
+        store_path.chmod(0o644)
+
+
+def test_locked_past_timeout(store_path: Path) -> None:
+    Store.create(store_path).close()
+    other = sqlite3.connect(store_path, isolation_level=None)
+    other.execute("BEGIN IMMEDIATE")
+    try:
+        with Store.open(store_path, timeout=0.2) as s:
+            before = s.get_setting("x")
+            with pytest.raises(StoreLocked, match="is busy.*Nothing was changed"):
+                s.set_setting("x", "1")
+            assert s.get_setting("x") == before
+    finally:
+        other.execute("ROLLBACK")
+        other.close()
+
+
+def test_disk_full_rolls_back(store: Store, dump) -> None:
+    # SQLite reports SQLITE_FULL when max_page_count is reached, as for a full disk.
+    pages = store.conn.execute("PRAGMA page_count").fetchone()[0]
+    store.conn.execute(f"PRAGMA max_page_count = {pages}")
+    before = dump(store)
+    with pytest.raises(StoreFull, match="is full"):
+        with store.write():
+            store.conn.executemany("INSERT INTO settings(key, value) VALUES (?, ?)",
+                                   [(f"k{i}", "x" * 500) for i in range(2000)])
+    assert dump(store) == before
+
+
+def test_write_rolls_back_on_error(store: Store, dump) -> None:
+    before = dump(store)
+    with pytest.raises(RuntimeError):
+        with store.write():
+            store.conn.execute("INSERT INTO settings(key, value) VALUES ('a', 'b')")
+            raise RuntimeError("boom")
+    assert dump(store) == before
+    assert not store.conn.in_transaction
+
+
+def test_nested_write_is_a_savepoint(store: Store) -> None:
+    with store.write():
+        store.conn.execute("INSERT INTO settings(key, value) VALUES ('outer', '1')")
+        with pytest.raises(ValueError):
+            with store.write():
+                store.conn.execute("INSERT INTO settings(key, value) VALUES ('inner', '1')")
+                raise ValueError("undo only the inner part")
+        with store.write():
+            store.conn.execute("INSERT INTO settings(key, value) VALUES ('inner2', '1')")
+    assert store.get_setting("outer") == "1"
+    assert store.get_setting("inner") is None
+    assert store.get_setting("inner2") == "1"
+
+
+def test_settings_round_trip(store: Store) -> None:
+    assert store.get_setting("window", "28d") == "28d"
+    store.set_setting("window", "7d")
+    store.set_setting("window", "14d")
+    assert store.get_setting("window") == "14d"
+    store.set_setting("window", None)
+    assert store.get_setting("window") is None
+    with pytest.raises(BadInput, match="empty setting name"):
+        store.set_setting("", "x")
+
+
+def test_store_is_thread_bound(store: Store) -> None:
+    import threading
+
+    errors: list[BaseException] = []
+
+    def use() -> None:
+        try:
+            store.factors()
+        except BaseException as exc:  # noqa: BLE001 - we want whatever sqlite3 raises
+            errors.append(exc)
+
+    t = threading.Thread(target=use)
+    t.start()
+    t.join()
+    assert errors and isinstance(errors[0], sqlite3.ProgrammingError)
+
+
+def test_closed_store_refuses_writes(store_path: Path) -> None:
+    s = Store.create(store_path)
+    s.close()
+    s.close()  # idempotent
+    with pytest.raises(StoreError, match="closed"):
+        s.set_setting("a", "b")
