@@ -171,7 +171,8 @@ def run_battery(samples: Sequence[Any], names: Sequence[str], *, alpha: float = 
     letters: dict[str, str] = {}
     if can_compare:
         letters = _guard(notes, "Compact letters",
-                         lambda: _letters.compact_letters(gnames, chosen), {})
+                         lambda: _letters.compact_letters(
+                             gnames, chosen, means={g.name: g.mean for g in groups}), {})
     anom_fallback = AnomResult(grand_mean=table.grand_mean, alpha=alpha, critical_value=None,
                                status=table.status if not can_compare else "not computed")
     anom = (_guard(notes, "Analysis of means", lambda: _anom.analysis_of_means(
