@@ -24,6 +24,16 @@ Welch's heteroscedastic F (Welch 1951), with w_i = n_i/s_i², W = Σw_i, m_w = �
     T = Σ (1 − w_i/W)² / (n_i − 1)
     F_W = A / (1 + 2(k − 2)T/(k² − 1)),  df1 = k − 1,  df2 = (k² − 1)/(3T)
 
+Bartlett's test of equal variances from the same sums (Bartlett 1937; NIST/SEMATECH §1.3.5.7),
+with s_i² = (n_i·Σd²_i − (Σd_i)²)/(n_i(n_i − 1)) and s_p² = Σ(n_i − 1)s_i²/(N − k)::
+
+    T = [(N − k)·ln s_p² − Σ(n_i − 1)·ln s_i²] / [1 + (Σ 1/(n_i − 1) − 1/(N − k)) / (3(k − 1))]
+
+referred to χ²(k − 1). It routes a comparison to Welch: where Bartlett's p < alpha the review
+reads (and feeds to the FDR family) Welch's p instead of the classical one. Bartlett is sensitive
+to non-normality; a needless switch to Welch costs little power, which is why the simple sum-based
+check is used here (the full battery on raw values adds Brown-Forsythe).
+
 Largest shift: for each usable group, mean_i − mean of all other observations of the window,
 = (Σd_i/n_i − (ΣΣd − Σd_i)/(N − n_i))·resolution; the group with the largest absolute value.
 
@@ -43,6 +53,7 @@ why BY is offered.
 
 from __future__ import annotations
 
+import functools
 import math
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
@@ -376,6 +387,9 @@ class WindowStats:
     welch_f: np.ndarray
     welch_df2: np.ndarray
     welch_p: np.ndarray
+    bartlett_p: np.ndarray
+    test: np.ndarray  # object array: "F" (classical) or "Welch", the test the review reads
+    p_used: np.ndarray  # p of ``test``
     eta_squared: np.ndarray
     omega_squared: np.ndarray
     largest_shift: np.ndarray
@@ -405,8 +419,9 @@ def _within_numerator(n: np.ndarray, s1: np.ndarray, s2: np.ndarray) -> np.ndarr
     return (no * s2o - s1o * s1o).astype(np.float64)
 
 
-def window_statistics(sums: GroupSums, *, min_n: int) -> WindowStats:
-    """ANOVA, Welch, effect sizes and the largest shift for every window × comparison at once."""
+def window_statistics(sums: GroupSums, *, min_n: int, alpha: float = 0.05) -> WindowStats:
+    """ANOVA, Welch, Bartlett, effect sizes and the largest shift for every window × comparison
+    at once; ``alpha`` is the level of the Bartlett check that routes a comparison to Welch."""
     n_all = sums.n
     usable = n_all >= max(min_n, 1)
     n = np.where(usable, n_all, 0)
@@ -456,6 +471,17 @@ def window_statistics(sums: GroupSums, *, min_n: int) -> WindowStats:
         wp = np.where(w_ok, special.fdtrc(np.where(w_ok, df_b, 1.0), np.where(w_ok, wdf2, 1.0),
                                           np.where(w_ok, wf, 0.0)), np.nan)
 
+        # Bartlett (scale-free: computed in deviation units)
+        v_u = np.where(usable & (nf > 1), num / (nf * (nf - 1)), np.nan)
+        sp2 = ssw_u / np.where(df_w > 0, df_w, np.nan)
+        logs = np.where(usable, (nf - 1) * np.log(np.where(usable, v_u, 1.0)), 0.0).sum(axis=2)
+        corr = 1 + (np.where(usable, 1 / np.where(usable, nf - 1, 1.0), 0.0).sum(axis=2)
+                    - 1 / df_w) / (3 * df_b)
+        b_stat = (df_w * np.log(sp2) - logs) / corr
+        b_ok = w_ok & np.isfinite(b_stat)
+        bp = np.where(b_ok, special.chdtrc(np.where(b_ok, df_b, 1.0),
+                                           np.where(b_ok, np.maximum(b_stat, 0.0), 0.0)), np.nan)
+
         # largest shift: group mean minus the mean of all other observations
         rest_n = N[:, :, None] - nf
         other = (S[:, :, None] - s1) / rest_n
@@ -468,12 +494,16 @@ def window_statistics(sums: GroupSums, *, min_n: int) -> WindowStats:
                               / (n_all * (n_all - 1.0)), np.nan)) * res3
         mean_all = np.where(n_all > 0, (origin[:, :, None] + sums.s1 / np.where(n_all > 0, n_all, 1))
                             * res3, np.nan)
+    welch = np.isfinite(bp) & (bp < alpha) & np.isfinite(wp)
+    test = np.where(welch, "Welch", "F").astype(object)
+    p_used = np.where(welch, wp, p)
     status = np.where(~enough, NOT_ENOUGH, np.where(ssw_u > 0, OK, ZERO_VARIANCE)).astype(object)
     return WindowStats(
         sums=sums, min_n=min_n, usable=usable, mean=mean_all, sd=sd, k=k, n_total=N.astype(np.int64),
         grand_mean=np.where(N > 0, (origin + m) * res, np.nan), ss_between=np.where(enough, ssb, np.nan),
         ss_within=np.where(enough, ssw, np.nan), df_within=df_w, ms_within=msw, f=f, p=p,
-        welch_f=wf, welch_df2=wdf2, welch_p=wp, eta_squared=eta, omega_squared=omega,
+        welch_f=wf, welch_df2=wdf2, welch_p=wp, bartlett_p=bp, test=test, p_used=p_used,
+        eta_squared=eta, omega_squared=omega,
         largest_shift=shift, largest_group=lg, status=status)
 
 
@@ -604,6 +634,37 @@ def decide_alert(history: Sequence[bool], previous: str | None, *, k: int, m: in
     if count == 0:
         return AlertDecision("cleared", "cleared", count)
     return AlertDecision(previous, "held", count)
+
+
+def anom_critical_value(ns: Sequence[int], df: float, alpha: float = 0.05) -> float | None:
+    """Two-sided ANOM critical value h: P(max_i |ȳ_i − ȳ|/(s·√((N − n_i)/(N·n_i))) ≤ h) = 1 − alpha
+    for group sizes ``ns`` and ``df`` degrees of freedom of s (Nelson 1982; the probability by
+    ``stats._mvt.anom_cdf``). h lies between the single-comparison t quantile t(1 − α/2) and the
+    Bonferroni bound t(1 − α/(2k)), which bracket Brent's method. None for fewer than two groups.
+    Cached: comparisons of one review often share their group sizes."""
+    sizes = tuple(int(x) for x in ns if x > 0)
+    if len(sizes) < 2 or not df > 0:
+        return None
+    return _anom_h(sizes, float(df), float(alpha))
+
+
+@functools.lru_cache(maxsize=4096)
+def _anom_h(sizes: tuple[int, ...], df: float, alpha: float) -> float:
+    from scipy import optimize
+    from scipy import stats as sps
+
+    from stats._mvt import anom_cdf
+
+    n = np.asarray(sizes, dtype=np.float64)
+
+    def gap(h: float) -> float:
+        return float(anom_cdf(np.array([h]), n, df)[0]) - (1.0 - alpha)
+
+    lo = float(sps.t.ppf(1 - alpha / 2, df))
+    hi = float(sps.t.ppf(1 - alpha / (2 * len(sizes)), df)) * 1.001
+    if gap(lo) >= 0:
+        return lo
+    return float(optimize.brentq(gap, lo, hi, xtol=1e-7))
 
 
 def anom_flags_from_summary(mean: Sequence[float], n: Sequence[int], grand_mean: float,

@@ -83,6 +83,11 @@ def test_window_results_equal_scipy_on_raw_values(case):
             wref = ss.f_oneway(*usable, equal_var=False)
             assert ws.welch_f[w, 0] == pytest.approx(wref.statistic, rel=1e-8)
             assert ws.welch_p[w, 0] == pytest.approx(wref.pvalue, rel=1e-7, abs=1e-14)
+            bref = ss.bartlett(*usable)  # oracle: scipy.stats.bartlett
+            assert ws.bartlett_p[w, 0] == pytest.approx(bref.pvalue, rel=1e-7, abs=1e-14)
+            welch = bref.pvalue < 0.05
+            assert ws.test[w, 0] == ("Welch" if welch else "F")
+            assert ws.p_used[w, 0] == (ws.welch_p[w, 0] if welch else ws.p[w, 0])
         # largest shift: group mean minus the mean of all other observations (definition)
         diffs = [g.mean() - np.concatenate([h for h in usable if h is not g]).mean() for g in usable]
         best = max(diffs, key=abs)
