@@ -60,7 +60,7 @@ def n_per_group_for_power(k: int, effect_shift_sd: float, alpha: float, target: 
 
 
 def power_analysis(ns: Sequence[int], sd_within: float | None, *, alpha: float = 0.05,
-                   shift: float | None = None, target: float = 0.80) -> PowerResult:
+                   shift: float | None = None) -> PowerResult:
     """Power now at ``shift``, lots per group needed for 80%/90% power at ``shift``, and the
     smallest shift detected with 80% power at the current group sizes (in the data's units)."""
     sizes = [int(n) for n in ns if n > 0]
@@ -87,9 +87,13 @@ def power_analysis(ns: Sequence[int], sd_within: float | None, *, alpha: float =
         return f_test_power(d * d * coef, df1, df2, alpha)
 
     hi = sd_within
-    while power_at(hi) < target:
+    for _ in range(200):
+        if power_at(hi) >= 0.80:
+            break
         hi *= 2
-    detectable = float(optimize.brentq(lambda d: power_at(d) - target, 0.0, hi, xtol=1e-12 * hi,
+    else:
+        return empty("power does not reach 80% at any shift")
+    detectable = float(optimize.brentq(lambda d: power_at(d) - 0.80, 0.0, hi, xtol=1e-12 * hi,
                                        rtol=1e-12))
     if shift is None:
         return PowerResult(alpha=alpha, sd_within=sd_within, shift=None, power_at_shift=None,

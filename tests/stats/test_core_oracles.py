@@ -59,7 +59,7 @@ def test_anova_vs_scipy_and_statsmodels(groups) -> None:
     for res in (None, "0.01"):
         t = one_way_anova(_lists(groups), resolution=res)
         assert t.f == pytest.approx(ref.statistic, rel=REL)
-        assert t.p == pytest.approx(ref.pvalue, rel=1e-7, abs=1e-300)
+        assert t.p == pytest.approx(ref.pvalue, rel=REL, abs=1e-300)
         assert t.f == pytest.approx(sm.statistic, rel=REL)
     t = one_way_anova(_lists(groups))
     n = [g.size for g in groups]
@@ -67,7 +67,7 @@ def test_anova_vs_scipy_and_statsmodels(groups) -> None:
     s1 = [float(np.sum(g - c)) for g in groups]
     s2 = [float(np.sum((g - c) ** 2)) for g in groups]
     from_sums = anova_from_sums(n, s1, s2, origin=c)
-    assert from_sums.f == pytest.approx(ref.statistic, rel=1e-8)
+    assert from_sums.f == pytest.approx(ref.statistic, rel=REL)
     assert from_sums.grand_mean == pytest.approx(t.grand_mean, rel=REL)
     units = [np.round(g * 100).astype(np.int64) for g in groups]
     o = int(units[0][0])
@@ -76,8 +76,8 @@ def test_anova_vs_scipy_and_statsmodels(groups) -> None:
                             origin=o)
     assert exact.f == pytest.approx(ref.statistic, rel=REL) and exact.exact
     b = anova_batch([n], [s1], [s2])
-    assert b.f[0] == pytest.approx(ref.statistic, rel=1e-8)
-    assert b.p[0] == pytest.approx(ref.pvalue, rel=1e-6, abs=1e-300)
+    assert b.f[0] == pytest.approx(ref.statistic, rel=REL)
+    assert b.p[0] == pytest.approx(ref.pvalue, rel=REL, abs=1e-300)
 
 
 @SETTINGS
@@ -89,7 +89,7 @@ def test_welch_vs_scipy_and_statsmodels(groups) -> None:
                       use_var="unequal")  # statsmodels anova_oneway(use_var="unequal")
     w = welch_anova(groups)
     assert w.f == pytest.approx(ref.statistic, rel=REL)
-    assert w.p == pytest.approx(ref.pvalue, rel=1e-7, abs=1e-300)
+    assert w.p == pytest.approx(ref.pvalue, rel=REL, abs=1e-300)
     assert w.df_within == pytest.approx(sm.df[1], rel=REL)
     n = [g.size for g in groups]
     m = [float(np.mean(g)) for g in groups]
@@ -106,17 +106,17 @@ def test_checks_vs_scipy(groups) -> None:
     kw = kruskal_wallis(groups)
     ref = sps.kruskal(*groups)  # scipy.stats.kruskal (tie-corrected)
     assert kw.statistic == pytest.approx(ref.statistic, rel=REL)
-    assert kw.p == pytest.approx(ref.pvalue, rel=1e-7, abs=1e-300)
+    assert kw.p == pytest.approx(ref.pvalue, rel=REL, abs=1e-300)
     bf = brown_forsythe(groups)
     ref = sps.levene(*groups, center="median")  # scipy.stats.levene(center="median")
-    assert bf.statistic == pytest.approx(ref.statistic, rel=1e-8)
-    assert bf.p == pytest.approx(ref.pvalue, rel=1e-6, abs=1e-300)
+    assert bf.statistic == pytest.approx(ref.statistic, rel=REL)
+    assert bf.p == pytest.approx(ref.pvalue, rel=REL, abs=1e-300)
     bt = bartlett_test(groups)
     ref = sps.bartlett(*groups)  # scipy.stats.bartlett
-    assert bt.statistic == pytest.approx(ref.statistic, rel=1e-8)
+    assert bt.statistic == pytest.approx(ref.statistic, rel=REL)
     resid = np.concatenate([g - g.mean() for g in groups])
     nt = residual_normality(groups)
-    assert nt.statistic == pytest.approx(sps.shapiro(resid).statistic, rel=1e-6)
+    assert nt.statistic == pytest.approx(sps.shapiro(resid).statistic, rel=REL)
     for t in (kw, bf, bt, nt):
         assert t.sentence and t.status == "ok"
 
@@ -128,7 +128,7 @@ def test_normality_above_5000_uses_dagostino() -> None:
     resid = np.concatenate([g - g.mean() for g in groups])
     ref = sps.normaltest(resid)  # scipy.stats.normaltest (D'Agostino-Pearson K²)
     assert r.name == "D'Agostino-Pearson"
-    assert r.statistic == pytest.approx(ref.statistic, rel=1e-6)
+    assert r.statistic == pytest.approx(ref.statistic, rel=REL)
 
 
 @settings(max_examples=60, deadline=None)
@@ -154,7 +154,7 @@ def test_power_vs_statsmodels(k, n, shift) -> None:
     f = shift * math.sqrt(k - 1) / k  # Cohen's f of one group shifted (equal n)
     # statsmodels FTestAnovaPower: nobs is the TOTAL number of observations
     ref = FTestAnovaPower().power(effect_size=f, nobs=n * k, alpha=0.05, k_groups=k)
-    assert r.power_at_shift == pytest.approx(ref, rel=1e-8, abs=1e-12)
+    assert r.power_at_shift == pytest.approx(ref, rel=REL, abs=1e-12)
     n80 = FTestAnovaPower().solve_power(effect_size=f, nobs=None, alpha=0.05, power=0.8,
                                         k_groups=k) / k
     assert r.n_per_group_80 == max(2, math.ceil(n80 - 1e-6))
@@ -199,3 +199,31 @@ def test_icc_vs_pingouin_balanced() -> None:
     lo, hi = row["CI95"]
     assert vc.icc_ci[0] == pytest.approx(max(lo, 0.0), abs=0.006)  # pingouin rounds to 2 dp
     assert vc.icc_ci[1] == pytest.approx(hi, abs=0.006)
+
+
+def test_batches_vs_scipy_row_by_row() -> None:
+    rng = np.random.default_rng(21)
+    m, k = 60, 7
+    n = rng.integers(2, 12, size=(m, k))
+    n[rng.random((m, k)) < 0.15] = 0  # absent groups pad with n = 0
+    n[:, :2] = np.maximum(n[:, :2], 2)
+    units = [[rng.integers(-300, 300, size=n[i, j]) for j in range(k)] for i in range(m)]
+    s1 = np.array([[int(u.sum()) for u in row] for row in units], dtype=np.int64)
+    s2 = np.array([[int((u * u).sum()) for u in row] for row in units], dtype=np.int64)
+    b = anova_batch(n, s1, s2)  # int64 sums of integer deviations
+    mean = s1 / np.maximum(n, 1)
+    var = np.where(n > 1, (s2 - s1 * mean) / np.maximum(n - 1, 1), 0.0)
+    w = welch_batch(n, mean, var)
+    for i, row in enumerate(units):
+        groups = [u.astype(float) for u in row if u.size]
+        ref = sps.f_oneway(*groups)  # scipy.stats.f_oneway, classical
+        assert b.f[i] == pytest.approx(ref.statistic, rel=REL)
+        assert b.p[i] == pytest.approx(ref.pvalue, rel=REL, abs=1e-300)
+        assert b.df_within[i] == sum(g.size for g in groups) - len(groups)
+        sm_eta = b.ss_between[i] / (b.ss_between[i] + b.ss_within[i])
+        assert b.eta_squared[i] == pytest.approx(sm_eta, rel=REL)
+        ref_w = sps.f_oneway(*groups, equal_var=False)  # scipy.stats.f_oneway, Welch
+        assert w.f[i] == pytest.approx(ref_w.statistic, rel=REL)
+        assert w.p[i] == pytest.approx(ref_w.pvalue, rel=REL, abs=1e-300)
+        e = effect_sizes(one_way_anova(groups))
+        assert b.omega_squared[i] == pytest.approx(e.omega_squared, rel=1e-9, abs=1e-12)
