@@ -1,0 +1,464 @@
+"""Loaders and writers the app runs in thread workers; they return plain dataclasses.
+
+Every function here runs off the event loop. Each opens its own :class:`store.Store` (a SQLite
+connection is bound to the thread that opened it), does its work and closes it. ``store``, the
+review engine, polars and scipy are imported inside the functions so the app's first screen is
+painted before those heavy modules load.
+"""
+
+from __future__ import annotations
+
+import getpass
+import os
+from collections.abc import Iterator
+from contextlib import contextmanager
+from dataclasses import dataclass, field
+from datetime import date
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+if TYPE_CHECKING:
+    from stats.results import BatteryResult
+    from store import Store
+
+
+# --- what the screens show ---------------------------------------------------------------------
+
+ALERTING = "alerting"
+WATCHING = "watching"
+NOT_ENOUGH = "not enough data"
+
+
+@dataclass(frozen=True)
+class CharacteristicInfo:
+    """What the list and the entry form need about one characteristic."""
+
+    name: str
+    unit: str
+    resolution: str
+    lsl: float | None
+    target: float | None
+    usl: float | None
+    min_shift: float | None
+    plausible_low: float | None
+    plausible_high: float | None
+
+
+@dataclass(frozen=True)
+class FactorInfo:
+    name: str
+    required: bool
+
+
+@dataclass(frozen=True)
+class ComparisonRow:
+    """One comparison (characteristic × factor) of a review window."""
+
+    characteristic: str
+    factor: str
+    window_label: str
+    k: int
+    n_total: int
+    f: float | None
+    p: float | None
+    welch_p: float | None
+    q: float | None
+    omega_squared: float | None
+    largest_shift: float | None
+    largest_shift_group: str | None
+    detectable_shift: float | None
+    alert_state: str | None
+    status: str
+    alert_id: int | None = None
+
+
+@dataclass(frozen=True)
+class AlertEventRow:
+    at: str
+    event: str
+    by: str | None
+    note: str | None
+    window: str | None
+
+
+@dataclass(frozen=True)
+class AlertRow:
+    """One alert as the alert list shows it."""
+
+    id: int
+    characteristic: str
+    factor: str
+    state: str
+    opened_at: str
+    opened_window: str | None
+    last_window: str | None
+    groups: str | None
+    direction: str | None
+    size: float | None
+    q: float | None
+    updated_at: str | None
+
+
+@dataclass(frozen=True)
+class Overview:
+    """The main view's frame: characteristics with state, factors, tag values, open alerts."""
+
+    characteristics: list[CharacteristicInfo]
+    factors: list[FactorInfo]
+    tag_values: dict[str, list[str]]
+    states: dict[str, str]  # characteristic -> ALERTING | WATCHING | NOT_ENOUGH
+    comparison_states: dict[tuple[str, str], str]
+    open_alerts: list[AlertRow]
+    window_label: str
+    data_version: int
+    window_kind: str = "trailing"  # the store's review.window setting
+
+
+@dataclass(frozen=True)
+class DetailRequest:
+    """What the main view asks for: one comparison in one window at one alpha."""
+
+    characteristic: str
+    factor: str
+    week: str | None = None  # ISO week ("2026-W48"): windows end on its Sunday; None = today
+    alpha: float = 0.05
+    window: str | None = None  # trailing | last_n | week; None = the store's review setting
+
+
+@dataclass(frozen=True)
+class TrendPoint:
+    window_end: str  # YYYY-MM-DD
+    level: str
+    n: int
+    mean: float
+
+
+@dataclass(frozen=True)
+class RecentLot:
+    """One of the latest lots of the shown characteristic (newest first)."""
+
+    lot: str
+    level: str
+    values: str
+    measured_at: str
+
+
+@dataclass(frozen=True)
+class DetailView:
+    """The battery, trend and limits of one comparison, ready to show."""
+
+    request: DetailRequest
+    characteristic: CharacteristicInfo
+    factor: str
+    window_label: str
+    battery: BatteryResult
+    trend: list[TrendPoint]
+    grand_mean: float | None
+    lsl: float | None
+    target: float | None
+    usl: float | None
+    window_kind: str = ""
+    recent: list[RecentLot] = field(default_factory=list)
+
+
+@dataclass(frozen=True)
+class ReviewView:
+    """Every comparison of one week, sorted by q (missing q last)."""
+
+    week: str | None
+    window_label: str
+    family_size: int
+    fdr_method: str
+    fdr_level: float
+    rows: list[ComparisonRow]
+
+
+@dataclass(frozen=True)
+class AlertsView:
+    alerts: list[AlertRow]
+    history: dict[int, list[AlertEventRow]] = field(default_factory=dict)
+
+
+@dataclass(frozen=True)
+class EntryDraft:
+    """The entry form's content: one lot of one characteristic (values as typed)."""
+
+    characteristic: str
+    values: list[str]
+    tags: dict[str, str]
+    lot: str | None
+    measured_at: str | None
+    note: str | None
+
+
+# --- opening the store -------------------------------------------------------------------------
+
+
+def login_name() -> str:
+    """The person's login name, recorded as who logged or acknowledged."""
+    try:
+        return getpass.getuser()
+    except (KeyError, OSError):  # no passwd entry (containers)
+        return os.environ.get("USER") or os.environ.get("USERNAME") or "unknown"
+
+
+@contextmanager
+def opened(path: Path, read_only: bool) -> Iterator[Store]:
+    """A Store on ``path`` for this thread, closed afterwards."""
+    from store import Store
+
+    store = Store.open(path, read_only=read_only)
+    try:
+        yield store
+    finally:
+        store.close()
+
+
+def file_identity(path: Path) -> tuple[int, int] | None:
+    """(device, inode) of the store file, or None when it is gone: detects deletion/replacement."""
+    try:
+        st = os.stat(path)
+    except FileNotFoundError:
+        return None
+    return (st.st_dev, st.st_ino)
+
+
+# --- loaders -----------------------------------------------------------------------------------
+
+
+def _char_info(c: Any) -> CharacteristicInfo:
+    return CharacteristicInfo(
+        name=c.name, unit=c.unit, resolution=c.resolution, lsl=c.lsl, target=c.target,
+        usl=c.usl, min_shift=c.min_shift, plausible_low=c.plausible_low,
+        plausible_high=c.plausible_high,
+    )
+
+
+def _attr(obj: Any, name: str, default: Any = None) -> Any:
+    if isinstance(obj, dict):
+        return obj.get(name, default)
+    return getattr(obj, name, default)
+
+
+def _alert_row(a: Any) -> AlertRow:
+    return AlertRow(
+        id=int(_attr(a, "id")),
+        characteristic=str(_attr(a, "characteristic", "")),
+        factor=str(_attr(a, "factor", "")),
+        state=str(_attr(a, "state", "")),
+        opened_at=str(_attr(a, "opened_at", "")),
+        opened_window=_attr(a, "opened_window"),
+        last_window=_attr(a, "last_window"),
+        groups=_groups_text(_attr(a, "groups")),
+        direction=_attr(a, "direction"),
+        size=_attr(a, "size"),
+        q=_attr(a, "q"),
+        updated_at=_attr(a, "updated_at"),
+    )
+
+
+def _groups_text(groups: Any) -> str | None:
+    if groups is None:
+        return None
+    if isinstance(groups, (list, tuple)):
+        return ", ".join(str(g) for g in groups)
+    return str(groups)
+
+
+def _event_row(e: Any) -> AlertEventRow:
+    return AlertEventRow(at=str(_attr(e, "at", "")), event=str(_attr(e, "event", "")),
+                         by=_attr(e, "by"), note=_attr(e, "note"), window=_attr(e, "window"))
+
+
+def _comparison_row(c: Any, alert_ids: dict[tuple[str, str], int]) -> ComparisonRow:
+    key = (c.characteristic, c.factor)
+    return ComparisonRow(
+        characteristic=c.characteristic, factor=c.factor, window_label=c.window_label, k=c.k,
+        n_total=c.n_total, f=c.f, p=c.p, welch_p=c.welch_p, q=c.q,
+        omega_squared=c.omega_squared, largest_shift=c.largest_shift,
+        largest_shift_group=c.largest_shift_group, detectable_shift=c.detectable_shift,
+        alert_state=c.alert_state, status=c.status,
+        alert_id=c.alert_id if c.alert_id is not None else alert_ids.get(key),
+    )
+
+
+def _alert_ids(rows: list[AlertRow]) -> dict[tuple[str, str], int]:
+    """Latest alert id per (characteristic, factor) among not-cleared alerts."""
+    out: dict[tuple[str, str], int] = {}
+    for a in sorted(rows, key=lambda r: r.id):
+        if a.state != "cleared":
+            out[(a.characteristic, a.factor)] = a.id
+    return out
+
+
+def read_alerts(store: Store, state: str | None = None) -> list[AlertRow]:
+    from store.alerts import list_alerts
+
+    return [_alert_row(a) for a in list_alerts(store, state=state)]
+
+
+def _sort_q(rows: list[ComparisonRow]) -> list[ComparisonRow]:
+    return sorted(rows, key=lambda r: (r.q is None, r.q if r.q is not None else 0.0,
+                                       r.characteristic, r.factor))
+
+
+def load_overview(path: Path, read_only: bool, *, week: str | None = None) -> Overview:
+    """Characteristics and their state this window, factors, known tags and open alerts.
+
+    A characteristic is "alerting" when any of its comparisons has an open alert, "not enough
+    data" when none of its comparisons could be computed, else "watching". The review is run
+    with ``persist=False``: looking never opens or clears alerts.
+    """
+    from tui.review_engine import run_review
+
+    with opened(path, read_only) as store:
+        chars = [_char_info(c) for c in store.characteristics()]
+        factors = [FactorInfo(f.name, bool(f.required)) for f in store.factors()]
+        tags = {f.name: list(store.tag_values(f.name)) for f in factors}
+        alerts = read_alerts(store)
+        review = run_review(store, week=week, persist=False)
+        version = store.data_version()
+    window_kind = review.settings.window
+    open_alerts = [a for a in alerts if a.state == "open"]
+    comparison_states: dict[tuple[str, str], str] = {}
+    for c in review.comparisons:
+        if c.alert_state == "open":
+            st = ALERTING
+        elif c.status != "ok":
+            st = NOT_ENOUGH
+        else:
+            st = WATCHING
+        comparison_states[(c.characteristic, c.factor)] = st
+    for a in open_alerts:
+        comparison_states[(a.characteristic, a.factor)] = ALERTING
+    states: dict[str, str] = {}
+    for ch in chars:
+        mine = [s for (cn, _), s in comparison_states.items() if cn == ch.name]
+        if ALERTING in mine:
+            states[ch.name] = ALERTING
+        elif WATCHING in mine:
+            states[ch.name] = WATCHING
+        else:
+            states[ch.name] = NOT_ENOUGH
+    return Overview(chars, factors, tags, states, comparison_states, open_alerts,
+                    review.window_label, version, window_kind)
+
+
+class _WindowKind:
+    """The store seen through one changed setting: ``review.window`` (for a chosen window kind).
+
+    Only reading goes through it; the store's own settings are never written.
+    """
+
+    def __init__(self, store: Store, window: str) -> None:
+        self._store = store
+        self._window = window
+
+    def get_setting(self, key: str, default: str | None = None) -> str | None:
+        if key == "review.window":
+            return self._window
+        return self._store.get_setting(key, default)
+
+    def __getattr__(self, name: str) -> Any:
+        return getattr(self._store, name)
+
+
+RECENT_LOTS = 3
+
+
+def recent_lots(store: Store, characteristic: str, factor: str) -> list[RecentLot]:
+    """The latest lots of a characteristic (by time measured), with their level of ``factor``."""
+    import polars as pl
+
+    frame = store.values_frame(characteristic, factor, last_n=RECENT_LOTS)
+    if frame.height == 0:
+        return []
+    ch = store.characteristic(characteristic)
+    from store.values import format_units
+
+    lots = (frame.group_by("lot", maintain_order=True)
+            .agg(pl.col("level").first(), pl.col("units"), pl.col("measured_at").max())
+            .sort("measured_at", descending=True).head(RECENT_LOTS))
+    out = []
+    for r in lots.iter_rows(named=True):
+        values = " ".join(format_units(int(u), ch.resolution) for u in r["units"])
+        out.append(RecentLot(lot=str(r["lot"]), level=str(r["level"]), values=values,
+                             measured_at=r["measured_at"].astimezone().strftime("%m-%d %H:%M")))
+    return out
+
+
+def load_detail(path: Path, read_only: bool, request: DetailRequest) -> DetailView:
+    """The battery of the latest (or chosen) window, the trend of group means, and the limits."""
+    from tui.review_engine import comparison_detail, review_settings
+
+    with opened(path, read_only) as store:
+        view: Any = store if request.window is None else _WindowKind(store, request.window)
+        d = comparison_detail(view, request.characteristic, request.factor,
+                              week=request.week, alpha=request.alpha)
+        kind = review_settings(view).window
+        recent = recent_lots(store, request.characteristic, request.factor)
+    trend = [
+        TrendPoint(window_end=_day_text(r["window_end"]), level=str(r["level"]), n=int(r["n"]),
+                   mean=float(r["mean"]))
+        for r in d.trend.iter_rows(named=True)
+        if r["mean"] is not None
+    ]
+    return DetailView(request=request, characteristic=_char_info(d.characteristic),
+                      factor=d.factor, window_label=d.window_label, battery=d.battery,
+                      trend=trend, grand_mean=d.grand_mean, lsl=d.lsl, target=d.target,
+                      usl=d.usl, window_kind=kind, recent=recent)
+
+
+def _day_text(value: Any) -> str:
+    if isinstance(value, date):
+        return value.isoformat()
+    return str(value)[:10]
+
+
+def load_review(path: Path, read_only: bool, week: str | None) -> ReviewView:
+    """Every comparison of ``week`` (None = the latest), sorted by q, with alert ids attached."""
+    from tui.review_engine import run_review
+
+    with opened(path, read_only) as store:
+        review = run_review(store, week=week, persist=False)
+        alerts = read_alerts(store)
+    ids = _alert_ids(alerts)
+    rows = _sort_q([_comparison_row(c, ids) for c in review.comparisons])
+    return ReviewView(week=week, window_label=review.window_label,
+                      family_size=review.family_size, fdr_method=review.fdr_method,
+                      fdr_level=review.fdr_level, rows=rows)
+
+
+def load_alerts(path: Path, read_only: bool) -> AlertsView:
+    """Every alert (open, acknowledged, cleared) with its event history, newest first."""
+    from store.alerts import alert_history
+
+    with opened(path, read_only) as store:
+        alerts = read_alerts(store)
+        history = {a.id: [_event_row(e) for e in alert_history(store, a.id)] for a in alerts}
+    alerts.sort(key=lambda a: (a.state != "open", -a.id))
+    return AlertsView(alerts=alerts, history=history)
+
+
+# --- writers -----------------------------------------------------------------------------------
+
+
+def log_draft(path: Path, draft: EntryDraft, by: str) -> tuple[int, int, int, str | None]:
+    """Store one lot in one transaction; returns (stored, duplicates, rounded, lot ID)."""
+    from store import LotEntry
+
+    entry = LotEntry(characteristic=draft.characteristic, values=list(draft.values),
+                     tags=dict(draft.tags), lot=draft.lot, measured_at=draft.measured_at,
+                     note=draft.note, by=by, source="terminal interface")
+    with opened(path, False) as store:
+        outcome = store.log_lots([entry])
+    lot = outcome.lots[0] if getattr(outcome, "lots", None) else draft.lot
+    return outcome.stored, outcome.duplicates, outcome.rounded, lot
+
+
+def acknowledge_alert(path: Path, alert_id: int, by: str, note: str) -> None:
+    """Record that ``by`` acknowledged the alert, with the note."""
+    from store.alerts import acknowledge
+
+    with opened(path, False) as store:
+        acknowledge(store, alert_id, by=by, note=note)

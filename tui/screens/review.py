@@ -1,0 +1,129 @@
+"""The weekly review: every comparison of one week, sorted by q, with effect size and alert state.
+
+Enter drills into the main view for the highlighted comparison; k acknowledges its alert.
+"""
+
+from __future__ import annotations
+
+from typing import TYPE_CHECKING
+
+from rich.text import Text
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.screen import Screen
+from textual.widgets import DataTable, Footer, Static
+
+from tui.data import ComparisonRow, ReviewView
+from tui.safe_text import clean, literal
+from tui.widgets.caution import Caution
+from tui.widgets.numbers import num, pval
+
+if TYPE_CHECKING:
+    from tui.app import LotwatchApp
+
+
+class ReviewScreen(Screen[None]):
+    """One week's family of comparisons with false-discovery control."""
+
+    BINDINGS = [
+        Binding("enter", "drill", "Open", tooltip="Show this comparison in the main view"),
+        Binding("k", "acknowledge", "Acknowledge"),
+        Binding("left_square_bracket", "week(-1)", "Earlier", key_display="["),
+        Binding("right_square_bracket", "week(1)", "Later", key_display="]"),
+        Binding("escape", "back", "Back", show=False),
+    ]
+
+    DEFAULT_CSS = """
+    ReviewScreen #review-head { height: auto; background: $panel; padding: 0 1; }
+    ReviewScreen DataTable { height: 1fr; }
+    """
+
+    def __init__(self) -> None:
+        super().__init__()
+        self.rows: list[ComparisonRow] = []
+
+    @property
+    def lw(self) -> LotwatchApp:
+        return self.app  # type: ignore[return-value]
+
+    def compose(self) -> ComposeResult:
+        yield Static("Weekly review: computing…", id="review-head")
+        yield Caution()
+        yield DataTable(id="review-table", cursor_type="row", zebra_stripes=True)
+        yield Footer(compact=True)
+
+    def on_mount(self) -> None:
+        t = self.query_one(DataTable)
+        t.add_column("characteristic", key="characteristic")
+        t.add_column("factor", key="factor")
+        t.add_column(Text("k", justify="right"), key="k")
+        t.add_column(Text("n", justify="right"), key="n")
+        t.add_column(Text("F", justify="right"), key="f")
+        t.add_column(Text("p", justify="right"), key="p")
+        t.add_column(Text("q", justify="right"), key="q")
+        t.add_column(Text("ω²", justify="right"), key="omega")
+        t.add_column(Text("shift", justify="right"), key="shift")
+        t.add_column("alert", key="alert")
+        t.focus()
+        if self.lw.review is not None:
+            self.show_review(self.lw.review)
+        self.lw.request_review()
+
+    def on_screen_resume(self) -> None:
+        self.lw.request_review()
+
+    def show_review(self, review: ReviewView) -> None:
+        head = Text(no_wrap=False)
+        head.append(f"Weekly review {clean(review.window_label, 30)}", style="bold")
+        head.append(f": {review.family_size} comparisons, q = {review.fdr_method.upper()} "
+                    f"false-discovery-adjusted p (level {review.fdr_level:g}). "
+                    "[ ] week · Enter open · k acknowledge")
+        self.query_one("#review-head", Static).update(head)
+        t = self.query_one(DataTable)
+        keep = t.cursor_row
+        t.clear()
+        self.rows = list(review.rows)
+        for i, r in enumerate(self.rows):
+            alert = r.alert_state or ("–" if r.status == "ok" else clean(r.status, 18))
+            t.add_row(
+                literal(r.characteristic, 18), literal(r.factor, 10),
+                Text(str(r.k), justify="right"), Text(str(r.n_total), justify="right"),
+                Text(num(r.f, 3), justify="right"), Text(pval(r.p), justify="right"),
+                Text(pval(r.q), justify="right", style="bold" if r.alert_state == "open" else ""),
+                Text(num(r.omega_squared, 2), justify="right"),
+                Text(num(r.largest_shift, 3), justify="right"),
+                Text(alert, style="bold reverse" if r.alert_state == "open" else ""),
+                key=str(i),
+            )
+        if self.rows:
+            t.move_cursor(row=min(keep, len(self.rows) - 1))
+
+    def _current(self) -> ComparisonRow | None:
+        t = self.query_one(DataTable)
+        if not self.rows or t.cursor_row < 0 or t.cursor_row >= len(self.rows):
+            return None
+        return self.rows[t.cursor_row]
+
+    def on_data_table_row_selected(self, event: DataTable.RowSelected) -> None:
+        event.stop()
+        self.action_drill()
+
+    def action_drill(self) -> None:
+        row = self._current()
+        if row is not None:
+            self.lw.drill_into(row.characteristic, row.factor, self.lw.review_week)
+
+    def action_acknowledge(self) -> None:
+        row = self._current()
+        if row is None:
+            return
+        if row.alert_id is None:
+            self.app.notify("This comparison has no alert to acknowledge.", markup=False)
+            return
+        self.lw.open_acknowledge(row.alert_id)
+
+    def action_week(self, step: int) -> None:
+        self.lw.shift_review_week(step)
+
+    def action_back(self) -> None:
+        self.lw.switch_mode("main")
