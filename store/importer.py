@@ -251,11 +251,12 @@ def _number_problem(text: str, decimal_comma: bool) -> str | None:
     return "not a number"
 
 
-def _clean(cell: Any) -> str | None:
-    if cell is None:
-        return None
-    s = str(cell).strip()
-    return s or None
+def _stripped(name: str):  # -> pl.Expr
+    """Column ``name`` with surrounding white space removed and empty text as null."""
+    import polars as pl
+
+    col = pl.col(name).str.strip_chars()
+    return pl.when(col.str.len_bytes() == 0).then(pl.lit(None, pl.String)).otherwise(col).alias(name)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -283,6 +284,8 @@ def parse_import(
     ``factors`` and ``characteristics`` are the names known to the store (used for the default
     tag columns and, in the wide layout, the default characteristic columns).
     """
+    import polars as pl
+
     from store import LotEntry
 
     path = Path(path)
@@ -351,25 +354,25 @@ def parse_import(
     values_read = 0
     names_map = options.characteristic_map if layout == "long" else {}
 
-    col_index = {c: i for i, c in enumerate(columns)}
-    for i, raw in enumerate(frame.iter_rows()):
-        row = i + 1
-        if all(_clean(c) is None for c in raw):
+    # cells stripped, empty -> None; one Python list per used column (fast row access)
+    clean = frame.select(_stripped(c) for c in columns)
+    blank = clean.select(pl.all_horizontal(pl.all().is_null())).to_series().to_list()
+    data = {c: clean[c].to_list() for c in columns if c in used}
+    for i in range(clean.height):
+        if blank[i]:
             continue  # blank line
+        row = i + 1
         rows_read += 1
 
-        def cell(col: str, raw: tuple = raw) -> str | None:
-            return _clean(raw[col_index[col]])
-
         bad = False
-        lot = cell(options.lot_column)
+        lot = data[options.lot_column][i]
         if lot is None:
             problems.append(RowProblem(source, row, options.lot_column, None, "lot id is empty"))
             bad = True
 
         measured_at: datetime | None = None
         if has_time:
-            ts_text = cell(options.time_column)
+            ts_text = data[options.time_column][i]
             if ts_text is None:
                 problems.append(
                     RowProblem(source, row, options.time_column, None, "timestamp is empty")
@@ -397,7 +400,7 @@ def parse_import(
 
         tags = {}
         for key, col in tag_cols.items():
-            v = cell(col)
+            v = data[col][i]
             if v is not None:
                 tags[key] = v
         if lot is not None:
@@ -417,13 +420,13 @@ def parse_import(
                         )
                 bad = True
 
-        note = cell(note_col) if note_col else None
-        by = (cell(by_col) if by_col else None) or options.by
+        note = data[note_col][i] if note_col else None
+        by = (data[by_col][i] if by_col else None) or options.by
 
         row_values: list[tuple[str, str, str]] = []  # (characteristic, value, column)
         if layout == "long":
-            char = cell(options.characteristic_column)
-            value = cell(options.value_column)
+            char = data[options.characteristic_column][i]
+            value = data[options.value_column][i]
             values_read += 1
             if char is None:
                 problems.append(
@@ -439,7 +442,7 @@ def parse_import(
                 row_values.append((names_map.get(char, char), value, options.value_column))
         else:
             for col, name in value_cols:
-                value = cell(col)
+                value = data[col][i]
                 if value is not None:
                     values_read += 1
                     row_values.append((name or col, value, col))
