@@ -26,7 +26,8 @@ def _arrays(samples: Sequence[Any]) -> list[np.ndarray]:
 
 
 def _bad(name: str, status: str, sentence: str) -> TestResult:
-    return TestResult(name=name, statistic=None, p=None, sentence=sentence, status=status)
+    return TestResult(name=name, statistic=None, p=None, sentence=f"{name}: {sentence}",
+                      status=status)
 
 
 def _nonfinite(arrays: list[np.ndarray]) -> bool:
@@ -81,6 +82,11 @@ def brown_forsythe(samples: Sequence[Any], *, alpha: float = 0.05) -> TestResult
     if len(arrays) < 2:
         return _bad(name, "fewer than two groups", "Fewer than two groups: nothing to compare.")
     z = [np.abs(a - np.median(a)) for a in arrays]
+    if all(float(np.ptp(a)) == 0 for a in arrays):
+        same = float(np.ptp(np.concatenate(arrays))) == 0
+        return _bad(name, "all values equal" if same else "zero within-group variance",
+                    "All values are equal." if same else
+                    "Every group is constant, so spreads cannot be compared.")
     t = one_way_anova(z, alpha=alpha)
     if t.status != OK or t.f is None or t.p is None or not math.isfinite(t.f):
         return _bad(name, t.status, "Spreads cannot be compared: " + t.decision)

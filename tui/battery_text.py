@@ -98,8 +98,11 @@ def _checks(r: BatteryResult) -> list[str]:
     if r.resolution_warning:
         lines.extend(_wrap("Resolution: " + r.resolution_warning))
     lines.append("")
-    lines.extend(_wrap(f"Recommended: {r.recommendation.test} with {r.recommendation.posthoc}. "
-                       f"{r.recommendation.reason}", ""))
+    rec = r.recommendation
+    if rec.test == "none":
+        lines.extend(_wrap(f"Recommended: nothing to read. {rec.reason}", ""))
+    else:
+        lines.extend(_wrap(f"Recommended: {rec.test} with {rec.posthoc}. {rec.reason}", ""))
     return lines
 
 
