@@ -249,7 +249,9 @@ def anova_batch(n: Any, s1: Any, s2: Any) -> AnovaBatch:
     deviations from any origin shared within a comparison (float or int64; converted to float64).
     SS_between = Σ n_i (m_i − m)², SS_within = Σ max(s2_i − s1_i·m_i, 0) with m_i = s1_i/n_i;
     eta² = SS_b/SS_t, omega² = (SS_b − df_b·MS_w)/(SS_t + MS_w) (Hays 1963). Comparisons with
-    fewer than two groups, no within df, or zero SS_within get NaN for F and p.
+    fewer than two groups, no within df, or zero SS_within get NaN for F and p. This route is
+    floating point (int64 sums beyond 2^53 lose digits on conversion); ``anova_from_sums`` with a
+    resolution is the exact route for a single comparison.
     """
     nn = np.atleast_2d(np.asarray(n, dtype=np.float64))
     a1 = np.atleast_2d(np.asarray(s1, dtype=np.float64))
