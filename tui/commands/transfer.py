@@ -183,7 +183,6 @@ def export_command(fmt: str | None, characteristics: tuple[str, ...], since: str
         summary = write_export(
             store, format=fmt, out=out, characteristics=list(characteristics),
             since=since_d, until=until_d, overwrite=overwrite,
-            stream=click.get_text_stream("stdout") if out is None else None,
         )
     if summary.path is not None:
         click.echo(f"Wrote {summary.rows:,} measurement(s) to {summary.path}", err=True)
