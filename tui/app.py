@@ -231,6 +231,8 @@ class LotwatchApp(App[None]):
     @work(thread=True, exclusive=True, group="overview", exit_on_error=False,
           description="loading the characteristics")
     def _load_overview(self, generation: int) -> None:
+        import textual_plotext  # noqa: F401  (warm the chart's import here, off the event loop)
+
         ov = data.load_overview(self.db_path, self.read_only)
         if not get_current_worker().is_cancelled:
             self.post_message(OverviewLoaded(ov, generation))

@@ -159,6 +159,7 @@ class DetailView:
     usl: float | None
     window_kind: str = ""
     recent: list[RecentLot] = field(default_factory=list)
+    grand_means: list[tuple[str, float]] = field(default_factory=list)  # (window end, mean)
 
 
 @dataclass(frozen=True)
@@ -367,7 +368,8 @@ RECENT_LOTS = 3
 
 
 def recent_lots(store: Store, characteristic: str, factor: str) -> list[RecentLot]:
-    """The latest lots of a characteristic (by time measured), with their level of ``factor``."""
+    """The lots logged last (highest measurement id) among each level's latest by time measured,
+    with their level of ``factor``: the lot just typed shows up here."""
     import polars as pl
 
     frame = store.values_frame(characteristic, factor, last_n=RECENT_LOTS)
@@ -377,8 +379,9 @@ def recent_lots(store: Store, characteristic: str, factor: str) -> list[RecentLo
     from store.values import format_units
 
     lots = (frame.group_by("lot", maintain_order=True)
-            .agg(pl.col("level").first(), pl.col("units"), pl.col("measured_at").max())
-            .sort("measured_at", descending=True).head(RECENT_LOTS))
+            .agg(pl.col("level").first(), pl.col("units"), pl.col("measured_at").max(),
+                 pl.col("measurement_id").max())
+            .sort("measurement_id", descending=True).head(RECENT_LOTS))
     out = []
     for r in lots.iter_rows(named=True):
         values = " ".join(format_units(int(u), ch.resolution) for u in r["units"])
@@ -403,10 +406,15 @@ def load_detail(path: Path, read_only: bool, request: DetailRequest) -> DetailVi
         for r in d.trend.iter_rows(named=True)
         if r["mean"] is not None
     ]
+    grand_means = []
+    if getattr(d, "grand_means", None) is not None:
+        grand_means = [(_day_text(r["window_end"]), float(r["grand_mean"]))
+                       for r in d.grand_means.iter_rows(named=True)
+                       if r["grand_mean"] is not None]
     return DetailView(request=request, characteristic=_char_info(d.characteristic),
                       factor=d.factor, window_label=d.window_label, battery=d.battery,
                       trend=trend, grand_mean=d.grand_mean, lsl=d.lsl, target=d.target,
-                      usl=d.usl, window_kind=kind, recent=recent)
+                      usl=d.usl, window_kind=kind, recent=recent, grand_means=grand_means)
 
 
 def _day_text(value: Any) -> str:

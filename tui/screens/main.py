@@ -21,7 +21,6 @@ from tui.widgets.alert_list import AlertList
 from tui.widgets.anova_panel import AnovaPanel
 from tui.widgets.characteristics import CharacteristicList
 from tui.widgets.group_table import GroupTable
-from tui.widgets.trend_chart import TrendChart
 
 if TYPE_CHECKING:
     from tui.app import LotwatchApp
@@ -83,7 +82,10 @@ class MainScreen(Screen[None]):
                         with VerticalScroll():
                             yield AnovaPanel("", id="anova")
                     with TabPane("3 Trend", id="trend"):
-                        yield TrendChart(id="trend-chart")
+                        # The chart (plotext) is mounted with the first result, keeping its
+                        # import off the first paint.
+                        yield Static("The trend appears once the comparison is computed.",
+                                     id="trend-wait")
                     with TabPane("4 Alerts", id="alerts"):
                         yield Static("", id="alerts-head")
                         yield AlertList(id="alert-list")
@@ -137,7 +139,7 @@ class MainScreen(Screen[None]):
     def show_detail(self, detail: DetailView) -> None:
         self.query_one(GroupTable).show(detail)
         self.query_one(AnovaPanel).show(detail)
-        self.query_one(TrendChart).show(detail)
+        self._show_trend(detail)
         letters = detail.battery.letters
         letter_text = Text(no_wrap=False)
         if letters:
@@ -148,7 +150,7 @@ class MainScreen(Screen[None]):
         self.query_one("#letters", Static).update(letter_text)
         recent = Text()
         if detail.recent:
-            recent.append("Latest lots: ", style="bold")
+            recent.append("Last logged: ", style="bold")
             for i, r in enumerate(detail.recent):
                 if i:
                     recent.append(" · ")
@@ -158,6 +160,16 @@ class MainScreen(Screen[None]):
                 recent.append(f" {clean(r.values, 24)} ({r.measured_at})")
         self.query_one("#recent", Static).update(recent)
         self.refresh_status()
+
+    def _show_trend(self, detail: DetailView) -> None:
+        from tui.widgets.trend_chart import TrendChart
+
+        charts = self.query(TrendChart)
+        if charts:
+            charts.first().show(detail)
+            return
+        self.query_one("#trend-wait", Static).display = False
+        self.query_one("#trend", TabPane).mount(TrendChart(id="trend-chart", pending=detail))
 
     def show_detail_problem(self, message: str) -> None:
         self.query_one(AnovaPanel).show_message(message)

@@ -23,6 +23,15 @@ class TrendChart(PlotextPlot):
     TrendChart { height: 1fr; min-height: 10; }
     """
 
+    def __init__(self, *, pending: DetailView | None = None, **kwargs) -> None:
+        super().__init__(**kwargs)
+        self._pending = pending
+
+    def on_mount(self) -> None:
+        if self._pending is not None:
+            self.show(self._pending)
+            self._pending = None
+
     def show(self, detail: DetailView) -> None:
         plt = self.plt
         plt.clear_data()
@@ -47,7 +56,10 @@ class TrendChart(PlotextPlot):
         lo, hi = min(means), max(means)
         span = max(hi - lo, 1e-12)
         caption: list[str] = []
-        if detail.grand_mean is not None:
+        if detail.grand_means:
+            plt.plot([d for d, _ in detail.grand_means], [m for _, m in detail.grand_means],
+                     marker=GRAND_MARKER, label="grand mean")
+        elif detail.grand_mean is not None:
             plt.plot(dates, [detail.grand_mean] * len(dates), marker=GRAND_MARKER,
                      label="grand mean")
         for name, limit in (("LSL", detail.lsl), ("USL", detail.usl)):

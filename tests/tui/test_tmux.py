@@ -1,0 +1,114 @@
+"""A person at an 80×24 terminal: run ``python -m tui demo`` in tmux, log a lot, read the screen.
+
+Skipped where tmux is not installed. The tmux server runs on a private socket and is killed at
+the end, so nothing else running tmux is touched.
+"""
+
+from __future__ import annotations
+
+import os
+import shlex
+import shutil
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import pytest
+
+ROOT = Path(__file__).resolve().parents[2]
+
+pytestmark = pytest.mark.skipif(shutil.which("tmux") is None, reason="tmux is not installed")
+
+
+class Tmux:
+    def __init__(self, socket: str) -> None:
+        self.base = ["tmux", "-L", socket]
+
+    def run(self, *args: str) -> str:
+        return subprocess.run(self.base + list(args), check=True, capture_output=True,
+                              text=True).stdout
+
+    def alive(self) -> bool:
+        """Whether the session still runs (the server exits with its last session)."""
+        done = subprocess.run(self.base + ["has-session", "-t", "lw"], capture_output=True)
+        return done.returncode == 0
+
+    def screen(self) -> str:
+        return self.run("capture-pane", "-p", "-t", "lw")
+
+    def keys(self, *keys: str, pause: float = 0.15) -> None:
+        for k in keys:
+            self.run("send-keys", "-t", "lw", k)
+            time.sleep(pause)
+
+    def type(self, text: str) -> None:
+        self.run("send-keys", "-t", "lw", "-l", text)
+        time.sleep(0.2)
+
+    def wait_for(self, text: str, timeout: float = 15.0) -> str:
+        deadline = time.monotonic() + timeout
+        while True:
+            screen = self.screen()
+            if text in screen:
+                return screen
+            if time.monotonic() > deadline:
+                raise AssertionError(f"{text!r} never appeared; the screen was:\n{screen}")
+            time.sleep(0.1)
+
+
+@pytest.fixture
+def tmux():
+    t = Tmux(f"lotwatch-test-{os.getpid()}")
+    yield t
+    subprocess.run(t.base + ["kill-server"], capture_output=True)
+
+
+def test_log_a_lot_in_the_demo_at_80x24(tmux, demo_data_home):
+    from store import Store
+
+    db = demo_data_home / "lotwatch" / "demo.sqlite"
+    env = (f"XDG_DATA_HOME={shlex.quote(str(demo_data_home))} "
+           f"LOTWATCH_DB={shlex.quote(str(db))} TERM=xterm-256color")
+    command = f"cd {shlex.quote(str(ROOT))} && env {env} {shlex.quote(sys.executable)} -m tui demo"
+    started = time.monotonic()
+    tmux.run("new-session", "-d", "-s", "lw", "-x", "80", "-y", "24", command)
+    screen = tmux.wait_for("1 Groups")
+    painted = time.monotonic() - started
+    screen = tmux.wait_for("watching")
+    print(f"first screen after {painted:.2f} s")
+    assert "cap_torque" in screen and "fill_volume" in screen
+    assert "Help" in screen and "Quit" in screen  # the footer names the keys
+    assert all(len(line) <= 80 for line in screen.splitlines())
+
+    tmux.keys("n")
+    screen = tmux.wait_for("Log a lot")
+    assert "site *" in screen and "Values *" in screen
+    tmux.type("Riverbend")
+    tmux.keys("Tab")
+    tmux.type("RB-2")
+    tmux.keys("Tab")
+    tmux.type("early")
+    tmux.keys("Tab")
+    tmux.type("2.0x")
+    screen = tmux.wait_for("is not a number")
+    tmux.keys("BSpace", "BSpace")
+    tmux.type("03")
+    tmux.keys("Tab")
+    tmux.type("TMUX-1")
+    tmux.keys("Enter")
+    screen = tmux.wait_for("Stored lot TMUX-1")
+    screen = tmux.wait_for("Last logged: TMUX-1")
+    assert "Log a lot" not in screen
+
+    with Store.open(db, read_only=True) as store:
+        frame = store.values_frame("cap_torque", "line")
+    row = frame.filter(frame["lot"] == "TMUX-1")
+    assert row["value"].to_list() == [2.03] and row["level"].to_list() == ["RB-2"]
+
+    tmux.keys("q")
+    deadline = time.monotonic() + 10
+    while tmux.alive():
+        if time.monotonic() > deadline:
+            raise AssertionError("the app did not quit on q")
+        time.sleep(0.2)
