@@ -53,7 +53,6 @@ why BY is offered.
 
 from __future__ import annotations
 
-import functools
 import math
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
@@ -330,7 +329,8 @@ def window_sums(cube: BucketCube, windows: Sequence[Window], settings: ReviewSet
     ndays = cube.cum_n.shape[2] - 1
     C, K = cube.cum_n.shape[:2]
     W = len(windows)
-    ends = np.array([min((w.end - cube.day0).days, ndays - 1) for w in windows]) + 1  # exclusive
+    # exclusive end index into the cumulative sums, clipped to the cube (0: window before data)
+    ends = np.clip(np.array([(w.end - cube.day0).days + 1 for w in windows]), 0, ndays)
     if settings.window != "last_n":
         starts = np.array([max((w.start - cube.day0).days, 0) for w in windows])  # type: ignore[operator]
         starts = np.minimum(starts, ends)
@@ -637,34 +637,15 @@ def decide_alert(history: Sequence[bool], previous: str | None, *, k: int, m: in
 
 
 def anom_critical_value(ns: Sequence[int], df: float, alpha: float = 0.05) -> float | None:
-    """Two-sided ANOM critical value h: P(max_i |ȳ_i − ȳ|/(s·√((N − n_i)/(N·n_i))) ≤ h) = 1 − alpha
-    for group sizes ``ns`` and ``df`` degrees of freedom of s (Nelson 1982; the probability by
-    ``stats._mvt.anom_cdf``). h lies between the single-comparison t quantile t(1 − α/2) and the
-    Bonferroni bound t(1 − α/(2k)), which bracket Brent's method. None for fewer than two groups.
-    Cached: comparisons of one review often share their group sizes."""
-    sizes = tuple(int(x) for x in ns if x > 0)
+    """Two-sided ANOM critical value h (Nelson 1982) for group sizes ``ns`` and ``df`` degrees of
+    freedom of s, from ``stats.distributions.qanom`` (cached on the group fractions). None for
+    fewer than two groups or no degrees of freedom."""
+    from stats.distributions import qanom
+
+    sizes = [int(x) for x in ns if x > 0]
     if len(sizes) < 2 or not df > 0:
         return None
-    return _anom_h(sizes, float(df), float(alpha))
-
-
-@functools.lru_cache(maxsize=4096)
-def _anom_h(sizes: tuple[int, ...], df: float, alpha: float) -> float:
-    from scipy import optimize
-    from scipy import stats as sps
-
-    from stats._mvt import anom_cdf
-
-    n = np.asarray(sizes, dtype=np.float64)
-
-    def gap(h: float) -> float:
-        return float(anom_cdf(np.array([h]), n, df)[0]) - (1.0 - alpha)
-
-    lo = float(sps.t.ppf(1 - alpha / 2, df))
-    hi = float(sps.t.ppf(1 - alpha / (2 * len(sizes)), df)) * 1.001
-    if gap(lo) >= 0:
-        return lo
-    return float(optimize.brentq(gap, lo, hi, xtol=1e-7))
+    return float(qanom(1.0 - alpha, np.asarray(sizes, dtype=np.float64), float(df)))
 
 
 def anom_flags_from_summary(mean: Sequence[float], n: Sequence[int], grand_mean: float,

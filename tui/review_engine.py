@@ -356,13 +356,19 @@ def run_review(store, *, as_of: date | None = None, week: str | None = None,
             size_fraction=fraction, unit=ch.unit, test=str(ws.test[W, c]),
             bartlett_p=_f(ws.bartlett_p[W, c]), p_used=_f(ws.p_used[W, c])))
         if record and event is not None:
+            if event in ("held", "cleared") and not sig[W, c] and previous is not None:
+                # no signal in this window: the alert keeps describing its last signal
+                groups, direction, size = previous.groups, previous.direction, previous.size
+                fraction, qv = previous.size_fraction, previous.q
             text = alert_text(comp.characteristic, comp.factor, groups, direction, size, ch.unit,
                               fraction, latest.label, qv)
             details = {"text": text, "q": qv, "p": _f(ws.p[W, c]), "f": _f(ws.f[W, c]),
                        "welch_p": _f(ws.welch_p[W, c]), "gate": _f(gates[W, c]),
                        "gate_source": gate_src, "signals_in_last_m": decision.count,
                        "k": settings.alert_k, "m": settings.alert_m, "anom": anom,
-                       "family_size": int(sizes[W]), "fdr_method": settings.fdr_method}
+                       "family_size": int(sizes[W]), "fdr_method": settings.fdr_method,
+                       "signal_in_window": bool(sig[W, c]), "window_q": _f(q[W, c]),
+                       "window_shift": shift}
             transitions.append((len(summaries) - 1, store_alerts.Transition(
                 comp.characteristic, comp.factor, event, latest.label, [x for x in groups if x],
                 direction, size, fraction, qv, details)))

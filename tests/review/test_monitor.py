@@ -286,3 +286,23 @@ def test_signals_apply_practical_gate():
         wins, cfg), min_n=5)
     sig2, _ = mon.signals(ws2, q, cfg, mon.detectable_shift(ws2))
     assert sig2[0, 0]
+
+
+def test_windows_before_and_after_the_data_are_empty():
+    """A window that ends before the first bucket day (or starts after the last) holds nothing
+    (regression: a negative index must not wrap around to the end of the data)."""
+    raw = pl.DataFrame({"characteristic": "x", "factor": "site", "level": ["A", "B"] * 10,
+                        "day": [DAY0 + timedelta(days=i % 5) for i in range(20)], "u": list(range(20))})
+    comp = mon.Comparison("x", "site", 0, 1.0)
+    for kind in ("trailing", "last_n", "week"):
+        cfg = mon.ReviewSettings(window=kind, days=7, last_n=3)
+        wins = [mon.Window("before", "b", DAY0 - timedelta(days=20), DAY0 - timedelta(days=10)),
+                mon.Window("after", "a", DAY0 + timedelta(days=30), DAY0 + timedelta(days=40))]
+        cube = mon.bucket_cube(_buckets(raw, 0), [comp], first_day=DAY0,
+                               last_day=DAY0 + timedelta(days=4))
+        gs = mon.window_sums(cube, wins, cfg)
+        assert gs.n[0].sum() == 0
+        if kind == "last_n":  # the last 3 lots before day 40 are still there
+            assert gs.n[1, 0].tolist() == [4, 4]
+        else:
+            assert gs.n[1].sum() == 0

@@ -12,7 +12,16 @@ from pathlib import Path
 
 import click
 
-from tui.commands.common import UserError, db_option, open_store, store_errors
+from tui.commands.common import UserError, db_option, store_errors
+from tui.commands.common import open_store as _open_store
+
+
+def open_store(db_path: Path, *, read_only: bool = False):  # -> store.Store
+    """``common.open_store`` with its refusal (no store, unreadable store) as exit status 2."""
+    try:
+        return _open_store(db_path, read_only=read_only)
+    except click.ClickException as exc:
+        raise UserError(exc.message) from None
 
 
 def _as_of(value: str | None) -> date | None:

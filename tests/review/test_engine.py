@@ -1,0 +1,315 @@
+"""The review engine on real stores: window results against raw values (scipy and the stats
+battery as oracles), the alert lifecycle, the practical gate, idempotence, incremental updates,
+and the demo store's planted effects (store.demo.DEMO_EFFECTS)."""
+
+from __future__ import annotations
+
+import tempfile
+from datetime import UTC, date, datetime, timedelta
+from pathlib import Path
+
+import numpy as np
+import pytest
+import scipy.stats as ss
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+from stats import monitor as mon
+from store import LotEntry, Store
+from store import alerts as store_alerts
+from tui import review_engine as eng
+
+MONDAY = date(2026, 3, 2)
+
+
+def _at(day: date, hour: int = 8) -> datetime:
+    return datetime(day.year, day.month, day.day, hour, tzinfo=UTC)
+
+
+def _entry(char: str, value: float, site: str, day: date, hour: int = 8, shift: str = "early",
+           digits: int = 1) -> LotEntry:
+    return LotEntry(char, [f"{value:.{digits}f}"], {"site": site, "line": f"{site}-1",
+                                                     "shift": shift}, measured_at=_at(day, hour))
+
+
+# ---------------------------------------------------------------- windows vs raw values
+
+
+@st.composite
+def store_case(draw):
+    k = draw(st.integers(2, 4))
+    n = draw(st.integers(15, 80))
+    seed = draw(st.integers(0, 2**31 - 1))
+    kind = draw(st.sampled_from(["trailing", "week", "last_n"]))
+    days = draw(st.integers(5, 30))
+    last_n = draw(st.integers(3, 15))
+    as_of = MONDAY + timedelta(days=draw(st.integers(10, 45)))
+    return k, n, seed, kind, days, last_n, as_of
+
+
+@settings(max_examples=15, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(store_case())
+def test_store_windows_equal_raw_value_oracles(case):
+    """For random small stores and windows, the bucket-sum results of every window equal
+    scipy.stats.f_oneway (classical and Welch) and stats.run_battery's ANOVA table on the raw
+    values that window holds (store.values_frame)."""
+    from stats import run_battery
+
+    k, n, seed, kind, days, last_n, as_of = case
+    rng = np.random.default_rng(seed)
+    with tempfile.TemporaryDirectory() as tmp:
+        store = Store.create(Path(tmp) / "s.sqlite")
+        store.add_characteristic("x", unit="mm", resolution="0.1")
+        entries = [_entry("x", 10 + rng.normal(0, 1) + (0.5 if s == 0 else 0), f"S{s}",
+                          MONDAY + timedelta(days=int(rng.integers(0, 50))), int(rng.integers(0, 24)))
+                   for s in rng.integers(0, k, n)]
+        store.log_lots(entries)
+        store.set_setting("review.window", kind)
+        store.set_setting("review.window_days", str(days))
+        store.set_setting("review.last_n", str(last_n))
+        store.set_setting("review.min_lots", "3")
+        cfg = eng.review_settings(store)
+        comps, _ = eng.comparisons_of(store, "x", "site")
+        plan = mon.window_plan(as_of, cfg, 3)
+        ws = eng.compute_windows(store, comps, plan, cfg, characteristic="x", factor="site")
+        for w, win in enumerate(plan):
+            if kind == "last_n":
+                vals = store.values_frame("x", "site", until=win.end)
+                firsts = dict(zip(ws.sums.levels[0], ws.sums.first_day[w][0], strict=True))
+                vals = vals.filter([firsts.get(lv) is not None and at.date() >= firsts[lv]
+                                    for lv, at in zip(vals["level"], vals["measured_at"], strict=True)])
+            else:
+                vals = store.values_frame("x", "site", since=win.start, until=win.end)
+            groups = {lv: part["value"].to_numpy() for (lv,), part in
+                      vals.partition_by("level", as_dict=True).items()}
+            usable = {lv: g for lv, g in sorted(groups.items()) if len(g) >= 3}
+            assert int(ws.n_total[w, 0]) == sum(len(g) for g in usable.values())
+            if len(usable) < 2:
+                assert ws.status[w, 0] == mon.NOT_ENOUGH
+                continue
+            ref = ss.f_oneway(*usable.values())
+            assert ws.f[w, 0] == pytest.approx(ref.statistic, rel=1e-9)
+            assert ws.p[w, 0] == pytest.approx(ref.pvalue, rel=1e-8)
+            if all(np.var(g) > 0 for g in usable.values()):  # Welch needs every s_i > 0
+                wref = ss.f_oneway(*usable.values(), equal_var=False)
+                assert ws.welch_f[w, 0] == pytest.approx(wref.statistic, rel=1e-8)
+            else:
+                assert np.isnan(ws.welch_f[w, 0])
+            bat = run_battery(list(usable.values()), list(usable), resolution="0.1", min_n=3)
+            assert ws.f[w, 0] == pytest.approx(bat.anova.f, rel=1e-9)
+            assert ws.ss_within[w, 0] == pytest.approx(bat.anova.ss_within, rel=1e-9)
+            assert ws.grand_mean[w, 0] == pytest.approx(bat.anova.grand_mean, rel=1e-12)
+        store.close()
+
+
+# ---------------------------------------------------------------- alert lifecycle
+
+
+def _weekly_store(path: Path, effect_weeks: set[int], weeks: int, *, shift: float = 3.0,
+                  min_shift: float = 1.0, lsl=None, usl=None) -> Store:
+    """Three sites, 10 lots per site per ISO week (sd 0.2); site B is `shift` higher in the
+    given weeks (numbered from 1)."""
+    rng = np.random.default_rng(5)
+    store = Store.create(path)
+    store.add_characteristic("x", unit="g", resolution="0.01", min_shift=min_shift, lsl=lsl,
+                             usl=usl)
+    entries = []
+    for wk in range(1, weeks + 1):
+        for site in "ABC":
+            for i in range(10):
+                day = MONDAY + timedelta(weeks=wk - 1, days=i % 7)
+                v = 50 + rng.normal(0, 0.2) + (shift if site == "B" and wk in effect_weeks else 0)
+                entries.append(_entry("x", v, site, day, 6 + i, digits=2))
+    store.log_lots(entries)
+    store.set_setting("review.window", "week")
+    return store
+
+
+def _sunday(week: int) -> date:
+    return MONDAY + timedelta(weeks=week - 1, days=6)
+
+
+def _state(result, factor="site"):
+    (c,) = [c for c in result.comparisons if c.factor == factor]
+    return c
+
+
+def test_lifecycle_open_hold_acknowledge_clear_reopen(tmp_path):
+    """Scripted weeks, 2-of-3 rule: effect in weeks 3-6 and 11-12 (worked by hand):
+    week 4 opens (3, 4), 5-8 hold, acknowledged after week 5, 9 clears (7, 8, 9 quiet),
+    12 reopens (11, 12). Events are recorded once each."""
+    store = _weekly_store(tmp_path / "s.sqlite", {3, 4, 5, 6, 11, 12}, 13)
+    states = {}
+    for wk in range(1, 14):
+        r = eng.run_review(store, as_of=_sunday(wk))
+        c = _state(r)
+        states[wk] = (c.alert_state, c.event)
+        if wk == 5:
+            store_alerts.acknowledge(store, c.alert_id, by="qe-anna", note="checking filler B")
+    assert states[3] == (None, None)
+    assert states[4] == ("open", "opened")
+    assert states[5] == ("open", "held")
+    assert states[6] == ("acknowledged", "held")
+    assert states[8] == ("acknowledged", "held")
+    assert states[9] == ("cleared", "cleared")
+    assert states[10] == ("cleared", None)
+    assert states[11] == ("cleared", None)
+    assert states[12] == ("open", "reopened")
+    alerts = store_alerts.list_alerts(store)
+    site_alerts = [a for a in alerts if a.factor == "site"]
+    assert len(site_alerts) == 1 and site_alerts[0].groups[0] == "B"
+    assert site_alerts[0].direction == "higher"
+    events = [e.event for e in store_alerts.alert_history(store, site_alerts[0].id)]
+    assert events == ["opened", "held", "acknowledged", "held", "held", "held", "cleared",
+                      "reopened", "held"]
+    ack = [e for e in store_alerts.alert_history(store, site_alerts[0].id)
+           if e.event == "acknowledged"][0]
+    assert (ack.by, ack.note) == ("qe-anna", "checking filler B")
+    opened = store_alerts.alert_history(store, site_alerts[0].id)[0]
+    assert opened.details["text"].endswith(mon.CAUTION)
+    assert opened.details["family_size"] == 2  # site and line; shift has one level only
+    store.close()
+
+
+def test_rerunning_a_review_records_nothing_new(tmp_path):
+    store = _weekly_store(tmp_path / "s.sqlite", {2, 3, 4}, 5)
+    for wk in range(1, 5):
+        eng.run_review(store, as_of=_sunday(wk))
+    n_events = store.conn.execute("SELECT count(*) FROM alert_events").fetchone()[0]
+    again = eng.run_review(store, as_of=_sunday(4))
+    assert store.conn.execute("SELECT count(*) FROM alert_events").fetchone()[0] == n_events
+    assert _state(again).alert_state == "open" and _state(again).event is None
+    # an earlier review changes nothing and says so
+    old = eng.run_review(store, as_of=_sunday(1))
+    assert not old.recorded and old.notes
+    assert store.conn.execute("SELECT count(*) FROM alert_events").fetchone()[0] == n_events
+    store.close()
+
+
+def test_one_week_signal_does_not_open(tmp_path):
+    """K-of-M hysteresis on a store: a single week with the effect never opens a 2-of-3 alert."""
+    store = _weekly_store(tmp_path / "s.sqlite", {3, 7}, 9)
+    for wk in range(1, 10):
+        r = eng.run_review(store, as_of=_sunday(wk))
+        assert _state(r).alert_state is None
+        assert _state(r).signal == (wk in (3, 7))
+    assert store_alerts.list_alerts(store) == []
+    store.close()
+
+
+def test_practical_gate_stops_tiny_significant_difference(tmp_path):
+    """Site B is 0.1 g higher in every week: highly significant with 10 lots a week at sd 0.2...
+    but below the gate of 1/8 of the 4 g tolerance (0.5 g), so no alert."""
+    store = _weekly_store(tmp_path / "s.sqlite", set(range(1, 9)), 8, shift=0.4, min_shift=None,
+                          lsl=48, usl=52)
+    store.set_setting("review.window", "trailing")  # 28 days: 40 lots per site
+    r = eng.run_review(store, as_of=_sunday(8))
+    c = _state(r)
+    assert c.q is not None and c.q < 1e-6
+    assert c.gate == pytest.approx(0.5) and c.gate_source == "tolerance"
+    assert abs(c.largest_shift) < 0.5
+    assert not c.signal and c.alert_state is None
+    store.close()
+
+
+def test_not_enough_data_is_not_no_difference(tmp_path):
+    store = Store.create(tmp_path / "s.sqlite")
+    store.add_characteristic("x", unit="g", resolution="0.1")
+    store.log_lots([_entry("x", 5 + i * 0.1, "A" if i < 8 else "B", MONDAY, 8 + i % 10)
+                    for i in range(10)])
+    r = eng.run_review(store, as_of=MONDAY)
+    c = _state(r)
+    assert c.status == mon.NOT_ENOUGH and c.p is None and c.q is None
+    assert c.excluded == [("B", 2)]
+    assert r.family_size == 0
+    store.close()
+
+
+def test_incremental_latest_window_matches_full_review(tmp_path):
+    store = _weekly_store(tmp_path / "s.sqlite", {1, 2}, 3)
+    store.set_setting("review.window", "trailing")
+    as_of = _sunday(3)
+    live = eng.LatestWindow(store, as_of=as_of)
+    day = as_of - timedelta(days=1)
+    store.log_lots([_entry("x", 53.0, "B", day, 20)])
+    live.refresh_day(day)
+    r = eng.run_review(store, as_of=as_of, persist=False)
+    for c_idx, comp in enumerate(live.comps):
+        full = [c for c in r.comparisons if (c.characteristic, c.factor) ==
+                (comp.characteristic, comp.factor)][0]
+        assert live.stats.n_total[0, c_idx] == full.n_total
+        if full.f is None:  # the shift factor has one level only
+            assert np.isnan(live.stats.f[0, c_idx]) and full.status == mon.NOT_ENOUGH
+            continue
+        assert live.stats.f[0, c_idx] == pytest.approx(full.f, rel=1e-12)
+        assert live.q[0, c_idx] == pytest.approx(full.q, rel=1e-12)
+    assert any(c.f is not None for c in r.comparisons)
+    store.close()
+
+
+# ---------------------------------------------------------------- demo store
+
+
+def test_demo_review_finds_the_drifting_line_and_nothing_else(demo_replay):
+    """store.demo.DEMO_EFFECTS: line RB-2's fill_volume drifts up from week 18; every other
+    characteristic × factor has no mean difference. The review opens exactly one alert,
+    fill_volume by line naming RB-2 (higher), after the onset; no signal before the onset; the
+    implied site effect (Riverbend) is the only other comparison allowed a signal."""
+    from store.demo import DEMO_EFFECTS
+
+    drift = {(e.characteristic, e.factor): e.level for e in DEMO_EFFECTS if e.kind == "mean_drift"}
+    assert drift == {("fill_volume", "line"): "RB-2", ("fill_volume", "site"): "Riverbend"}
+    for r in demo_replay.reviews:
+        for c in r.comparisons:
+            key = (c.characteristic, c.factor)
+            if c.signal:
+                assert key in drift, f"unexpected signal {key} at {r.as_of}"
+                assert c.largest_shift_group == drift[key] and c.direction == "higher"
+                assert r.as_of > demo_replay.onset
+    alerts = store_alerts.list_alerts(Store.open(demo_replay.path, read_only=True))
+    assert [(a.characteristic, a.factor, a.state, a.groups[0], a.direction) for a in alerts] == [
+        ("fill_volume", "line", "open", "RB-2", "higher")]
+    opened = [r for r in demo_replay.reviews
+              if any(c.event == "opened" for c in r.comparisons)]
+    assert len(opened) == 1
+    assert demo_replay.onset < opened[0].as_of <= demo_replay.onset + timedelta(weeks=8)
+
+
+def test_demo_unequal_spread_routes_to_welch(demo_replay):
+    """Night-shift cap_torque has sd 0.20 against 0.08 (DEMO_EFFECTS 'spread'): the review's
+    variance check (Bartlett from sums) reads Welch, the battery's Brown-Forsythe flags it and
+    recommends Welch with Games-Howell; the mean is unchanged, so no alert."""
+    last = demo_replay.reviews[-1]
+    (c,) = [c for c in last.comparisons if (c.characteristic, c.factor) == ("cap_torque", "shift")]
+    assert c.test == "Welch" and c.bartlett_p < 1e-6
+    assert c.alert_state is None and not c.signal
+    with Store.open(demo_replay.path, read_only=True) as store:
+        d = eng.comparison_detail(store, "cap_torque", "shift", as_of=last.as_of)
+    b = d.battery
+    assert b.brown_forsythe.p < 0.05
+    assert (b.recommendation.test, b.recommendation.posthoc) == ("Welch ANOVA", "Games-Howell")
+    assert b.welch.p == pytest.approx(c.welch_p, rel=1e-9)  # same window, raw vs sums
+
+
+def test_demo_anom_flags_match_battery(demo_replay):
+    """The review's ANOM flags (from sums) equal stats.analysis_of_means on the window's raw
+    values (the battery's ANOM) for fill_volume by line."""
+    last = demo_replay.reviews[-1]
+    (c,) = [c for c in last.comparisons if (c.characteristic, c.factor) == ("fill_volume", "line")]
+    with Store.open(demo_replay.path, read_only=True) as store:
+        d = eng.comparison_detail(store, "fill_volume", "line", as_of=last.as_of)
+    assert {g.group: g.flag for g in d.battery.anom.groups} == c.anom
+    assert c.anom["RB-2"] == "above"
+    assert d.trend.filter(d.trend["level"] == "RB-2")["mean"][-1] > d.grand_mean
+
+
+def test_by_method_is_more_conservative(demo_replay):
+    with Store.open(demo_replay.path, read_only=True) as store:
+        bh = eng.run_review(store, as_of=demo_replay.reviews[-1].as_of, persist=False)
+        by = eng.run_review(store, as_of=demo_replay.reviews[-1].as_of, persist=False,
+                            fdr_method="by")
+    qb = {(c.characteristic, c.factor): c.q for c in bh.comparisons}
+    for c in by.comparisons:
+        if c.q is not None:
+            assert c.q >= qb[(c.characteristic, c.factor)] - 1e-15
+    assert "Yekutieli" in by.family_statement and str(by.family_size) in by.family_statement
