@@ -20,7 +20,10 @@ with the problems the store finds, so the person importing sees all bad rows at 
 
 Timestamps are ISO 8601 (``2026-11-03T08:15:00Z``, ``2026-11-03 08:15``, ``2026-11-03``). A
 timestamp without a UTC offset is read as local time of this computer (the usual convention of lab
-exports), then converted to UTC.
+exports), then converted to UTC; so is a Parquet timestamp column without a time zone.
+
+Encodings: UTF-8 with or without a byte order mark, UTF-16 with a byte order mark; a file that is
+not valid UTF-8 is read as Latin-1 and the summary says so.
 """
 
 from __future__ import annotations
@@ -119,7 +122,14 @@ class ImportSummary:
 
 
 def _decode(path: Path, data: bytes, notes: list[str]) -> str:
-    """Text of a CSV file: UTF-8 (with or without BOM), else Latin-1 with a note."""
+    """Text of a CSV file: UTF-8 (with or without BOM), UTF-16 with a BOM (spreadsheets'
+    "Unicode text"), else Latin-1 with a note."""
+    if data[:2] in (b"\xff\xfe", b"\xfe\xff"):
+        try:
+            return data.decode("utf-16")
+        except UnicodeDecodeError:
+            raise FileRefused(f"{path.name}: starts like UTF-16 text but cannot be decoded "
+                              "as UTF-16; save it as CSV (UTF-8)") from None
     if b"\x00" in data[:65536]:
         raise FileRefused(
             f"{path.name}: not a text CSV file (it contains NUL bytes). "

@@ -288,6 +288,22 @@ def test_import_bad_rows_listed_nothing_stored(cli, db, tmp_path):
     assert "bad.rejected.csv" in r.stdout
 
 
+def test_import_many_problems_are_all_written_to_a_file(cli, db, tmp_path):
+    f = tmp_path / "many.csv"
+    f.write_text(HEADER + "".join(f"A{i},fill_volume,x{i},2026-11-03T08:15:00Z,S,L,e\n"
+                                  for i in range(1, 121)))
+    before = dump(db)
+    r = cli("import", f, "--db", db)
+    assert r.exit_code == 2
+    assert "120 bad input row(s)" in r.output and "... and 70 more" in r.output
+    listing = tmp_path / "many.rejected.csv"
+    assert f"All 120 problems are listed in {listing}" in r.output
+    rows = pl.read_csv(listing, infer_schema=False)
+    assert rows["row"].to_list() == [str(i) for i in range(1, 121)]
+    assert rows["value"].to_list() == [f"x{i}" for i in range(1, 121)]
+    assert dump(db) == before
+
+
 def test_import_mapping_options_and_decimal_comma(cli, db, tmp_path):
     f = tmp_path / "eu.csv"
     f.write_text("Charge;Zeit;Werk;Linie;Schicht;Fuellmenge\n"

@@ -146,6 +146,14 @@ def test_utf8_bom_header_is_recognised(lab, tmp_path):
     assert stored(lab)[0][0] == "B1"
 
 
+def test_utf16_with_bom(lab, tmp_path):
+    # spreadsheets' "Unicode text" export is UTF-16 with a byte order mark
+    f = write(tmp_path / "u16.csv", HEADER + "\nU1,fill_volume,500.1,2026-11-03T08:15:00Z,S,L,e\n",
+              encoding="utf-16")
+    assert f.read_bytes()[:2] in (b"\xff\xfe", b"\xfe\xff")
+    assert import_file(lab, f).stored == 1
+
+
 def test_latin1_falls_back_with_a_note(lab, tmp_path):
     f = write(tmp_path / "l1.csv", HEADER + ",note\n"
               "C1,fill_volume,500.1,2026-11-03T08:15:00Z,Müllerau,L,e,café\n", encoding="latin-1")

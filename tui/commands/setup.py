@@ -154,7 +154,10 @@ def characteristic_show(name: str, db_path: Path) -> None:
 @store_errors
 def characteristic_edit(name: str, unit, resolution, lsl, target, usl, min_shift, plausible,
                         clear: tuple[str, ...], db_path: Path) -> None:
-    """Change the unit, resolution or limits of characteristic NAME."""
+    """Change a characteristic's unit, resolution or limits.
+
+    The resolution can change only while NAME has no stored values.
+    """
     changes: dict[str, object] = {}
     for key, value in (("unit", unit), ("resolution", resolution), ("lsl", lsl),
                        ("target", target), ("usl", usl), ("min_shift", min_shift)):

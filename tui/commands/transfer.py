@@ -14,6 +14,9 @@ from tui.commands.common import UserError, db_option, open_store, store_errors
 # import is not tiny): below it, storing takes well under a second.
 PROGRESS_MIN_VALUES = 20_000
 PROGRESS_MIN_VALUES_TTY = 2_000
+# A refusal lists this many problems in the message (store.errors.BadInput); beyond it the full
+# list goes to <file>.rejected.csv beside the input.
+LISTED_PROBLEMS = 50
 
 
 def _pairs(items: tuple[str, ...], option: str, left: str, right: str) -> dict[str, str]:
@@ -78,7 +81,8 @@ def import_command(file: str, fmt: str, layout: str, lot_column: str, time_colum
     """Import lot measurements from FILE (CSV or Parquet).
 
     All or nothing: if any row is bad, every bad row is listed (row, column, value, reason) and
-    nothing is stored, unless --skip-bad. Rows already in the store are skipped as exact
+    nothing is stored, unless --skip-bad. When there are more than 50 problems the full list is
+    also written to <file>.rejected.csv beside the input. Rows already in the store are skipped as exact
     duplicates, so importing the same file twice stores nothing new.
     """
     from store.importer import ImportOptions, parse_import, store_import, write_rejected
@@ -98,6 +102,8 @@ def import_command(file: str, fmt: str, layout: str, lot_column: str, time_colum
         decimal_comma=decimal_comma, delimiter=delimiter, round_values=round_values,
         skip_bad=skip_bad, by=by,
     )
+    from store import BadInput
+
     with open_store(db_path) as store:
         parsed = parse_import(
             Path(file), options,
@@ -105,19 +111,27 @@ def import_command(file: str, fmt: str, layout: str, lot_column: str, time_colum
             characteristics=[c.name for c in store.characteristics()],
         )
         total = sum(len(e.values) for e in parsed.entries)
-        if _show_progress(total) and not (parsed.problems and not skip_bad):
-            with click.progressbar(length=total, label=f"Storing {parsed.values_read:,} values",
-                                   file=sys.stderr) as bar:
-                done = [0]
+        try:
+            if _show_progress(total) and not (parsed.problems and not skip_bad):
+                with click.progressbar(length=total, label=f"Storing {total:,} values",
+                                       file=sys.stderr) as bar:
+                    done = [0]
 
-                def progress(n: int) -> None:
-                    bar.update(max(0, n - done[0]))
-                    done[0] = max(done[0], n)
+                    def progress(n: int) -> None:
+                        bar.update(max(0, n - done[0]))
+                        done[0] = max(done[0], n)
 
+                    summary = store_import(store, parsed, round_values=round_values,
+                                           skip_bad=skip_bad, progress=progress)
+            else:
                 summary = store_import(store, parsed, round_values=round_values,
-                                       skip_bad=skip_bad, progress=progress)
-        else:
-            summary = store_import(store, parsed, round_values=round_values, skip_bad=skip_bad)
+                                       skip_bad=skip_bad)
+        except BadInput as exc:
+            if len(exc.problems) > LISTED_PROBLEMS:
+                listing = write_rejected(parsed, exc.problems)
+                raise UserError(f"{exc}\nAll {len(exc.problems):,} problems are listed in "
+                                f"{listing}") from None
+            raise
     if skip_bad and summary.rejected:
         summary.rejected_file = write_rejected(parsed, summary.rejected)
 
