@@ -498,8 +498,10 @@ class Store:
 
     def tag_keys(self) -> list[str]:
         """Every tag key used by a stored lot, plus every factor."""
+        from store.queries import used_tag_keys
+
         with self._mapped():
-            used = {r[0] for r in self.conn.execute("SELECT DISTINCT key FROM lot_tags")}
+            used = set(used_tag_keys(self))
         return sorted(used | {f.name for f in self.factors()})
 
     def tag_values(self, key: str) -> list[str]:

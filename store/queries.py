@@ -41,11 +41,33 @@ def _ts(col: str) -> pl.Expr:
     return pl.col(col).str.to_datetime(_TS, time_zone="UTC", time_unit="us")
 
 
+# Distinct keys / values by hopping along the (key, value) index: one index seek per distinct
+# entry instead of a scan of every lot's tags (the "loose index scan" recursive CTE).
+_HOP_KEYS = """
+WITH RECURSIVE k(key) AS (
+    SELECT min(key) FROM lot_tags
+    UNION ALL
+    SELECT (SELECT min(key) FROM lot_tags WHERE key > k.key) FROM k WHERE k.key IS NOT NULL
+) SELECT key FROM k WHERE key IS NOT NULL
+"""
+_HOP_VALUES = """
+WITH RECURSIVE v(value) AS (
+    SELECT min(value) FROM lot_tags WHERE key = :key
+    UNION ALL
+    SELECT (SELECT min(value) FROM lot_tags WHERE key = :key AND value > v.value)
+    FROM v WHERE v.value IS NOT NULL
+) SELECT value FROM v WHERE value IS NOT NULL
+"""
+
+
+def used_tag_keys(store: Store) -> list[str]:
+    """Every tag key used by some lot, sorted."""
+    return [r[0] for r in store.conn.execute(_HOP_KEYS)]
+
+
 def tag_values(store: Store, key: str) -> list[str]:
     """Known values of a tag key, sorted (empty if the key is unused)."""
-    rows = store.conn.execute(
-        "SELECT DISTINCT value FROM lot_tags WHERE key = ? ORDER BY value", (key,)).fetchall()
-    return [r[0] for r in rows]
+    return [r[0] for r in store.conn.execute(_HOP_VALUES, {"key": key})]
 
 
 def bucket_frame(store: Store, *, characteristic: str | None = None, factor: str | None = None,
@@ -89,7 +111,8 @@ def values_frame(store: Store, characteristic: str, factor: str, *, since: date 
     """Current, non-voided values of one characteristic by the levels of one factor:
     measurement_id:i64, lot:str, level:str, measured_at:datetime[UTC], value:f64, units:i64,
     sorted by measured_at then id. ``last_n`` keeps the last N lots of each level (by the lot's
-    latest measured_at, then lot id)."""
+    latest measured_at; ties go to the newer measurement id). A lot counts for a level if it is
+    tagged with it; since/until apply before picking the last lots."""
     char = store.characteristic(characteristic)
     if factor not in store.tag_keys():
         raise NotFound(f"no factor or tag key named {factor!r} "
@@ -103,29 +126,108 @@ def values_frame(store: Store, characteristic: str, factor: str, *, since: date 
     if hi is not None:
         where.append("m.day <= ?")
         params.append(hi)
-    base = ("SELECT m.id AS id, l.lot_code AS lot, t.value AS level, m.measured_at AS at, "
-            "m.current_units AS units, m.lot_id AS lot_id FROM measurements m "
-            "JOIN lots l ON l.id = m.lot_id "
+    base = ("SELECT m.id, l.lot_code, t.value, m.measured_at, m.current_units "
+            "FROM measurements m JOIN lots l ON l.id = m.lot_id "
             "JOIN lot_tags t ON t.lot_id = m.lot_id AND t.key = ? "
             "WHERE " + " AND ".join(where))
     if last_n is not None:
         if int(last_n) < 1:
             raise BadInput([RowProblem("command line", None, "last", str(last_n),
                                        "the number of lots must be at least 1")])
-        sql = (f"WITH v AS ({base}), "
-               "w AS (SELECT v.*, max(at) OVER (PARTITION BY lot_id) AS lot_at FROM v), "
-               "r AS (SELECT w.*, dense_rank() OVER (PARTITION BY level "
-               "ORDER BY lot_at DESC, lot_id DESC) AS rk FROM w) "
-               "SELECT id, lot, level, at, units FROM r WHERE rk <= ? ORDER BY at, id")
-        params.append(int(last_n))
-    else:
-        sql = f"SELECT id, lot, level, at, units FROM ({base}) ORDER BY at, id"
+        lot_ids = _last_lots(store, char.id, factor, where[2:], params[2:], int(last_n))
+        if not lot_ids:
+            return _values_out(pl.DataFrame([], schema=VALUES_SCHEMA, orient="row"),
+                               char.resolution)
+        temp = "temp.lotwatch_pick"
+        store.conn.execute(f"CREATE TEMP TABLE IF NOT EXISTS {temp[5:]} (id INTEGER PRIMARY KEY)")
+        try:
+            store.conn.execute(f"DELETE FROM {temp}")
+            store.conn.executemany(f"INSERT INTO {temp}(id) VALUES (?)",
+                                   [(i,) for i in lot_ids])
+            # CROSS JOIN fixes the loop order: picked lots first, then their measurements.
+            sql = ("SELECT m.id, l.lot_code, t.value, m.measured_at, m.current_units "
+                   f"FROM {temp} p CROSS JOIN measurements m ON m.lot_id = p.id "
+                   "JOIN lots l ON l.id = m.lot_id "
+                   "JOIN lot_tags t ON t.lot_id = m.lot_id AND t.key = ? "
+                   "WHERE " + " AND ".join(where) + " ORDER BY m.measured_at, m.id")
+            rows = store.conn.execute(sql, params).fetchall()
+        finally:
+            store.conn.execute(f"DELETE FROM {temp}")
+        return _values_out(pl.DataFrame(rows, schema=VALUES_SCHEMA, orient="row"),
+                           char.resolution)
+    sql = base + " ORDER BY m.measured_at, m.id"
     rows = store.conn.execute(sql, params).fetchall()
-    frame = pl.DataFrame(rows, schema=VALUES_SCHEMA, orient="row")
+    return _values_out(pl.DataFrame(rows, schema=VALUES_SCHEMA, orient="row"), char.resolution)
+
+
+def _values_out(frame: pl.DataFrame, resolution: str) -> pl.DataFrame:
     return frame.select(
         "measurement_id", "lot", "level", _ts("measured_at").alias("measured_at"),
-        _float_values(frame["units"], char.resolution, "value"), "units",
+        _float_values(frame["units"], resolution, "value"), "units",
     )
+
+
+def _last_lots(store: Store, characteristic_id: int, factor: str, day_where: list[str],
+               day_params: list[object], n: int) -> list[int]:
+    """Ids of the last ``n`` lots of each level.
+
+    A lot's values for one characteristic share one measured_at, so each lot lies in one UTC
+    day. For a grouping factor the buckets say which days each level has and how many values
+    (>= lots) each holds: read just the newest days whose counts reach ``n``, widening (doubling)
+    if replicates leave fewer than ``n`` lots. Other tag keys walk the measurements newest first.
+    """
+    is_factor = store.conn.execute(
+        "SELECT 1 FROM factors WHERE name = ?", (factor,)).fetchone() is not None
+    if not is_factor:
+        return _last_lots_walk(store, characteristic_id, factor, day_where, day_params, n)
+    days: dict[str, list[tuple[str, int]]] = {}
+    for level, day, count in store.conn.execute(
+            "SELECT level, day, n FROM buckets b WHERE characteristic_id = ? AND factor = ?"
+            + "".join(" AND " + w.replace("m.day", "b.day") for w in day_where)
+            + " ORDER BY level, day DESC", [characteristic_id, factor, *day_params]):
+        days.setdefault(level, []).append((day, count))
+    sql = ("SELECT m.lot_id FROM measurements m "
+           "JOIN lot_tags t ON t.lot_id = m.lot_id AND t.key = ? AND t.value = ? "
+           "WHERE m.characteristic_id = ? AND m.voided = 0 AND m.day BETWEEN ? AND ? "
+           "ORDER BY m.measured_at DESC, m.id DESC")
+    picked: list[int] = []
+    for level, level_days in days.items():
+        need, k, acc = n, 0, 0
+        while True:
+            while k < len(level_days) and acc < need:
+                acc += level_days[k][1]
+                k += 1
+            lots = _distinct_first(store.conn.execute(
+                sql, (factor, level, characteristic_id, level_days[k - 1][0], level_days[0][0])), n)
+            if len(lots) >= n or k == len(level_days):
+                break
+            need *= 2
+        picked.extend(lots)
+    return picked
+
+
+def _distinct_first(cursor, n: int) -> list[int]:
+    seen: dict[int, None] = {}
+    for (lot_id,) in cursor:
+        seen.setdefault(lot_id)
+        if len(seen) == n:
+            break
+    cursor.close()
+    return list(seen)
+
+
+def _last_lots_walk(store: Store, characteristic_id: int, key: str, day_where: list[str],
+                    day_params: list[object], n: int) -> list[int]:
+    sql = ("SELECT m.lot_id FROM measurements m "
+           "JOIN lot_tags t ON t.lot_id = m.lot_id AND t.key = ? AND t.value = ? "
+           "WHERE m.characteristic_id = ? AND m.voided = 0"
+           + "".join(" AND " + w for w in day_where)
+           + " ORDER BY m.measured_at DESC, m.id DESC")
+    picked: list[int] = []
+    for level in tag_values(store, key):
+        picked.extend(_distinct_first(
+            store.conn.execute(sql, [key, level, characteristic_id, *day_params]), n))
+    return picked
 
 
 _MEAS_SCHEMA = {

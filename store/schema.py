@@ -84,6 +84,8 @@ CREATE TABLE measurements (
     UNIQUE (lot_id, characteristic_id, seq)
 ) STRICT;
 CREATE INDEX measurements_char_day ON measurements(characteristic_id, day);
+CREATE INDEX measurements_char_time ON measurements(characteristic_id, measured_at);
+CREATE INDEX measurements_lot ON measurements(lot_id);
 
 CREATE TABLE audit (
     id             INTEGER PRIMARY KEY,
