@@ -7,6 +7,8 @@ import math
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from scipy import stats as sps
 
 from stats.battery import run_battery
@@ -110,3 +112,22 @@ def test_bad_arguments_are_refused() -> None:
         run_battery(HANDBOOK, ["a", "a", "b"])
     with pytest.raises(ValueError, match="USL"):
         run_battery(HANDBOOK, ["a", "b", "c"], lsl=5, usl=1)
+
+
+VALUE = st.one_of(st.sampled_from([0.0, 1.0, 1.5, -2.0, 1e6, np.nan, np.inf, -np.inf]),
+                  st.floats(-100, 100, allow_nan=False).map(lambda x: round(x, 1)))
+
+
+@settings(max_examples=50, deadline=None)
+@given(st.lists(st.lists(VALUE, max_size=6), max_size=5), st.sampled_from([None, "0.1"]),
+       st.booleans())
+def test_battery_never_raises_on_awkward_data(groups, resolution, with_limits) -> None:
+    names = [f"g{i}" for i in range(len(groups))]
+    r = run_battery(groups, names, resolution=resolution, reference=names[0] if names else None,
+                    lsl=-50.0 if with_limits else None, usl=50.0 if with_limits else None,
+                    shift=1.0)
+    assert isinstance(r.status, str) and r.status
+    json.dumps(r.to_dict(), allow_nan=False)
+    assert all(len(line) <= 80 for line in render_battery(r).splitlines())
+    if r.status == "ok":
+        assert r.anova.f is not None and math.isfinite(r.anova.f) and 0 <= r.anova.p <= 1

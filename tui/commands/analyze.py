@@ -9,6 +9,7 @@ from __future__ import annotations
 import json
 import math
 from pathlib import Path
+from typing import Any
 
 import click
 
@@ -17,7 +18,8 @@ from tui.commands.common import UserError
 MAX_LISTED = 5
 
 
-def _read_frame(path: Path):  # -> pl.DataFrame
+def _read_frame(path: Path) -> tuple[Any, int]:
+    """The file as a polars frame, and the number of the first data row in messages."""
     import polars as pl
 
     if not path.exists():
