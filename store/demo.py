@@ -3,8 +3,9 @@
 The scenario is invented (no real company, place or person): a spring-water bottler with three
 plants (Hillside, Riverbend, Lakeshore) and eight filling lines (HS-1..3, RB-1..2, LS-1..3), each
 running three shifts (early 06-14, late 14-22, night 22-06; times are UTC). Every line fills one or
-two lots per shift per day for 26 weeks (182 days) ending on ``end`` (default: today, UTC). Each lot
-is measured on four characteristics:
+two lots per shift per day for 26 weeks (182 days) ending on ``end`` (default: the last day whose
+night shift is over, so no timestamp lies in the future). Each lot is measured on four
+characteristics:
 
 ================ ====== ========== ====== ====== ====== ========= ===========================
 characteristic   unit   resolution LSL    target USL    min shift values per lot, model
@@ -266,6 +267,12 @@ def _fill(store, seed: int, end: date) -> None:
     store.set_setting("demo_end", end.isoformat())
 
 
+def default_end(now: datetime | None = None) -> date:
+    """The last day whose night shift (22:00 to 06:00 the next day, UTC) has ended by ``now``."""
+    now = now or datetime.now(UTC)
+    return (now - timedelta(hours=SHIFT_HOURS - 2)).date() - timedelta(days=1)
+
+
 def _remove(path: Path) -> None:
     for p in (path, Path(f"{path}-wal"), Path(f"{path}-shm"), Path(f"{path}-journal")):
         try:
@@ -293,7 +300,7 @@ def build_demo_store(
     if target.exists() and not fresh:
         return target
     target.parent.mkdir(parents=True, exist_ok=True)
-    end = end or datetime.now(UTC).date()
+    end = end or default_end()
     building = target.with_name(target.name + ".building")
     _remove(building)
     store = Store.create(building)

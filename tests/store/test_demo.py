@@ -8,7 +8,7 @@ several standard errors wide; the data are fixed by the seed, so the checks are 
 
 from __future__ import annotations
 
-from datetime import date
+from datetime import UTC, date, datetime, timedelta
 
 import numpy as np
 import polars as pl
@@ -22,6 +22,7 @@ from store.demo import (
     DRIFT_PER_WEEK,
     DRIFT_START_DAY,
     build_demo_store,
+    default_end,
     demo_store_path,
     demo_summary,
 )
@@ -81,6 +82,16 @@ def test_built_once_then_reused_fresh_rebuilds(tmp_path):
     with Store.open(path, read_only=True) as s:
         assert s.get_setting("marker") is None
     assert not (tmp_path / "d.sqlite.building").exists()
+
+
+@pytest.mark.parametrize("now", ["2026-12-01T03:00:00+00:00", "2026-12-01T07:00:00+00:00",
+                                 "2026-12-01T23:59:00+00:00"])
+def test_default_end_puts_nothing_in_the_future(now):
+    now_dt = datetime.fromisoformat(now)
+    end = default_end(now_dt)
+    last_night_ends = datetime(end.year, end.month, end.day, 22, tzinfo=UTC) + timedelta(hours=8)
+    assert last_night_ends <= now_dt
+    assert (now_dt.date() - end).days <= 2  # and it ends near today
 
 
 def test_default_path_is_in_user_data_dir():
