@@ -242,17 +242,32 @@ def trend_series(tr: Any) -> TrendSeries:
     return TrendSeries(labels, levels, means, grand)
 
 
-def trend_table_text(tr: Any, *, per_table: int = 7) -> str:
-    """Each group's mean per window, window ends down the side, groups across (80 columns)."""
+def _decimals(resolution: str | None) -> int:
+    text = str(resolution or "1")
+    return len(text.split(".")[1]) if "." in text else 0
+
+
+def trend_table_text(tr: Any, *, per_table: int = 6) -> str:
+    """Each group's mean per window, window ends down the side, groups across (80 columns).
+
+    Means carry two more decimals than the characteristic's resolution."""
     ser = trend_series(tr)
+    dec = min(_decimals(getattr(tr.characteristic, "resolution", None)) + 2, 6)
+
+    def cell(x: float | None) -> str:
+        if x is None:
+            return f"{'-':>9}"
+        s = f"{x:.{dec}f}"
+        return f"{s if len(s) <= 9 else fit(x, 9):>9}"
+
     out = []
     for start in range(0, max(len(ser.levels), 1), per_table):
         levels = ser.levels[start:start + per_table]
-        out.append(f"{'window end':<10} " + " ".join(f"{clean_text(lv, 8):>8}" for lv in levels)
-                   + f" {'all':>8}")
+        out.append(f"{'window end':<10} " + " ".join(f"{clean_text(lv, 9):>9}" for lv in levels)
+                   + f" {'all':>9}")
         for i, lab in enumerate(ser.labels):
-            out.append(f"{lab:<10} " + " ".join(f"{fit(ser.means[lv][i], 8):>8}" for lv in levels)
-                       + f" {fit(ser.grand[i], 8):>8}")
+            out.append(f"{lab:<10} " + " ".join(cell(ser.means[lv][i]) for lv in levels)
+                       + f" {cell(ser.grand[i])}")
         out.append("")
     return "\n".join(out)
 

@@ -1,0 +1,166 @@
+"""`lotwatch review`, `report`, `trend` and `alerts` through click's test runner: exit codes,
+the JSON contract, 80-column text, and reports in both formats."""
+
+from __future__ import annotations
+
+import json
+import re
+import shutil
+from datetime import timedelta
+
+import pytest
+from click.testing import CliRunner
+
+from stats.monitor import CAUTION
+from store import LotEntry, Store
+from tui.cli import main
+
+
+def run(db, *args):
+    return CliRunner().invoke(main, ["--db", str(db), *args])
+
+
+@pytest.fixture()
+def quiet_store(demo_replay, tmp_path):
+    """The demo store as built (no review recorded yet)."""
+    p = tmp_path / "quiet.sqlite"
+    shutil.copy(demo_replay.pristine, p)
+    return p
+
+
+def test_review_exit_codes(demo_copy, demo_replay, quiet_store):
+    last = demo_replay.reviews[-1].as_of.isoformat()
+    early = (demo_replay.onset - timedelta(days=14)).isoformat()
+    # before the drift: nothing open, 0 even with --fail-on-alert
+    r = run(quiet_store, "review", "--as-of", early, "--fail-on-alert")
+    assert r.exit_code == 0, r.output
+    # the replayed store has the RB-2 alert open
+    r = run(demo_copy, "review", "--as-of", last)
+    assert r.exit_code == 0
+    r = run(demo_copy, "review", "--as-of", last, "--fail-on-alert")
+    assert r.exit_code == 1
+    # errors: bad week, both week and date, no store
+    assert run(demo_copy, "review", "--week", "2026-W60").exit_code == 2
+    assert run(demo_copy, "review", "--week", "2026-W48", "--as-of", last).exit_code == 2
+    r = run(demo_copy.parent / "missing.sqlite", "review")
+    assert r.exit_code == 2 and "no store" in r.output
+
+
+def test_review_text_fits_80_columns_and_states_family(demo_copy, demo_replay):
+    r = run(demo_copy, "review", "--as-of", demo_replay.reviews[-1].as_of.isoformat())
+    lines = r.output.splitlines()
+    assert max(len(line) for line in lines) <= 80
+    assert any(line.startswith("FDR family: 12 comparison(s)") for line in lines)
+    rows = [line for line in lines if line.startswith("fill_volume line")]
+    assert rows and rows[0].rstrip().endswith("OPEN")
+    assert CAUTION in " ".join(lines[-3:])
+
+
+def test_review_json_contract(demo_copy, demo_replay):
+    r = run(demo_copy, "review", "--as-of", demo_replay.reviews[-1].as_of.isoformat(),
+            "--format", "json", "--fdr", "by")
+    assert r.exit_code == 0
+    d = json.loads(r.output)
+    assert d["family"]["method"] == "by" and d["family"]["size"] == 12
+    assert "Yekutieli" in d["family"]["statement"]
+    qs = [c["q"] for c in d["comparisons"] if c["q"] is not None]
+    assert qs == sorted(qs)
+    first = d["comparisons"][0]
+    assert (first["characteristic"], first["factor"], first["largest_shift_group"]) == (
+        "fill_volume", "line", "RB-2")
+    for key in ("k", "n_total", "f", "p", "welch_f", "welch_p", "q", "omega_squared",
+                "largest_shift", "detectable_shift", "alert_state", "status", "excluded"):
+        assert key in first
+    assert d["open_alerts"] == 1 and d["caution"] == CAUTION
+
+
+def test_dry_run_records_nothing(quiet_store, demo_replay):
+    r = run(quiet_store, "review", "--as-of", demo_replay.reviews[-1].as_of.isoformat(),
+            "--dry-run", "--format", "json")
+    assert r.exit_code == 0
+    with Store.open(quiet_store, read_only=True) as s:
+        assert s.conn.execute("SELECT count(*) FROM alerts").fetchone()[0] == 0
+
+
+def test_markdown_review(demo_copy, demo_replay):
+    r = run(demo_copy, "review", "--as-of", demo_replay.reviews[-1].as_of.isoformat(),
+            "--format", "md")
+    assert r.exit_code == 0
+    assert "| fill\\_volume | line |" in r.output and "FDR family" in r.output  # _ escaped
+
+
+@pytest.mark.parametrize("suffix", ["md", "html"])
+def test_report_contains_each_alert_table(demo_copy, demo_replay, tmp_path, suffix):
+    out = tmp_path / f"week.{suffix}"
+    r = run(demo_copy, "report", "--as-of", demo_replay.reviews[-1].as_of.isoformat(),
+            "--out", str(out))
+    assert r.exit_code == 0, r.output
+    text = out.read_text(encoding="utf-8")
+    assert "ANOVA table" in text and "Between groups" in text
+    name = "fill_volume" if suffix == "html" else "fill\\_volume"  # Markdown escapes _
+    assert f"Alert 1: {name} by line" in text
+    assert "Games-Howell" in text and "Capability" in text
+    assert "FDR family: 12 comparison(s)" in text
+    assert CAUTION in text
+    if suffix == "html":
+        assert text.count("<svg") == 1
+        # opens offline: nothing fetched (no scripts, stylesheets or images from elsewhere)
+        assert not re.search(r"<script|<link|<img|@import|src=|url\((?!#)", text, re.I)
+        assert not re.search(r'href="https?:', text)
+    else:
+        assert "```text" in text and "RB-2" in text
+
+
+def test_report_escapes_user_text(tmp_path):
+    """A level named like markup is escaped in HTML (html.escape) and in Markdown."""
+    db = tmp_path / "s.sqlite"
+    s = Store.create(db)
+    s.add_characteristic("x", unit="g", resolution="0.1", min_shift=0.5)
+    entries = []
+    for d in range(28):
+        for i, line in enumerate(["<b>L1</b>", "L|2", "L3"]):
+            v = 10 + (2 if line == "L3" else 0) + 0.1 * ((d * 7 + i) % 5)
+            entries.append(LotEntry("x", [f"{v:.1f}"], {"site": "A", "line": line, "shift": "n"},
+                                    measured_at=f"2026-03-{1 + d:02d}T08:00:00Z"))
+    s.log_lots(entries)
+    s.close()
+    html_out, md_out = tmp_path / "r.html", tmp_path / "r.md"
+    assert run(db, "report", "--as-of", "2026-03-28", "--out", str(html_out)).exit_code == 0
+    assert run(db, "report", "--as-of", "2026-03-28", "--out", str(md_out)).exit_code == 0
+    h = html_out.read_text()
+    assert "&lt;b&gt;L1&lt;/b&gt;" in h and "<b>L1</b>" not in h
+    m = md_out.read_text()
+    assert "L\\|2" in m
+
+
+def test_report_refuses_bad_suffix(demo_copy, tmp_path):
+    r = run(demo_copy, "report", "--out", str(tmp_path / "r.pdf"))
+    assert r.exit_code == 2 and ".md or .html" in r.output
+
+
+def test_trend_table_and_chart(demo_copy, demo_replay):
+    r = run(demo_copy, "trend", "fill_volume", "--by", "line", "--as-of",
+            demo_replay.reviews[-1].as_of.isoformat(), "--windows", "10")
+    assert r.exit_code == 0, r.output
+    lines = r.output.splitlines()
+    assert max(len(line) for line in lines) <= 80
+    heads = [ln for ln in lines if ln.startswith("window end")]
+    assert "HS-1" in heads[0] and "RB-2" in heads[1]  # 8 lines: two tables of at most 6
+    assert len([ln for ln in lines if re.match(r"\d{4}-\d\d-\d\d ", ln)]) == 20
+    assert "\x1b[" not in r.output  # no colour codes
+    r = run(demo_copy, "trend", "fill_volume", "--by", "colour")
+    assert r.exit_code == 2 and "colour" in r.output
+    r = run(demo_copy, "trend", "nope", "--by", "line")
+    assert r.exit_code == 2
+
+
+def test_alerts_list_show_ack(demo_copy):
+    r = run(demo_copy, "alerts", "list", "--format", "json")
+    (a,) = json.loads(r.output)["alerts"]
+    assert a["state"] == "open" and a["groups"][0] == "RB-2"
+    r = run(demo_copy, "alerts", "ack", str(a["id"]), "--by", "qe-lee", "--note", "valve checked")
+    assert r.exit_code == 0
+    r = run(demo_copy, "alerts", "show", str(a["id"]))
+    assert "acknowledged by qe-lee" in r.output and "valve checked" in r.output
+    assert run(demo_copy, "alerts", "show", "999").exit_code == 2
+    assert run(demo_copy, "alerts", "list", "--state", "acknowledged").output.count("RB-2") == 1
