@@ -138,13 +138,14 @@ def import_command(file: str, fmt: str, layout: str, lot_column: str, time_colum
     for note in summary.notes:
         click.echo(f"Note: {note}")
     click.echo(f"Imported {summary.path.name} ({summary.layout} layout)")
-    click.echo(f"  rows read:                  {summary.rows_read:,}")
-    click.echo(f"  values read:                {summary.values_read:,}")
-    click.echo(f"  values stored:              {summary.stored:,}")
-    click.echo(f"  skipped as exact duplicates: {summary.duplicates:,}")
-    click.echo(f"  rejected rows:              {summary.rejected_rows:,}")
+    counts = [("rows read", summary.rows_read), ("values read", summary.values_read),
+              ("values stored", summary.stored),
+              ("skipped as exact duplicates", summary.duplicates),
+              ("rejected rows", summary.rejected_rows)]
     if summary.rounded:
-        click.echo(f"  values rounded:             {summary.rounded:,}")
+        counts.append(("values rounded", summary.rounded))
+    for label, n in counts:
+        click.echo(f"  {label + ':':<29}{n:,}")
     if summary.rejected:
         for p in summary.rejected[:20]:
             click.echo(f"    {p}")
