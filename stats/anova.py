@@ -80,7 +80,7 @@ def one_way_anova(samples: Sequence[Any], names: Sequence[str] | None = None, *,
                       "The data contain NaN or infinite values; no ANOVA was computed.")
     if resolution is not None:
         res = parse_resolution(resolution)
-        units = [to_units(a.tolist(), res, label=f"{lab}: ") for lab, a in kept]
+        units = [to_units(a, res, label=f"{lab}: ") for lab, a in kept]
         flat = sorted(u for g in units for u in g)
         origin = flat[(len(flat) - 1) // 2] if flat else 0
         sums = [int_sums(g, origin) for g in units]

@@ -231,3 +231,31 @@ def test_batches_vs_scipy_row_by_row() -> None:
         assert w.p[i] == pytest.approx(ref_w.pvalue, rel=REL, abs=1e-300)
         e = effect_sizes(one_way_anova(groups))
         assert b.omega_squared[i] == pytest.approx(e.omega_squared, rel=1e-9, abs=1e-12)
+
+
+@settings(max_examples=80, deadline=None)
+@given(st.sampled_from(["0.1", "0.01", "0.0001", "0.5", "0.02", "0.25", "5", "0.0000001"]),
+       st.lists(st.integers(-10**12, 10**12), min_size=1, max_size=30),
+       st.lists(st.floats(-1e6, 1e6, allow_nan=False), max_size=5))
+def test_unit_conversion_matches_python_decimal(res_text, ints, extra) -> None:
+    """The vectorised float-to-units shortcut agrees with Python's decimal module (the oracle)."""
+    from decimal import Decimal
+
+    from stats._numeric import parse_resolution, to_units
+
+    res = parse_resolution(res_text)
+    values = [float(Decimal(i) * res) for i in ints] + extra
+    arr = np.array(values)
+    expected, expected_error = [], None
+    for v in values:
+        q = Decimal(repr(v)) / res  # Python decimal: exact quotient of the shortest repr
+        r = q.to_integral_value()
+        if abs(q - r) > Decimal("1e-6"):
+            expected_error = v
+            break
+        expected.append(int(r))
+    if expected_error is None:
+        assert to_units(arr, res) == expected
+    else:
+        with pytest.raises(ValueError, match="not a multiple"):
+            to_units(arr, res)
