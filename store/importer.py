@@ -33,7 +33,7 @@ import io
 import math
 import re
 from collections.abc import Callable, Iterable
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from datetime import datetime
 from pathlib import Path
 from typing import Any
@@ -204,11 +204,37 @@ def read_frame(path: Path, options: ImportOptions, notes: list[str]):  # -> pl.D
             quote_char='"',
         )
     except Exception as exc:  # polars.exceptions.ComputeError and friends
+        ragged = _ragged_rows(path.name, text, delimiter)
+        if ragged:
+            raise BadInput(ragged) from None
         message = str(exc).split("\n", 1)[0]
         raise FileRefused(f"{path.name}: cannot be read as CSV ({message})") from None
     if frame.width == 0:
         raise FileRefused(f"{path.name}: no header row")
+    header = next(csv.reader(io.StringIO(first_line), delimiter=delimiter), [])
+    names = [h.strip() for h in header]
+    repeated = sorted({h for h in names if names.count(h) > 1})
+    if repeated:
+        raise FileRefused(f"{path.name}: the header names column(s) "
+                          f"{', '.join(repr(h) for h in repeated)} more than once")
+    if len(names) == frame.width:
+        frame = frame.rename(dict(zip(frame.columns, names, strict=True)))
     return frame
+
+
+def _ragged_rows(source: str, text: str, delimiter: str) -> list[RowProblem]:
+    """Every data row with more fields than the header (polars reports only the first)."""
+    reader = csv.reader(io.StringIO(text), delimiter=delimiter)
+    try:
+        width = len(next(reader))
+        return [
+            RowProblem(source, i, None, None,
+                       f"the row has {len(fields)} fields but the header has {width}")
+            for i, fields in enumerate(reader, start=1)
+            if len(fields) > width
+        ]
+    except (StopIteration, csv.Error):
+        return []
 
 
 def _parquet_as_text(frame):  # pl.DataFrame -> pl.DataFrame of String columns
@@ -273,6 +299,14 @@ def _stripped(name: str):  # -> pl.Expr
 # grouping rows into entries
 
 
+def _match(columns: list[str], name: str) -> str:
+    """``name`` if it is a column, else the one column equal to it ignoring case, else ``name``."""
+    if name in columns:
+        return name
+    folded = [c for c in columns if c.casefold() == name.casefold()]
+    return folded[0] if len(folded) == 1 else name
+
+
 def _require(path: Path, columns: list[str], name: str, option: str) -> None:
     if name not in columns:
         present = ", ".join(repr(c) for c in columns)
@@ -306,6 +340,16 @@ def parse_import(
     factors = list(factors)
     known_chars = set(characteristics)
 
+    # column names match exactly, else ignoring case ("Lot" for lot)
+    options = replace(
+        options,
+        lot_column=_match(columns, options.lot_column),
+        time_column=_match(columns, options.time_column),
+        value_column=_match(columns, options.value_column),
+        characteristic_column=_match(columns, options.characteristic_column),
+        note_column=_match(columns, options.note_column),
+        by_column=_match(columns, options.by_column),
+    )
     layout = options.layout
     if layout not in LAYOUTS:
         raise FileRefused(f"unknown layout {layout!r}; choose one of {', '.join(LAYOUTS)}")
@@ -313,7 +357,8 @@ def parse_import(
         layout = "long" if options.value_column in columns else "wide"
 
     _require(path, columns, options.lot_column, "--lot-column")
-    tag_cols: dict[str, str] = {f: f for f in factors if f in columns}
+    tag_cols: dict[str, str] = {f: _match(columns, f) for f in factors
+                                if _match(columns, f) in columns}
     for key, col in options.tag_columns.items():
         _require(path, columns, col, f"--tag-column {key}=COLUMN")
         tag_cols[key] = col

@@ -246,6 +246,33 @@ def test_unusable_files_are_refused_clearly(lab, tmp_path, content, words):
     assert dump(lab) == before
 
 
+def test_header_case_and_spaces_are_forgiven(lab, tmp_path):
+    f = write(tmp_path / "caps.csv", " Lot ,Characteristic,VALUE,Measured_At,Site,Line,Shift\n"
+              "A1,fill_volume,500.1,2026-11-03T08:15:00Z,S,L,e\n")
+    assert import_file(lab, f).stored == 1
+    assert stored(lab)[0][:3] == ("A1", "fill_volume", "500.1")
+
+
+def test_rows_with_too_many_fields_are_all_listed(lab, tmp_path):
+    f = write(tmp_path / "ragged.csv", HEADER + "\n"
+              "A1,fill_volume,500.1,2026-11-03T08:15:00Z,S,L,e\n"
+              "A2,fill_volume,500,1,2026-11-03T08:15:00Z,S,L,e\n"
+              "A3,fill_volume,500.1,2026-11-03T08:15:00Z,S,L,e\n"
+              "A4,fill_volume,499,9,2026-11-03T08:15:00Z,S,L,e\n")
+    before = dump(lab)
+    with pytest.raises(BadInput) as err:
+        import_file(lab, f)
+    assert [(p.source, p.row) for p in err.value.problems] == [("ragged.csv", 2), ("ragged.csv", 4)]
+    assert "8 fields but the header has 7" in err.value.problems[0].reason
+    assert dump(lab) == before
+
+
+def test_repeated_header_is_refused(lab, tmp_path):
+    f = write(tmp_path / "rep.csv", "lot,value,value\nA,1,2\n")
+    with pytest.raises(FileRefused, match="'value' more than once"):
+        import_file(lab, f)
+
+
 def test_missing_file(lab, tmp_path):
     with pytest.raises(FileRefused, match="no such file"):
         import_file(lab, tmp_path / "absent.csv")
