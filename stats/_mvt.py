@@ -185,12 +185,19 @@ def _dunnett_interpolant(lam: tuple[float, ...], mult: tuple[float, ...]) -> tup
     return coef, x_max
 
 
+@lru_cache(maxsize=256)
+def scalar_scale_nodes(df: float) -> tuple[np.ndarray, np.ndarray]:
+    """``scale_nodes`` for one finite df (cached): nodes s and weights, 1-D."""
+    s, ws = scale_nodes(np.array([df]), *_scale_rule(df))
+    return s[0], ws[0]
+
+
 def _studentize(coef: np.ndarray, x_max: float, c: np.ndarray, df: float) -> np.ndarray:
     """E_s[P_z(c·s)] with s = sqrt(chi2_df/df) (P_z itself when df is infinite)."""
     if not math.isfinite(df):
         return _eval_interpolant(coef, x_max, c)
-    s, ws = scale_nodes(np.array([df]), *_scale_rule(df))
-    return _eval_interpolant(coef, x_max, c[:, None] * s[0][None, :]) @ ws[0]
+    s, ws = scalar_scale_nodes(float(df))
+    return _eval_interpolant(coef, x_max, c[:, None] * s[None, :]) @ ws
 
 
 def dunnett_cdf(c: np.ndarray, lam: np.ndarray, df: float) -> np.ndarray:
@@ -220,8 +227,9 @@ def _anom_v_nodes(k_eff: float) -> tuple[np.ndarray, np.ndarray]:
     decays like v^{-k}; k = 3 needs the longest range.
     """
     v_hi = 80.0 if k_eff < 3.5 else (48.0 if k_eff < 4.5 else (32.0 if k_eff < 5.5 else 16.0))
-    panels = int(v_hi / 2.0)
-    return composite_nodes(0.0, v_hi, panels, 12)
+    # The error is set by the truncation at v_hi, not by the node density (measured: 12 nodes per
+    # 4 units are as accurate as 12 per 2 units).
+    return composite_nodes(0.0, v_hi, int(v_hi / 4.0), 12)
 
 
 def _anom_known_variance(h: np.ndarray, p: np.ndarray, mult: np.ndarray) -> np.ndarray:

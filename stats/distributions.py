@@ -72,27 +72,39 @@ def _range_cdf(w: np.ndarray, k: int, *, derivative: bool = False) -> np.ndarray
     return np.where(w <= 0.0, 0.0, np.where(w >= w_max, 1.0, out))
 
 
-def _ptukey_flat(q: np.ndarray, k: int, df: np.ndarray, *, derivative: bool = False) -> np.ndarray:
-    """CDF (or density) at 1-D arrays q, df of equal length; df may contain inf."""
+ScaleGroups = list[tuple[np.ndarray, np.ndarray, np.ndarray]]
+
+
+def _scale_groups(df: np.ndarray) -> ScaleGroups:
+    """Outer-integral nodes for the finite entries of ``df``, grouped by quadrature size:
+    a list of (index into df, nodes s, weights), one vectorised evaluation per group."""
+    fin = np.flatnonzero(np.isfinite(df))
+    if fin.size == 0:
+        return []
+    panels = _mvt.scale_panels(df[fin])
+    groups = []
+    for size in np.unique(panels):
+        idx = fin[panels == size]
+        s, ws = _mvt.scale_nodes(df[idx], int(size), 16)
+        groups.append((idx, s, ws))
+    return groups
+
+
+def _ptukey_flat(q: np.ndarray, k: int, df: np.ndarray, *, derivative: bool = False,
+                 groups: ScaleGroups | None = None) -> np.ndarray:
+    """CDF (or density) at 1-D arrays q, df of equal length; df may contain inf.
+
+    ``groups`` are precomputed ``_scale_groups(df)`` (root searches reuse them).
+    """
     out = np.empty_like(q)
     inf = ~np.isfinite(df)
     if inf.any():
         out[inf] = _range_cdf(q[inf], k, derivative=derivative)
-    fin = ~inf
-    if fin.any():
-        dfs = df[fin]
-        qs = q[fin]
-        res = np.empty_like(qs)
-        # Group by quadrature size so each group is one vectorised evaluation.
-        panels = _mvt.scale_panels(dfs)
-        for size in np.unique(panels):
-            sel = panels == size
-            s, ws = _mvt.scale_nodes(dfs[sel], int(size), 16)
-            vals = _range_cdf(qs[sel][:, None] * s, k, derivative=derivative)
-            if derivative:
-                vals = vals * s
-            res[sel] = np.sum(vals * ws, axis=1)
-        out[fin] = res
+    for idx, s, ws in (_scale_groups(df) if groups is None else groups):
+        vals = _range_cdf(q[idx][:, None] * s, k, derivative=derivative)
+        if derivative:
+            vals = vals * s
+        out[idx] = np.sum(vals * ws, axis=1)
     return out
 
 
@@ -134,11 +146,12 @@ def _newton(q: np.ndarray, p: np.ndarray, k: int, df: np.ndarray) -> np.ndarray:
     """Safeguarded Newton iteration for P(q; k, df) = p (bisection when a step leaves the bracket)."""
     lo = np.zeros_like(q)
     hi = np.full_like(q, np.inf)
+    groups = _scale_groups(df)
     for _ in range(100):
-        f = _ptukey_flat(q, k, df) - p
+        f = _ptukey_flat(q, k, df, groups=groups) - p
         if np.all(np.abs(f) < 1e-14):
             break
-        d = _ptukey_flat(q, k, df, derivative=True)
+        d = _ptukey_flat(q, k, df, derivative=True, groups=groups)
         lo = np.where(f < 0, np.maximum(lo, q), lo)
         hi = np.where(f > 0, np.minimum(hi, q), hi)
         with np.errstate(divide="ignore", invalid="ignore"):
