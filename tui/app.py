@@ -34,6 +34,7 @@ from tui.messages import (
     LotLogged,
     OverviewLoaded,
     ReviewComputed,
+    ReviewRecorded,
     StoreChanged,
     StoreTrouble,
     WriteFailed,
@@ -197,7 +198,12 @@ class LotwatchApp(App[None]):
         return self._generation.get(group) == generation
 
     def check_action(self, action: str, parameters: tuple[object, ...]) -> bool | None:
-        if action in _SCREEN_ACTIONS and isinstance(self.screen, ModalScreen):
+        screen = self.screen
+        if action in _SCREEN_ACTIONS and isinstance(screen, ModalScreen):
+            return False
+        # The key that opens the screen already shown is hidden there (room in the footer).
+        if (action, type(screen)) in (("review", ReviewScreen), ("alerts", AlertsScreen),
+                                      ("main", MainScreen)):
             return False
         return True
 
@@ -264,6 +270,19 @@ class LotwatchApp(App[None]):
         stored, duplicates, rounded, lot = data.log_draft(self.db_path, draft, self.user)
         self.post_message(LotLogged(LoggedLot(draft.characteristic, lot, stored, duplicates,
                                               rounded)))
+
+    @work(thread=True, exclusive=True, group="write-review", exit_on_error=False,
+          description="recording the review")
+    def _record_review(self, week: str | None) -> None:
+        opened, cleared, notes = data.record_review(self.db_path, week, self.user)
+        self.post_message(ReviewRecorded(opened, cleared, notes))
+
+    def record_review(self) -> None:
+        """Record the shown week's review (opens/clears alerts); refused when read-only."""
+        if self.read_only:
+            self.refuse_read_only("recording reviews")
+            return
+        self._record_review(self.review_week)
 
     @work(thread=True, group="write-ack", exit_on_error=False,
           description="recording the acknowledgement")
@@ -421,6 +440,16 @@ class LotwatchApp(App[None]):
             self.notify(f"Lot {lot} was already stored with these values; nothing new was "
                         "saved.", severity="warning", markup=False)
         self.refresh_all()
+
+    def on_review_recorded(self, message: ReviewRecorded) -> None:
+        text = (f"Review recorded: {message.opened} alert(s) opened, {message.cleared} "
+                "cleared.")
+        if message.notes:
+            text += " " + " ".join(clean(n, 200) for n in message.notes)
+        self.notify(text, markup=False, timeout=8)
+        self.refresh_all()
+        self.request_alerts()
+        self.request_review()
 
     def on_alert_acknowledged(self, message: AlertAcknowledged) -> None:
         if isinstance(self.screen, AcknowledgeScreen):
@@ -580,5 +609,7 @@ class LotwatchApp(App[None]):
                             self.cycle_window)
         yield SystemCommand("Next significance level", "alpha 0.05 / 0.01 / 0.10 (s)",
                             self.cycle_alpha)
+        yield SystemCommand("Record the review", "Open, hold or clear alerts as the weekly "
+                            "review decides (p on the review screen)", self.record_review)
         yield SystemCommand("Help", "Keys and what every number means (?)", self.action_help)
         yield from super().get_system_commands(screen)

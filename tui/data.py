@@ -27,6 +27,7 @@ if TYPE_CHECKING:
 ALERTING = "alerting"
 WATCHING = "watching"
 NOT_ENOUGH = "not enough data"
+ACTIVE = ("open", "acknowledged")  # alert states that still stand (not cleared)
 
 
 @dataclass(frozen=True)
@@ -79,6 +80,7 @@ class AlertEventRow:
     by: str | None
     note: str | None
     window: str | None
+    text: str | None = None  # the sentence the review wrote with the event
 
 
 @dataclass(frozen=True)
@@ -108,7 +110,7 @@ class Overview:
     tag_values: dict[str, list[str]]
     states: dict[str, str]  # characteristic -> ALERTING | WATCHING | NOT_ENOUGH
     comparison_states: dict[tuple[str, str], str]
-    open_alerts: list[AlertRow]
+    open_alerts: list[AlertRow]  # active: open or acknowledged
     window_label: str
     data_version: int
     window_kind: str = "trailing"  # the store's review.window setting
@@ -267,8 +269,11 @@ def _groups_text(groups: Any) -> str | None:
 
 
 def _event_row(e: Any) -> AlertEventRow:
+    details = _attr(e, "details") or {}
+    text = details.get("text") if isinstance(details, dict) else None
     return AlertEventRow(at=str(_attr(e, "at", "")), event=str(_attr(e, "event", "")),
-                         by=_attr(e, "by"), note=_attr(e, "note"), window=_attr(e, "window"))
+                         by=_attr(e, "by"), note=_attr(e, "note"), window=_attr(e, "window"),
+                         text=str(text) if text else None)
 
 
 def _comparison_row(c: Any, alert_ids: dict[tuple[str, str], int]) -> ComparisonRow:
@@ -306,7 +311,8 @@ def _sort_q(rows: list[ComparisonRow]) -> list[ComparisonRow]:
 def load_overview(path: Path, read_only: bool, *, week: str | None = None) -> Overview:
     """Characteristics and their state this window, factors, known tags and open alerts.
 
-    A characteristic is "alerting" when any of its comparisons has an open alert, "not enough
+    A characteristic is "alerting" when any of its comparisons has an active (open or
+    acknowledged, not yet cleared) alert, "not enough
     data" when none of its comparisons could be computed, else "watching". The review is run
     with ``persist=False``: looking never opens or clears alerts.
     """
@@ -320,10 +326,10 @@ def load_overview(path: Path, read_only: bool, *, week: str | None = None) -> Ov
         review = run_review(store, week=week, persist=False)
         version = store.data_version()
     window_kind = review.settings.window
-    open_alerts = [a for a in alerts if a.state == "open"]
+    open_alerts = [a for a in alerts if a.state in ACTIVE]
     comparison_states: dict[tuple[str, str], str] = {}
     for c in review.comparisons:
-        if c.alert_state == "open":
+        if c.alert_state in ACTIVE:
             st = ALERTING
         elif c.status != "ok":
             st = NOT_ENOUGH
@@ -462,6 +468,19 @@ def log_draft(path: Path, draft: EntryDraft, by: str) -> tuple[int, int, int, st
         outcome = store.log_lots([entry])
     lot = outcome.lots[0] if getattr(outcome, "lots", None) else draft.lot
     return outcome.stored, outcome.duplicates, outcome.rounded, lot
+
+
+def record_review(path: Path, week: str | None, by: str) -> tuple[int, int, list[str]]:
+    """Run the review with ``persist=True``: alert transitions are written (one transaction).
+
+    Returns (opened, cleared, notes); the engine refuses to change states with a review dated
+    before the latest recorded one and says so in the notes.
+    """
+    from tui.review_engine import run_review
+
+    with opened(path, False) as store:
+        result = run_review(store, week=week, persist=True, by=by)
+    return len(result.opened), len(result.cleared), list(result.notes)
 
 
 def acknowledge_alert(path: Path, alert_id: int, by: str, note: str) -> None:

@@ -99,6 +99,16 @@ class AlertAcknowledged(Message):
         self.by = by
 
 
+class ReviewRecorded(Message):
+    """A review was recorded: alerts were opened, held or cleared as it decided."""
+
+    def __init__(self, opened: int, cleared: int, notes: list[str]) -> None:
+        super().__init__()
+        self.opened = opened
+        self.cleared = cleared
+        self.notes = notes
+
+
 class WriteFailed(Message):
     """A write (log or acknowledge) failed; the form that asked for it stays open."""
 

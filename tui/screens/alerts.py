@@ -33,15 +33,25 @@ def matches(alert: AlertRow, text: str, state: str) -> bool:
     return text.casefold() in hay.casefold()
 
 
+def _local(stamp: str) -> str:
+    """A stored UTC stamp in local time, short ("12-01 23:24"); as stored if unreadable."""
+    from store.timeutil import format_local
+
+    try:
+        return format_local(stamp, "%m-%d %H:%M")
+    except ValueError:
+        return clean(stamp, 20)
+
+
 class AlertsScreen(Screen[None]):
     """Alerts table on top, the highlighted alert's history beneath."""
 
     BINDINGS = [
-        Binding("k", "acknowledge", "Acknowledge"),
-        Binding("o", "next_state", "State filter"),
+        Binding("k", "acknowledge", "Ack", tooltip="Acknowledge the alert with a note"),
+        Binding("o", "next_state", "State", tooltip="Show all, open, acknowledged, cleared"),
         Binding("slash", "filter", "Filter", key_display="/"),
         Binding("enter", "drill", "Open", show=False),
-        Binding("escape", "back", "Back", show=False),
+        Binding("escape", "back", "Back"),
     ]
 
     DEFAULT_CSS = """
@@ -119,15 +129,18 @@ class AlertsScreen(Screen[None]):
                 out.append(f", {clean(a.groups or '', 24)} {clean(a.direction, 10)}")
             for e in self.view.history.get(a.id, []):
                 out.append("\n")
-                out.append(f"{clean(e.at, 20)}  {clean(e.event, 12)}")
+                out.append(f"{_local(e.at)}  {clean(e.event, 12)}")
                 if e.window:
-                    out.append(f"  {clean(e.window, 16)}")
+                    out.append(f"  {clean(e.window, 26)}")
                 if e.by:
                     out.append("  by ")
                     out.append_text(literal(e.by, 24))
                 if e.note:
                     out.append(": ")
                     out.append_text(literal(e.note, 200))
+                if e.text:
+                    out.append("\n  ")
+                    out.append_text(literal(e.text, 300))
         self.query_one("#history", Static).update(out)
 
     @on(DataTable.RowHighlighted)

@@ -43,7 +43,8 @@ MEANINGS = [
      "test would detect with 80% power at these group sizes and this within-group SD. "
      "'Nothing significant' with a large detectable shift means 'not enough data to tell'."),
     ("States",
-     "alerting (!) = an open alert on some factor; watching = enough data and no open alert; "
+     "alerting (!) = an alert on some factor that has not cleared (open or acknowledged); "
+     "watching = enough data and no open alert; "
      "not enough data (·) = no comparison could be computed in the window."),
 ]
 

@@ -115,7 +115,7 @@ class MainScreen(Screen[None]):
         text.append(clean(v.characteristic or "no characteristic", 22), style="bold")
         text.append(" by ")
         text.append(clean(v.factor or "-", 10), style="bold")
-        text.append(f" · {clean(self.lw.window_text(), 22)} · alpha {v.alpha:g}")
+        text.append(f" · {clean(self.lw.window_text(), 30)} · alpha {v.alpha:g}")
         if self.lw.read_only:
             text.append(" · READ-ONLY", style="bold reverse")
         if note:
@@ -131,8 +131,10 @@ class MainScreen(Screen[None]):
                 "lotwatch characteristic add NAME --unit U --resolution R")
         head = self.query_one("#alerts-head", Static)
         n = len(overview.open_alerts)
-        head.update(Text(f"{n} open alert(s) in this store. Press a for every alert and "
-                         "its history, k there to acknowledge.", style="bold" if n else ""))
+        n_open = sum(1 for a in overview.open_alerts if a.state == "open")
+        head.update(Text(f"{n} active alert(s) in this store, {n_open} not yet acknowledged. "
+                         "Press a for every alert and its history, k there to acknowledge.",
+                         style="bold" if n_open else ""))
         self.query_one(AlertList).show(overview.open_alerts)
         self.refresh_status()
 

@@ -14,8 +14,9 @@ from textual.screen import Screen
 from textual.widgets import DataTable, Footer, Static
 
 from tui.data import ComparisonRow, ReviewView
-from tui.safe_text import clean, literal
+from tui.safe_text import clean
 from tui.widgets.caution import Caution
+from tui.widgets.compact import fill
 from tui.widgets.numbers import num, pval
 
 if TYPE_CHECKING:
@@ -27,10 +28,12 @@ class ReviewScreen(Screen[None]):
 
     BINDINGS = [
         Binding("enter", "drill", "Open", tooltip="Show this comparison in the main view"),
-        Binding("k", "acknowledge", "Acknowledge"),
+        Binding("k", "acknowledge", "Ack", tooltip="Acknowledge the comparison's alert"),
+        Binding("p", "record", "Record",
+                tooltip="Record this review: open, hold or clear alerts as it decides"),
         Binding("left_square_bracket", "week(-1)", "Earlier", key_display="["),
         Binding("right_square_bracket", "week(1)", "Later", key_display="]"),
-        Binding("escape", "back", "Back", show=False),
+        Binding("escape", "back", "Back"),
     ]
 
     DEFAULT_CSS = """
@@ -54,16 +57,6 @@ class ReviewScreen(Screen[None]):
 
     def on_mount(self) -> None:
         t = self.query_one(DataTable)
-        t.add_column("characteristic", key="characteristic")
-        t.add_column("factor", key="factor")
-        t.add_column(Text("k", justify="right"), key="k")
-        t.add_column(Text("n", justify="right"), key="n")
-        t.add_column(Text("F", justify="right"), key="f")
-        t.add_column(Text("p", justify="right"), key="p")
-        t.add_column(Text("q", justify="right"), key="q")
-        t.add_column(Text("ω²", justify="right"), key="omega")
-        t.add_column(Text("shift", justify="right"), key="shift")
-        t.add_column("alert", key="alert")
         t.focus()
         if self.lw.review is not None:
             self.show_review(self.lw.review)
@@ -77,24 +70,22 @@ class ReviewScreen(Screen[None]):
         head.append(f"Weekly review {clean(review.window_label, 30)}", style="bold")
         head.append(f": {review.family_size} comparisons, q = {review.fdr_method.upper()} "
                     f"false-discovery-adjusted p (level {review.fdr_level:g}). "
-                    "[ ] week · Enter open · k acknowledge")
+                    "[ ] week · Enter open · p record (opens/clears alerts) · k acknowledge")
         self.query_one("#review-head", Static).update(head)
         t = self.query_one(DataTable)
         keep = t.cursor_row
-        t.clear()
         self.rows = list(review.rows)
-        for i, r in enumerate(self.rows):
-            alert = r.alert_state or ("–" if r.status == "ok" else clean(r.status, 18))
-            t.add_row(
-                literal(r.characteristic, 18), literal(r.factor, 10),
-                Text(str(r.k), justify="right"), Text(str(r.n_total), justify="right"),
-                Text(num(r.f, 3), justify="right"), Text(pval(r.p), justify="right"),
-                Text(pval(r.q), justify="right", style="bold" if r.alert_state == "open" else ""),
-                Text(num(r.omega_squared, 2), justify="right"),
-                Text(num(r.largest_shift, 3), justify="right"),
-                Text(alert, style="bold reverse" if r.alert_state == "open" else ""),
-                key=str(i),
-            )
+        headers = ["characteristic", "factor", "k", "n", "F", "p", "q", "ω²", "shift", "alert"]
+        right = [False, False, True, True, True, True, True, True, True, False]
+        rows, styles = [], []
+        for r in self.rows:
+            alert = r.alert_state or ("–" if r.status == "ok" else r.status)
+            rows.append([clean(r.characteristic, 16), clean(r.factor, 8), str(r.k),
+                         str(r.n_total), num(r.f, 3), pval(r.p), pval(r.q),
+                         num(r.omega_squared, 2), num(r.largest_shift, 3), clean(alert, 15)])
+            hot = r.alert_state == "open"
+            styles.append(["bold" if hot else ""] * 9 + ["bold reverse" if hot else ""])
+        fill(t, headers, right, rows, keys=[str(i) for i in range(len(rows))], styles=styles)
         if self.rows:
             t.move_cursor(row=min(keep, len(self.rows) - 1))
 
@@ -117,10 +108,13 @@ class ReviewScreen(Screen[None]):
         row = self._current()
         if row is None:
             return
-        if row.alert_id is None:
-            self.app.notify("This comparison has no alert to acknowledge.", markup=False)
+        if row.alert_id is None or row.alert_state not in ("open", "acknowledged"):
+            self.app.notify("This comparison has no open alert to acknowledge.", markup=False)
             return
         self.lw.open_acknowledge(row.alert_id)
+
+    def action_record(self) -> None:
+        self.lw.record_review()
 
     def action_week(self, step: int) -> None:
         self.lw.shift_review_week(step)

@@ -2,12 +2,15 @@
 
 from __future__ import annotations
 
-from rich.text import Text
 from textual.widgets import DataTable
 
 from tui.data import AlertRow
-from tui.safe_text import literal
+from tui.safe_text import clean
+from tui.widgets.compact import fill
 from tui.widgets.numbers import num, pval
+
+HEADERS = ["#", "state", "characteristic", "factor", "groups", "shift", "q", "opened in"]
+RIGHT = [True, False, False, False, False, True, True, False]
 
 
 class AlertList(DataTable):
@@ -20,29 +23,19 @@ class AlertList(DataTable):
     def on_mount(self) -> None:
         self.cursor_type = "row"
         self.zebra_stripes = True
-        self.add_column("#", key="id")
-        self.add_column("state", key="state")
-        self.add_column("characteristic", key="characteristic")
-        self.add_column("factor", key="factor")
-        self.add_column("groups", key="groups")
-        self.add_column(Text("shift", justify="right"), key="size")
-        self.add_column(Text("q", justify="right"), key="q")
-        self.add_column("opened", key="opened")
+        fill(self, HEADERS, RIGHT, [])
 
     def show(self, alerts: list[AlertRow]) -> None:
         keep = self.cursor_row
-        self.clear()
+        rows, styles = [], []
         for a in alerts:
-            state = Text(a.state, style="bold reverse" if a.state == "open" else "")
-            self.add_row(
-                Text(str(a.id), justify="right"), state, literal(a.characteristic, 18),
-                literal(a.factor, 10), literal(a.groups or "", 14),
-                Text(num(a.size, 3), justify="right"), Text(pval(a.q), justify="right"),
-                literal((a.opened_window or a.opened_at or "")[:16], 16),
-                key=str(a.id),
-            )
+            rows.append([str(a.id), clean(a.state, 12), clean(a.characteristic, 16),
+                         clean(a.factor, 8), clean(a.groups or "", 12), num(a.size, 3),
+                         pval(a.q), clean(a.opened_window or a.opened_at or "", 22)])
+            styles.append(["", "bold reverse" if a.state == "open" else ""] + [""] * 6)
+        fill(self, HEADERS, RIGHT, rows, keys=[str(a.id) for a in alerts], styles=styles)
         if alerts:
-            self.move_cursor(row=min(keep, len(alerts) - 1))
+            self.move_cursor(row=min(max(keep, 0), len(alerts) - 1))
 
     @property
     def selected_id(self) -> int | None:

@@ -2,12 +2,11 @@
 
 from __future__ import annotations
 
-from rich.cells import cell_len
-from rich.text import Text
 from textual.widgets import DataTable
 
 from tui.data import DetailView
 from tui.safe_text import clean
+from tui.widgets.compact import fill
 from tui.widgets.numbers import MISSING, decimals_of, fixed, num
 
 ANOM_MARK = {"above": "high", "below": "low", "within": "–"}
@@ -15,11 +14,7 @@ GROUP_WIDTH = 10
 
 
 class GroupTable(DataTable):
-    """One row per group of the latest window (excluded groups are listed on the Tests tab).
-
-    Cell padding is off (every column counts at 80 columns); each column is as wide as its
-    widest cell plus one space, numbers right-aligned.
-    """
+    """One row per group of the latest window (excluded groups are listed on the Tests tab)."""
 
     DEFAULT_CSS = """
     GroupTable { height: auto; max-height: 1fr; }
@@ -28,7 +23,6 @@ class GroupTable(DataTable):
     def on_mount(self) -> None:
         self.cursor_type = "row"
         self.zebra_stripes = True
-        self.cell_padding = 0
 
     def show(self, detail: DetailView) -> None:
         b = detail.battery
@@ -42,30 +36,20 @@ class GroupTable(DataTable):
             headers.append("Cpk")
             right.append(True)
         rows: list[list[str]] = []
+        styles: list[list[str]] = []
         for g in b.groups:
             ci = (f"{fixed(g.ci_low, dec)}..{fixed(g.ci_high, dec)}"
                   if g.ci_low is not None and g.ci_high is not None else MISSING)
             diff = g.diff_from_others
+            flag = anom.get(g.name, "")
             row = [clean(g.name, GROUP_WIDTH - 1), str(g.n), fixed(g.mean, dec),
                    fixed(g.sd, dec), ci, MISSING if diff is None else f"{diff:+.{dec}f}",
-                   ANOM_MARK.get(anom.get(g.name, ""), MISSING)]
+                   ANOM_MARK.get(flag, MISSING)]
             if b.capability:
                 row.append(num(cpk.get(g.name), 3))
             rows.append(row)
-        widths = [max([cell_len(h)] + [cell_len(r[i]) for r in rows]) + 1
-                  for i, h in enumerate(headers)]
-        self.clear(columns=True)
-        for i, h in enumerate(headers):
-            self.add_column(_cell(h, right[i], first=i == 0), key=h, width=widths[i])
-        for g, row in zip(b.groups, rows, strict=True):
-            flagged = anom.get(g.name) in ("above", "below")
-            cells = [_cell(v, right[i], first=i == 0, bold=flagged and i == 6)
-                     for i, v in enumerate(row)]
-            self.add_row(*cells, key=g.name)
-
-
-def _cell(value: str, right: bool, *, first: bool = False, bold: bool = False) -> Text:
-    """A cell with one space before it (the first column: after it) to separate columns."""
-    text = f"{value} " if first else f" {value}"
-    return Text(text, justify="right" if right else "left", style="bold" if bold else "",
-                no_wrap=True)
+            st = [""] * len(row)
+            if flag in ("above", "below"):
+                st[6] = "bold"
+            styles.append(st)
+        fill(self, headers, right, rows, keys=[g.name for g in b.groups], styles=styles)
