@@ -63,6 +63,8 @@ def power_analysis(ns: Sequence[int], sd_within: float | None, *, alpha: float =
                    shift: float | None = None) -> PowerResult:
     """Power now at ``shift``, lots per group needed for 80%/90% power at ``shift``, and the
     smallest shift detected with 80% power at the current group sizes (in the data's units)."""
+    if shift is not None and not (math.isfinite(shift) and shift != 0):
+        raise ValueError(f"shift must be a non-zero finite number, got {shift!r}")
     sizes = [int(n) for n in ns if n > 0]
     k = len(sizes)
     n_total = sum(sizes)

@@ -101,6 +101,11 @@ def test_detectable_shift_has_80_percent_power() -> None:
     assert again.power_at_shift == pytest.approx(0.80, abs=1e-9)
 
 
+def test_zero_shift_refused() -> None:
+    with pytest.raises(ValueError, match="non-zero"):
+        power_analysis([5, 5], 1.0, shift=0.0)
+
+
 def test_bissell_cpk_interval() -> None:
     # Bissell (1990) approximation: Cpk ± z·√(1/(9n) + Cpk²/(2(n−1))); n = 50, σ known here
     x = np.linspace(-1, 1, 50) + 10.0
