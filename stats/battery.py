@@ -93,7 +93,8 @@ def run_battery(samples: Sequence[Any], names: Sequence[str], *, alpha: float = 
         raise ValueError(f"dunn_adjust must be one of {', '.join(DUNN_ADJUST)}, "
                          f"got {dunn_adjust!r}")
     if shift is not None and not (math.isfinite(shift) and shift != 0):
-        raise ValueError(f"shift must be a non-zero finite number, got {shift!r}")
+        notes.append(f"Shift {shift!r} ignored for power: it must be a non-zero number.")
+        shift = None
     if len(samples) != len(names):
         raise ValueError(f"{len(samples)} samples but {len(names)} names")
     if lsl is not None and usl is not None and not usl > lsl:

@@ -105,6 +105,12 @@ def test_reference_not_present_is_noted() -> None:
     assert r.dunnett is None and any("zzz" in n for n in r.notes)
 
 
+def test_zero_shift_is_ignored_with_note() -> None:
+    r = run_battery(HANDBOOK, ["a", "b", "c"], shift=0.0)
+    assert r.power.shift is None and r.power.detectable_shift_80 is not None
+    assert any("ignored" in n for n in r.notes)
+
+
 def test_bad_arguments_are_refused() -> None:
     with pytest.raises(ValueError, match="names"):
         run_battery(HANDBOOK, ["a", "b"])
