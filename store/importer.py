@@ -22,6 +22,10 @@ Timestamps are ISO 8601 (``2026-11-03T08:15:00Z``, ``2026-11-03 08:15``, ``2026-
 timestamp without a UTC offset is read as local time of this computer (the usual convention of lab
 exports), then converted to UTC; so is a Parquet timestamp column without a time zone.
 
+A CSV text cell starting with a single quote followed by ``=``, ``+``, ``-``, ``@``, tab or CR
+loses the quote: that is how ``lotwatch export`` neutralises formulas, so an export imports back
+unchanged.
+
 Encodings: UTF-8 with or without a byte order mark, UTF-16 with a byte order mark; a file that is
 not valid UTF-8 is read as Latin-1 and the summary says so.
 """
@@ -46,6 +50,7 @@ LAYOUTS = ("auto", "long", "wide")
 # Plain decimal text, optionally with an exponent; no thousands separators.
 _NUMBER = re.compile(r"^[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?$")
 _DECIMAL_COMMA = re.compile(r"^[+-]?\d*,\d+$")
+_NEUTRALISED = r"^'([=+\-@\t\r])"
 _SLASH_DATE = re.compile(r"^(\d{4})/(\d{1,2})/(\d{1,2})")
 
 
@@ -219,7 +224,8 @@ def read_frame(path: Path, options: ImportOptions, notes: list[str]):  # -> pl.D
                           f"{', '.join(repr(h) for h in repeated)} more than once")
     if len(names) == frame.width:
         frame = frame.rename(dict(zip(frame.columns, names, strict=True)))
-    return frame
+    # undo the formula neutralisation of lotwatch's CSV export ("'=x" -> "=x"; store.export)
+    return frame.with_columns(pl.col(c).str.replace(_NEUTRALISED, "$1") for c in frame.columns)
 
 
 def _ragged_rows(source: str, text: str, delimiter: str) -> list[RowProblem]:

@@ -121,12 +121,16 @@ def test_csv_reimport_into_same_store_stores_nothing(tmp_path):
     try:
         s.add_characteristic("fill_volume", unit="mL", resolution="0.1", plausible=(400, 600))
         s.log_lots([LotEntry("fill_volume", ["500.1", "499.9"], {"site": "N", "line": "1",
-                                                                 "shift": "d"}, lot="A")])
+                                                                 "shift": "d"}, lot="A"),
+                    LotEntry("fill_volume", ["500.0"], {"site": "@N", "line": "-1",
+                                                        "shift": "d"}, lot="=B")])
         target = tmp_path / "e.csv"
         write_export(s, out=target)
+        assert "'=B" in target.read_text()  # neutralised in the file ...
         before = list(s.conn.iterdump())
         summary = import_file(s, target)
-        assert (summary.stored, summary.duplicates) == (0, 2)
+        # ... and read back as the same lot with the same tags: nothing new
+        assert (summary.stored, summary.duplicates, summary.rejected) == (0, 3, [])
         assert list(s.conn.iterdump()) == before
     finally:
         s.close()
