@@ -282,7 +282,8 @@ def bucket_cube(buckets: pl.DataFrame, comparisons: Sequence[Comparison], *, fir
     """Lay a bucket frame (characteristic, factor, level, day, n, sum_d, sum_d2) out as dense
     day-wise cumulative sums for the given comparisons over [first_day, last_day].
 
-    Rows of other comparisons or outside the day range are ignored.
+    The frame holds at most one row per characteristic, factor, level and day (the store's
+    primary key). Rows of other comparisons or outside the day range are ignored.
     """
     comps = list(comparisons)
     ndays = (last_day - first_day).days + 1
@@ -310,9 +311,11 @@ def bucket_cube(buckets: pl.DataFrame, comparisons: Sequence[Comparison], *, fir
         ci = b["c"].to_numpy()
         gi = b["g"].to_numpy()
         t = (b["day"].cast(pl.Int32).to_numpy() - _epoch_day(first_day)) + 1
-        np.add.at(cum_n, (ci, gi, t), b["n"].to_numpy())
-        np.add.at(cum_s1, (ci, gi, t), b["sum_d"].to_numpy())
-        np.add.at(cum_s2, (ci, gi, t), b["sum_d2"].to_numpy())
+        # one bucket per (comparison, level, day), as the store's primary key guarantees:
+        # plain assignment, no accumulation needed
+        cum_n[ci, gi, t] = b["n"].to_numpy()
+        cum_s1[ci, gi, t] = b["sum_d"].to_numpy()
+        cum_s2[ci, gi, t] = b["sum_d2"].to_numpy()
         np.cumsum(cum_n, axis=2, out=cum_n)
         np.cumsum(cum_s1, axis=2, out=cum_s1)
         np.cumsum(cum_s2, axis=2, out=cum_s2)

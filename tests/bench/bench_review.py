@@ -1,0 +1,277 @@
+"""Review engine speed: all rolling windows of a large store from bucket sums, against a
+straightforward pandas + scipy baseline measured in the same run.
+
+Run: cd /work/main && /work/venv/bin/python tests/bench/bench_review.py [--quick] [--ten-million]
+
+Synthetic store (fixed seed): 20 characteristics, 12 sites (two lines each), 3 shifts, 2 years
+ending 2026-11-29; 1,000,000 measurements (one lot = one value of each characteristic). To build
+it in seconds the script writes lots, tags, measurements and the per-day buckets directly with
+``executemany`` inside one ``store.write()`` transaction (the same tables and the same bucket
+definition ``log_lots`` maintains, but no audit rows), instead of going through ``log_lots``.
+
+Measured (medians over repeats; CPU time is shared, so expect noise):
+
+* baseline: load measurements with their site and shift tags into pandas (``pandas.read_sql``),
+  then for each of 52 weekly 4-week windows × 20 characteristics × 2 factors (site, shift) select
+  the rows by boolean mask and call ``scipy.stats.f_oneway``;
+* review: ``bucket_frame`` → day-wise cumulative sums → ANOVA, Welch, Bartlett, eta²/omega²,
+  largest shift for the same 52 windows × every characteristic × every factor (site, line and
+  shift: 60 comparisons, a superset of the baseline's 40), then BH per window; F and p of the 40
+  shared comparisons are checked against the baseline to 1e-9 relative;
+* run_review: the latest weekly review (3 windows, detectable shifts, ANOM, alert decisions;
+  not recorded);
+* incremental: after one lot (20 values) is logged, the latest window for all 60 comparisons
+  recomputed from the stored aggregates (``LatestWindow.refresh_day``);
+* memory: tracemalloc peak of one full review (a separate, untimed pass);
+* ``--ten-million``: the same on 10,000,000 measurements, review cost relative to 1M (this build
+  takes several minutes and ~2 GB of disk, hence optional).
+
+The last line is ``speed-up: N.Nx over the straightforward baseline`` (baseline median / review
+median).
+"""
+
+from __future__ import annotations
+
+import argparse
+import statistics
+import sys
+import tempfile
+import time
+import tracemalloc
+from datetime import date, timedelta
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parents[2]
+sys.path.insert(0, str(ROOT))
+
+import numpy as np  # noqa: E402
+import polars as pl  # noqa: E402
+
+from stats import monitor as mon  # noqa: E402
+from store import LotEntry, Store  # noqa: E402
+from tui import review_engine as eng  # noqa: E402
+
+END = date(2026, 11, 29)
+DAYS = 730
+N_CHARS = 20
+SITES = [f"site{i:02d}" for i in range(12)]
+SHIFTS = ["early", "late", "night"]
+WINDOWS = 52
+SEED = 20_261_129
+
+
+def build_store(path: Path, n_measurements: int, seed: int = SEED) -> Store:
+    """Create the synthetic store at ``path`` (see the module docstring)."""
+    rng = np.random.default_rng(seed)
+    store = Store.create(path)
+    chars = []
+    for i in range(N_CHARS):
+        res = "0.1" if i % 2 == 0 else "0.01"
+        target = 100.0 + 10 * i
+        sd = 1.0 if res == "0.1" else 0.15
+        store.add_characteristic(f"c{i:02d}", unit="u", resolution=res, target=target,
+                                 lsl=target - 6 * sd, usl=target + 6 * sd)
+        chars.append((store.characteristic(f"c{i:02d}"), sd))
+    n_lots = n_measurements // N_CHARS
+    site = rng.integers(0, len(SITES), n_lots)
+    line = rng.integers(0, 2, n_lots)
+    shift = rng.integers(0, len(SHIFTS), n_lots)
+    start = END - timedelta(days=DAYS - 1)
+    day_idx = rng.integers(0, DAYS, n_lots)
+    secs = rng.integers(0, 86400, n_lots)
+    days = [start + timedelta(days=int(d)) for d in range(DAYS)]
+    day_txt = [d.isoformat() for d in days]
+    stamps = [f"{day_txt[d]}T{s // 3600:02d}:{s % 3600 // 60:02d}:{s % 60:02d}Z"
+              for d, s in zip(day_idx.tolist(), secs.tolist(), strict=True)]
+    site_effect = rng.normal(0, 0.1, (N_CHARS, len(SITES)))
+    conn = store.conn
+    with store.write():
+        conn.executemany("INSERT INTO lots(id, lot_code, created_at) VALUES (?, ?, ?)",
+                         ((i + 1, f"B{i:08d}", stamps[i]) for i in range(n_lots)))
+        tags = []
+        for i in range(n_lots):
+            s = SITES[site[i]]
+            tags += [(i + 1, "site", s), (i + 1, "line", f"{s}-L{line[i] + 1}"),
+                     (i + 1, "shift", SHIFTS[shift[i]])]
+        conn.executemany("INSERT INTO lot_tags(lot_id, key, value) VALUES (?, ?, ?)", tags)
+        del tags
+        frames = []
+        mid = 0
+        for c, (ch, sd) in enumerate(chars):
+            mean = ch.target + site_effect[c, site] * sd
+            units = np.round((mean + rng.normal(0, sd, n_lots)) / ch.resolution_value).astype(np.int64)
+            ids = np.arange(mid + 1, mid + n_lots + 1)
+            mid += n_lots
+            conn.executemany(
+                "INSERT INTO measurements(id, lot_id, characteristic_id, seq, original_units, "
+                "current_units, voided, measured_at, day, logged_at, logged_by, note, source) "
+                "VALUES (?, ?, ?, 0, ?, ?, 0, ?, ?, ?, 'bench', NULL, 'bench')",
+                ((int(ids[i]), i + 1, ch.id, int(units[i]), int(units[i]), stamps[i],
+                  day_txt[day_idx[i]], stamps[i]) for i in range(n_lots)))
+            d = units - ch.origin_units
+            frames.append(pl.DataFrame({
+                "characteristic_id": np.full(n_lots, ch.id), "day": day_idx, "d": d,
+                "site": site, "line": site * 2 + line, "shift": shift}))
+        allm = pl.concat(frames)
+        for factor, names in (("site", SITES), ("line", [f"{s}-L{j + 1}" for s in SITES
+                                                         for j in range(2)]), ("shift", SHIFTS)):
+            b = (allm.group_by("characteristic_id", factor, "day")
+                 .agg(pl.len().alias("n"), pl.col("d").sum().alias("s1"),
+                      (pl.col("d") * pl.col("d")).sum().alias("s2")))
+            conn.executemany(
+                "INSERT INTO buckets(characteristic_id, factor, level, day, n, sum_d, sum_d2) "
+                "VALUES (?, ?, ?, ?, ?, ?, ?)",
+                ((cid, factor, names[lv], day_txt[dd], n, s1, s2)
+                 for cid, lv, dd, n, s1, s2 in b.iter_rows()))
+    conn.execute("ANALYZE")
+    return store
+
+
+# ---------------------------------------------------------------- the two sides
+
+
+def window_plan() -> tuple[mon.ReviewSettings, list[mon.Window]]:
+    cfg = mon.ReviewSettings(min_n=2)  # f_oneway uses every group with data
+    return cfg, mon.window_plan(END, cfg, WINDOWS)
+
+
+def baseline(path: Path) -> dict[tuple[str, str, int], tuple[float, float]]:
+    """The straightforward route: everything into pandas, one mask + f_oneway per test."""
+    import sqlite3
+
+    import pandas as pd
+    from scipy.stats import f_oneway
+
+    conn = sqlite3.connect(path)
+    df = pd.read_sql(
+        "SELECT c.name AS characteristic, m.current_units * CAST(c.resolution AS REAL) AS value, "
+        "m.day AS day, ts.value AS site, th.value AS shift FROM measurements m "
+        "JOIN characteristics c ON c.id = m.characteristic_id "
+        "JOIN lot_tags ts ON ts.lot_id = m.lot_id AND ts.key = 'site' "
+        "JOIN lot_tags th ON th.lot_id = m.lot_id AND th.key = 'shift' WHERE m.voided = 0",
+        conn)
+    conn.close()
+    df["day"] = pd.to_datetime(df["day"])
+    _, wins = window_plan()
+    out = {}
+    for w, win in enumerate(wins):
+        lo, hi = pd.Timestamp(win.start), pd.Timestamp(win.end)
+        for ch in sorted(df["characteristic"].unique()):
+            for factor in ("site", "shift"):
+                sub = df[(df["characteristic"] == ch) & (df["day"] >= lo) & (df["day"] <= hi)]
+                groups = [g["value"].to_numpy() for _, g in sub.groupby(factor)]
+                r = f_oneway(*groups)
+                out[(ch, factor, w)] = (float(r.statistic), float(r.pvalue))
+    return out
+
+
+def full_review(store: Store) -> tuple[mon.WindowStats, np.ndarray]:
+    """Every window × comparison from bucket sums: ANOVA, Welch, Bartlett, effect sizes, largest
+    shift, then BH per window."""
+    cfg, wins = window_plan()
+    comps, _ = eng.comparisons_of(store)
+    ws = eng.compute_windows(store, comps, wins, cfg)
+    q, _ = mon.family_fdr(ws.p_used, "bh")
+    return ws, q
+
+
+def check_same(ws: mon.WindowStats, ref: dict) -> float:
+    """Largest relative difference of F and p between the review and the baseline."""
+    index = {(c.characteristic, c.factor): i for i, c in enumerate(ws.sums.comparisons)}
+    worst = 0.0
+    for (ch, factor, w), (f, p) in ref.items():
+        c = index[(ch, factor)]
+        for mine, theirs in ((ws.f[w, c], f), (ws.p[w, c], p)):
+            rel = abs(mine - theirs) / max(abs(theirs), 1e-300)
+            worst = max(worst, rel)
+    return worst
+
+
+def timed(fn, repeats: int) -> tuple[float, object]:
+    times, result = [], None
+    for _ in range(repeats):
+        t0 = time.perf_counter()
+        result = fn()
+        times.append(time.perf_counter() - t0)
+    return statistics.median(times), result
+
+
+def incremental(store: Store, repeats: int) -> tuple[float, float]:
+    """Median seconds to bring the latest window current after one lot is logged, and the
+    largest relative F difference from a full recompute afterwards."""
+    live = eng.LatestWindow(store, as_of=END)
+    times = []
+    for i in range(repeats):
+        at = f"{END.isoformat()}T{10 + i % 10:02d}:{i % 60:02d}:00Z"
+        tags = {"site": SITES[i % 12], "line": f"{SITES[i % 12]}-L1", "shift": SHIFTS[i % 3]}
+        entries = [LotEntry(c.name, [f"{c.target:.{2 if c.resolution == '0.01' else 1}f}"], tags,
+                            lot=f"INC{i:05d}", measured_at=at) for c in store.characteristics()]
+        store.log_lots(entries)
+        t0 = time.perf_counter()
+        live.refresh_day(END)
+        times.append(time.perf_counter() - t0)
+    cfg = live.settings
+    comps, _ = eng.comparisons_of(store)
+    ws = eng.compute_windows(store, comps, mon.window_plan(END, cfg, 1), cfg)
+    with np.errstate(invalid="ignore"):
+        diff = np.nanmax(np.abs(live.stats.f - ws.f) / np.abs(ws.f))
+    return statistics.median(times), float(diff)
+
+
+def memory_peak(store: Store) -> float:
+    tracemalloc.start()
+    full_review(store)
+    _, peak = tracemalloc.get_traced_memory()
+    tracemalloc.stop()
+    return peak / 2**20
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--quick", action="store_true", help="200k measurements, fewer repeats")
+    ap.add_argument("--ten-million", action="store_true", help="also build and review 10M")
+    ap.add_argument("--measurements", type=int, default=None)
+    args = ap.parse_args()
+    n = args.measurements or (200_000 if args.quick else 1_000_000)
+    reps, base_reps = (3, 1) if args.quick else (7, 1)
+    with tempfile.TemporaryDirectory() as tmp:
+        path = Path(tmp) / "bench.sqlite"
+        t0 = time.perf_counter()
+        store = build_store(path, n)
+        print(f"built {n:,} measurements in {time.perf_counter() - t0:.1f} s "
+              f"(direct executemany; {path.stat().st_size / 2**20:.0f} MB)")
+        t_base, ref = timed(lambda: baseline(path), base_reps)
+        print(f"baseline (pandas + f_oneway, {len(ref)} tests): median {t_base:.3f} s "
+              f"over {base_reps}")
+        t_rev, (ws, _q) = timed(lambda: full_review(store), reps)
+        W, C = ws.f.shape
+        print(f"full review ({W} windows x {C} comparisons, F, Welch, Bartlett, effect sizes, "
+              f"BH): median {t_rev * 1000:.1f} ms over {reps}")
+        worst = check_same(ws, ref)
+        print(f"same F and p as the baseline: max relative difference {worst:.2e} "
+              f"({'ok' if worst <= 1e-9 else 'FAILED'}, limit 1e-9)")
+        t_run, res = timed(lambda: eng.run_review(store, as_of=END, persist=False), reps)
+        print(f"run_review (latest week, {res.family_size} in family, ANOM, detectable shift): "
+              f"median {t_run * 1000:.1f} ms")
+        t_inc, inc_diff = incremental(store, 15 if not args.quick else 5)
+        print(f"incremental latest window after one lot: median {t_inc * 1000:.2f} ms "
+              f"(goal < 20 ms; max rel. F difference from full recompute {inc_diff:.1e})")
+        peak = memory_peak(store)
+        print(f"memory peak of one full review (tracemalloc): {peak:.1f} MB")
+        store.close()
+        if args.ten_million:
+            big = Path(tmp) / "big.sqlite"
+            t0 = time.perf_counter()
+            bstore = build_store(big, 10_000_000)
+            print(f"built 10,000,000 measurements in {time.perf_counter() - t0:.0f} s")
+            t_big, _ = timed(lambda: full_review(bstore), reps)
+            big_peak = memory_peak(bstore)
+            print(f"full review at 10M: median {t_big * 1000:.1f} ms, "
+                  f"{t_big / t_rev:.2f}x the 1M cost (goal <= 2x); memory peak {big_peak:.1f} MB "
+                  f"(goal < 300 MB)")
+            bstore.close()
+    print(f"speed-up: {t_base / t_rev:.1f}x over the straightforward baseline")
+
+
+if __name__ == "__main__":
+    main()
