@@ -314,6 +314,28 @@ def test_skip_bad_stores_good_rows_and_writes_rejected_file(lab, tmp_path):
     assert rejected_path(f) == tmp_path / "mixed.rejected-3.csv"
 
 
+def test_skip_bad_wide_counts_per_value(lab, tmp_path):
+    f = write(tmp_path / "w.csv", "lot,measured_at,site,line,shift,fill_volume,cap_torque\n"
+              "W1,2026-11-03T08:00:00Z,S,L,e,500.25,2.01\n"   # fill finer than 0.1: refused
+              "W2,2026-11-03T08:00:00Z,S,L,e,500.2,2.02\n")
+    first = import_file(lab, f, ImportOptions(skip_bad=True))
+    assert (first.stored, first.duplicates, first.rejected_rows) == (3, 0, 1)
+    assert [(p.row, p.column) for p in first.rejected] == [(1, "fill_volume")]
+    again = import_file(lab, f, ImportOptions(skip_bad=True))
+    assert (again.stored, again.duplicates, again.rejected_rows) == (0, 3, 1)
+
+
+def test_skip_bad_parquet_writes_rejected_csv(lab, tmp_path):
+    path = tmp_path / "p.parquet"
+    pl.DataFrame({"lot": ["P1", "P2"], "characteristic": ["fill_volume", "fill_volume"],
+                  "value": ["500.1", "oops"], "measured_at": ["2026-11-03T08:15:00Z"] * 2,
+                  "site": ["S", "S"], "line": ["L", "L"], "shift": ["e", "e"]}).write_parquet(path)
+    summary = import_file(lab, path, ImportOptions(skip_bad=True))
+    assert summary.stored == 1
+    assert summary.rejected_file == tmp_path / "p.rejected.csv"
+    assert "oops" in summary.rejected_file.read_text()
+
+
 def test_round_option(lab, tmp_path):
     f = write(tmp_path / "r.csv", HEADER + "\nA1,fill_volume,500.15,2026-11-03T08:15:00Z,S,L,e\n"
               "A2,fill_volume,500.25,2026-11-03T08:15:00Z,S,L,e\n")
