@@ -524,6 +524,13 @@ class Store:
         """``log_lots([entry])``."""
         return self.log_lots([entry], round_values=round_values)
 
+    def import_file(self, path: str | Path, options: Any = None, *,
+                    progress: Callable[[int], None] | None = None) -> Any:
+        """Read one lab file and log it (``store.importer.import_file``; returns its summary)."""
+        from store.importer import import_file
+
+        return import_file(self, path, options, progress=progress)
+
     def correct(self, measurement_id: int, new_value: str, *, reason: str,
                 by: str | None = None, round_value: bool = False) -> AuditEntry:
         from store.corrections import correct

@@ -15,6 +15,7 @@ Nothing is written unless every entry is good, except with ``skip_bad``.
 
 from __future__ import annotations
 
+import re
 import secrets
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
@@ -41,6 +42,7 @@ if TYPE_CHECKING:
 PROGRESS_EVERY = 10_000
 _CHUNK = 500  # parameters per IN (...) lookup, below SQLite's default limit
 _LOT_ALPHABET = "ABCDEFGHJKLMNPQRSTUVWXYZ23456789"  # no 0/O, 1/I
+_CONTROL = re.compile(r"[\x00-\x1f\x7f]")
 
 
 @dataclass
@@ -87,7 +89,8 @@ def _with_unit(text: str, c: Characteristic) -> str:
 
 
 def _prepare(i: int, e: LotEntry, chars: dict[str, Characteristic], now: datetime,
-             round_values: bool, user: str) -> _Prepared | list[RowProblem]:
+             round_values: bool, user: str,
+             times: dict[object, str]) -> _Prepared | list[RowProblem]:
     problems: list[RowProblem] = []
     char = chars.get(str(e.characteristic).strip()) if e.characteristic is not None else None
     if char is None:
@@ -101,7 +104,7 @@ def _prepare(i: int, e: LotEntry, chars: dict[str, Characteristic], now: datetim
             problems.append(_problem(e, "lot", e.lot, "the lot ID is empty"))
         elif len(lot) > 100:
             problems.append(_problem(e, "lot", e.lot, "the lot ID is longer than 100 characters"))
-        elif any(ord(ch) < 32 for ch in lot):
+        elif _CONTROL.search(lot):
             problems.append(_problem(e, "lot", e.lot, "the lot ID contains a control character"))
     tags: dict[str, str] = {}
     for key, value in (e.tags or {}).items():
@@ -117,7 +120,12 @@ def _prepare(i: int, e: LotEntry, chars: dict[str, Characteristic], now: datetim
         else:
             tags[k] = v
     try:
-        measured = format_stored(now if e.measured_at is None else e.measured_at)
+        when = now if e.measured_at is None else e.measured_at
+        measured = times.get(when) if isinstance(when, str) else None
+        if measured is None:
+            measured = format_stored(when)
+            if isinstance(when, str):
+                times[when] = measured  # lab files repeat timestamps; parse each text once
     except BadTime as exc:
         problems.append(_problem(e, "measured_at", e.measured_at, str(exc)))
         measured = ""
@@ -127,10 +135,11 @@ def _prepare(i: int, e: LotEntry, chars: dict[str, Characteristic], now: datetim
     units: list[int] = []
     rounded = 0
     column = e.column or "value"
-    if not e.values:
+    values = [e.values] if isinstance(e.values, str) else list(e.values or [])
+    if not values:
         problems.append(_problem(e, column, None, "no value given"))
     if char is not None:
-        for j, text in enumerate(e.values or []):
+        for j, text in enumerate(values):
             try:
                 dec = parse_decimal(text)
                 u, was_rounded = to_units(dec, char.resolution, round_values=round_values)
@@ -194,8 +203,9 @@ def log_lots(store: Store, entries: Sequence[LotEntry], *, round_values: bool = 
 
         problems: dict[int, list[RowProblem]] = {}
         good: list[_Prepared] = []
+        times: dict[object, str] = {}
         for i, e in enumerate(entries):
-            p = _prepare(i, e, chars, now, round_values, store.user)
+            p = _prepare(i, e, chars, now, round_values, store.user, times)
             if isinstance(p, list):
                 problems[i] = p
             else:
@@ -377,6 +387,17 @@ def _write(store: Store, final: list[_Prepared], merged: dict[str, dict[str, str
             ids_out.append(mid)
             deltas.add_measurement(p.char.id, day, u - o, levels)
 
+    generated = [code for _, code, _ in new_lots if code not in lot_ids]
+    clash: set[str] = set()
+    for chunk in _chunks(generated):
+        marks = ",".join("?" * len(chunk))
+        clash.update(r[0] for r in conn.execute(
+            f"SELECT lot_code FROM lots WHERE lot_code IN ({marks})", chunk))
+    if clash:  # a generated ID already stored (about 1 in 10^9 per second): draw again
+        taken |= clash
+        renamed = {code: new_lot_code(taken, now) for code in clash}
+        new_lots = [(i, renamed.get(c, c), t) for i, c, t in new_lots]
+        lots_out = [renamed.get(c, c) for c in lots_out]
     conn.executemany("INSERT INTO lots(id, lot_code, created_at) VALUES (?, ?, ?)", new_lots)
     conn.executemany("INSERT INTO lot_tags(lot_id, key, value) VALUES (?, ?, ?)", tag_rows)
     done = 0

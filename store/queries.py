@@ -188,7 +188,8 @@ def _last_lots(store: Store, characteristic_id: int, factor: str, day_where: lis
         days.setdefault(level, []).append((day, count))
     sql = ("SELECT m.lot_id FROM measurements m "
            "JOIN lot_tags t ON t.lot_id = m.lot_id AND t.key = ? AND t.value = ? "
-           "WHERE m.characteristic_id = ? AND m.voided = 0 AND m.day BETWEEN ? AND ? "
+           "WHERE m.characteristic_id = ? AND m.voided = 0 "
+           "AND m.measured_at >= ? AND m.measured_at <= ? "  # day range, via the time index
            "ORDER BY m.measured_at DESC, m.id DESC")
     picked: list[int] = []
     for level, level_days in days.items():
@@ -198,7 +199,8 @@ def _last_lots(store: Store, characteristic_id: int, factor: str, day_where: lis
                 acc += level_days[k][1]
                 k += 1
             lots = _distinct_first(store.conn.execute(
-                sql, (factor, level, characteristic_id, level_days[k - 1][0], level_days[0][0])), n)
+                sql, (factor, level, characteristic_id, level_days[k - 1][0] + "T00:00:00Z",
+                      level_days[0][0] + "T23:59:59Z")), n)
             if len(lots) >= n or k == len(level_days):
                 break
             need *= 2

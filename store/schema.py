@@ -85,7 +85,6 @@ CREATE TABLE measurements (
 ) STRICT;
 CREATE INDEX measurements_char_day ON measurements(characteristic_id, day);
 CREATE INDEX measurements_char_time ON measurements(characteristic_id, measured_at);
-CREATE INDEX measurements_lot ON measurements(lot_id);
 
 CREATE TABLE audit (
     id             INTEGER PRIMARY KEY,

@@ -329,3 +329,49 @@ def test_measurements_frame(fill: Store) -> None:
         500.4, "500.4", "500.1")
     assert first["voided"] is False and first["measured_at"].tzinfo is not None
     assert fill.tag_values("shift") == ["day"] and fill.tag_values("nothing") == []
+
+
+def test_generated_id_never_reuses_a_stored_one(fill: Store, entry,
+                                                monkeypatch: pytest.MonkeyPatch) -> None:
+    import store.lots as lots
+
+    fixed = datetime(2026, 11, 30, 14, 5, tzinfo=UTC)
+    monkeypatch.setattr(lots, "now_utc", lambda: fixed)
+    fill.log_lots([entry("500.0", "L20261130-140500-AAAAAA")])
+    draws = iter("AAAAAA" + "AAAAAA" + "BBBBBB")  # first draw repeats the stored ID
+    monkeypatch.setattr(lots.secrets, "choice", lambda alphabet: next(draws))
+    out = fill.log_lots([entry("500.1")])
+    assert out.lots == ["L20261130-140500-BBBBBB"]
+    assert fill.check().ok
+
+
+def test_single_value_text_accepted(fill: Store) -> None:
+    out = fill.log_lots([LotEntry("fill_volume", "500.2", dict(TAGS), lot="L30")])  # type: ignore[arg-type]
+    assert len(out.measurement_ids) == 1
+
+
+@pytest.mark.parametrize("seed", [1, 2, 3])
+def test_last_n_matches_brute_force(store: Store, seed: int) -> None:
+    import random
+
+    rng = random.Random(seed)
+    store.add_characteristic("fill_volume", unit="mL", resolution="0.1", target=500)
+    entries = []
+    for k in range(120):
+        tags = {**TAGS, "line": rng.choice("123"), "crew": rng.choice(["red", "blue"])}
+        reps = [f"{500 + rng.randint(-9, 9) / 10:.1f}" for _ in range(rng.randint(1, 3))]
+        at = f"2026-11-{rng.randint(1, 9):02d}T{rng.randint(0, 2):02d}:00:00Z"
+        entries.append(LotEntry("fill_volume", reps, tags, lot=f"K{k:03d}", measured_at=at))
+    out = store.log_lots(entries)
+    for mid in rng.sample(out.measurement_ids, 40):
+        store.void(mid, reason="test")
+    live = store.measurements_frame().filter(~pl.col("voided"))
+    for key in ("line", "crew"):  # a grouping factor (bucket path) and a plain tag (walk path)
+        for n in (1, 4, 15):
+            expected = set()
+            for _, grp in live.group_by(key):
+                lots = grp.group_by("lot").agg(pl.col("measured_at").max(), pl.col("id").max())
+                lots = lots.sort(["measured_at", "id"], descending=True).head(n)
+                expected |= set(lots["lot"].to_list())
+            got = store.values_frame("fill_volume", key, last_n=n)
+            assert set(got["lot"].to_list()) == expected, (key, n)
