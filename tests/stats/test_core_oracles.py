@@ -259,3 +259,28 @@ def test_unit_conversion_matches_python_decimal(res_text, ints, extra) -> None:
     else:
         with pytest.raises(ValueError, match="not a multiple"):
             to_units(arr, res)
+
+
+@settings(max_examples=30, deadline=None)
+@given(st.lists(st.lists(st.integers(-999, 999), min_size=2, max_size=15), min_size=2,
+                max_size=6),
+       st.sampled_from([0, 10**6, 10**12]), st.sampled_from(["0.1", "0.001", "0.25"]))
+def test_exact_route_equals_rational_arithmetic(units, offset, res_text) -> None:
+    """Exact route vs a textbook computation in Python fractions (definition of SS, §7.4.3)."""
+    from fractions import Fraction
+
+    res = Fraction(res_text)
+    groups = [[(offset + u) * res for u in g] for g in units]  # exact values
+    if all(len(set(g)) == 1 for g in groups):
+        return
+    n_total = sum(len(g) for g in groups)
+    grand = sum(sum(g) for g in groups) / n_total
+    means = [sum(g) / len(g) for g in groups]
+    ssb = sum(len(g) * (m - grand) ** 2 for g, m in zip(groups, means, strict=True))
+    ssw = sum((x - m) ** 2 for g, m in zip(groups, means, strict=True) for x in g)
+    t = one_way_anova([[float(x) for x in g] for g in groups], resolution=res_text)
+    assert t.exact
+    assert t.ss_between == float(ssb) and t.ss_within == float(ssw)  # correctly rounded
+    dfb, dfw = len(groups) - 1, n_total - len(groups)
+    assert t.f == float((ssb / dfb) / (ssw / dfw))
+    assert t.grand_mean == float(grand)
