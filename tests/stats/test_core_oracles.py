@@ -185,6 +185,7 @@ def test_effect_size_intervals_vs_statsmodels(groups) -> None:
     assert e.eta_squared == pytest.approx(t.ss_between / t.ss_total, rel=REL)
 
 
+@pytest.mark.filterwarnings("ignore:The inplace keyword")  # inside pingouin
 def test_icc_vs_pingouin_balanced() -> None:
     pg = pytest.importorskip("pingouin")
     import pandas as pd
