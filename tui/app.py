@@ -184,6 +184,11 @@ class LotwatchApp(App[None]):
 
     def on_mount(self) -> None:
         self.title = f"lotwatch: {clean(self.db_path.name, 40)}"
+        # Start the store work once the first frame is out: the workers' first job imports
+        # polars/scipy, which would otherwise compete with the first paint for the GIL.
+        self.call_after_refresh(self._start_work)
+
+    def _start_work(self) -> None:
         self.request_overview()
         self._poll_store()
 
@@ -239,8 +244,15 @@ class LotwatchApp(App[None]):
     def _load_overview(self, generation: int) -> None:
         import textual_plotext  # noqa: F401  (warm the chart's import here, off the event loop)
 
-        ov = data.load_overview(self.db_path, self.read_only)
-        if not get_current_worker().is_cancelled:
+        worker = get_current_worker()
+
+        def frame(partial: Overview) -> None:
+            if not worker.is_cancelled:
+                self.post_message(OverviewLoaded(partial, generation))
+
+        ov = data.load_overview(self.db_path, self.read_only,
+                                on_frame=frame if self.overview is None else None)
+        if not worker.is_cancelled:
             self.post_message(OverviewLoaded(ov, generation))
 
     @work(thread=True, exclusive=True, group="detail", exit_on_error=False,
@@ -391,7 +403,7 @@ class LotwatchApp(App[None]):
             changed = True
         if self.main_screen is not None:
             self.main_screen.show_overview(ov)
-        if changed or self.detail is None:
+        if changed or "detail" not in self._generation:
             self.request_detail()
 
     def on_comparison_computed(self, message: ComparisonComputed) -> None:

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import getpass
 import os
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass, field
 from datetime import date
@@ -27,6 +27,7 @@ if TYPE_CHECKING:
 ALERTING = "alerting"
 WATCHING = "watching"
 NOT_ENOUGH = "not enough data"
+CHECKING = "checking…"
 ACTIVE = ("open", "acknowledged")  # alert states that still stand (not cleared)
 
 
@@ -114,6 +115,7 @@ class Overview:
     window_label: str
     data_version: int
     window_kind: str = "trailing"  # the store's review.window setting
+    partial: bool = False  # True before the review has run (states are CHECKING)
 
 
 @dataclass(frozen=True)
@@ -308,25 +310,33 @@ def _sort_q(rows: list[ComparisonRow]) -> list[ComparisonRow]:
                                        r.characteristic, r.factor))
 
 
-def load_overview(path: Path, read_only: bool, *, week: str | None = None) -> Overview:
+def load_overview(path: Path, read_only: bool, *, week: str | None = None,
+                  on_frame: Callable[[Overview], None] | None = None) -> Overview:
     """Characteristics and their state this window, factors, known tags and open alerts.
 
     A characteristic is "alerting" when any of its comparisons has an active (open or
-    acknowledged, not yet cleared) alert, "not enough
-    data" when none of its comparisons could be computed, else "watching". The review is run
-    with ``persist=False``: looking never opens or clears alerts.
+    acknowledged, not yet cleared) alert, "not enough data" when none of its comparisons could
+    be computed, else "watching". The review is run with ``persist=False``: looking never opens
+    or clears alerts. ``on_frame`` receives a partial overview (no review yet, states
+    "checking") as soon as the cheap part is read, so the screen can fill in and the detail
+    can start while the review runs.
     """
-    from tui.review_engine import run_review
-
     with opened(path, read_only) as store:
         chars = [_char_info(c) for c in store.characteristics()]
         factors = [FactorInfo(f.name, bool(f.required)) for f in store.factors()]
         tags = {f.name: list(store.tag_values(f.name)) for f in factors}
         alerts = read_alerts(store)
-        review = run_review(store, week=week, persist=False)
+        open_alerts = [a for a in alerts if a.state in ACTIVE]
         version = store.data_version()
+        if on_frame is not None:
+            alerting = {a.characteristic for a in open_alerts}
+            on_frame(Overview(chars, factors, tags,
+                              {c.name: ALERTING if c.name in alerting else CHECKING
+                               for c in chars}, {}, open_alerts, "", version, partial=True))
+        from tui.review_engine import run_review
+
+        review = run_review(store, week=week, persist=False)
     window_kind = review.settings.window
-    open_alerts = [a for a in alerts if a.state in ACTIVE]
     comparison_states: dict[tuple[str, str], str] = {}
     for c in review.comparisons:
         if c.alert_state in ACTIVE:
