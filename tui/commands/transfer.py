@@ -82,9 +82,10 @@ def import_command(file: str, fmt: str, layout: str, lot_column: str, time_colum
 
     All or nothing: if any row is bad, every bad row is listed (row, column, value, reason) and
     nothing is stored, unless --skip-bad. When there are more than 50 problems the full list is
-    also written to <file>.rejected.csv beside the input. Rows already in the store are skipped as exact
-    duplicates, so importing the same file twice stores nothing new.
+    also written to <file>.rejected.csv beside the input. Rows already in the store are skipped
+    as exact duplicates, so importing the same file twice stores nothing new.
     """
+    from store import BadInput
     from store.importer import ImportOptions, parse_import, store_import, write_rejected
 
     if delimiter is not None:
@@ -102,14 +103,14 @@ def import_command(file: str, fmt: str, layout: str, lot_column: str, time_colum
         decimal_comma=decimal_comma, delimiter=delimiter, round_values=round_values,
         skip_bad=skip_bad, by=by,
     )
-    from store import BadInput
-
     with open_store(db_path) as store:
         parsed = parse_import(
             Path(file), options,
             factors=[f.name for f in store.factors()],
             characteristics=[c.name for c in store.characteristics()],
         )
+        for note in parsed.notes:
+            click.echo(f"Note: {note}")
         total = sum(len(e.values) for e in parsed.entries)
         try:
             if _show_progress(total) and not (parsed.problems and not skip_bad):
@@ -135,8 +136,6 @@ def import_command(file: str, fmt: str, layout: str, lot_column: str, time_colum
     if skip_bad and summary.rejected:
         summary.rejected_file = write_rejected(parsed, summary.rejected)
 
-    for note in summary.notes:
-        click.echo(f"Note: {note}")
     click.echo(f"Imported {summary.path.name} ({summary.layout} layout)")
     counts = [("rows read", summary.rows_read), ("values read", summary.values_read),
               ("values stored", summary.stored),
