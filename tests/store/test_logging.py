@@ -375,3 +375,31 @@ def test_last_n_matches_brute_force(store: Store, seed: int) -> None:
                 expected |= set(lots["lot"].to_list())
             got = store.values_frame("fill_volume", key, last_n=n)
             assert set(got["lot"].to_list()) == expected, (key, n)
+
+
+def test_add_factor_backfills_from_stored_tags(fill: Store, entry) -> None:
+    fill.log_lots([entry("500.3", "L2", tags={**TAGS, "oven": "A"},
+                         measured_at="2026-11-30T15:00:00Z"),
+                   entry(["499.5", "500.5"], "L3", tags={**TAGS, "oven": "B"},
+                         measured_at="2026-12-01T09:00:00Z")])
+    assert fill.bucket_frame(factor="oven").height == 0  # not a factor yet: no buckets
+    fill.add_factor("oven")
+    # d: L2 5003-5000 = 3; L3 4995-5000 = -5 and 5005-5000 = 5 (L1 has no oven tag)
+    assert fill.bucket_frame(factor="oven").rows() == [
+        ("fill_volume", "oven", "A", date(2026, 11, 30), 1, 3, 9),
+        ("fill_volume", "oven", "B", date(2026, 12, 1), 2, 0, 50),
+    ]
+    with pytest.raises(Conflict, match="already a grouping factor"):
+        fill.add_factor("oven")
+    assert fill.check().ok
+
+
+def test_disk_full_during_logging_stores_nothing(fill: Store, dump, entry) -> None:
+    from store import StoreFull
+
+    pages = fill.conn.execute("PRAGMA page_count").fetchone()[0]
+    fill.conn.execute(f"PRAGMA max_page_count = {pages + 2}")  # SQLITE_FULL, as for a full disk
+    before = dump(fill)
+    with pytest.raises(StoreFull, match="nothing was stored"):
+        fill.log_lots([entry("500.0", f"F{k}") for k in range(3000)])
+    assert dump(fill) == before
