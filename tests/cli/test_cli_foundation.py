@@ -70,6 +70,8 @@ def test_init_creates_store_and_refuses_to_overwrite(cli, tmp_path):
 def test_init_uses_db_option_then_env(cli, env, tmp_path):
     r = cli("--db", tmp_path / "g.sqlite", "init")
     assert r.exit_code == 0 and (tmp_path / "g.sqlite").exists()
+    r = cli("init", "--db", tmp_path / "c.sqlite")
+    assert r.exit_code == 0 and (tmp_path / "c.sqlite").exists()
     r = cli("init")
     assert r.exit_code == 0 and Path(env["LOTWATCH_DB"]).exists()
 

@@ -6,7 +6,7 @@ from pathlib import Path
 
 import click
 
-from tui.commands.common import UserError, db_option, open_store, resolve_db_path, store_errors
+from tui.commands.common import UserError, db_option, open_store, store_errors
 
 
 def _fmt(x: float | None) -> str:
@@ -33,17 +33,18 @@ def _describe(c) -> list[tuple[str, str]]:
 
 @click.command("init")
 @click.argument("path", required=False, type=click.Path(dir_okay=False))
+@db_option
 @store_errors
-def init_command(path: str | None) -> None:
+def init_command(path: str | None, db_path: Path) -> None:
     """Create an empty store.
 
-    The store is made at PATH (default: --db, $LOTWATCH_DB or the user data directory). The new store has the grouping factors site, line and shift (all required). An existing file
-    is never overwritten.
+    The store is made at PATH (default: --db, $LOTWATCH_DB or the user data directory). The new
+    store has the grouping factors site, line and shift (all required). An existing file is never
+    overwritten.
     """
     from store import Store
 
-    ctx = click.get_current_context()
-    target = Path(path).expanduser() if path else resolve_db_path((ctx.find_root().obj or {}).get("db"))
+    target = Path(path).expanduser() if path else db_path
     if target.exists():
         raise UserError(f"{target} already exists; lotwatch init never overwrites a file. "
                         "Choose another path or remove the file yourself.")
