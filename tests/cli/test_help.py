@@ -19,12 +19,20 @@ def walk(group: click.Group, path: tuple[str, ...] = ()):
 COMMANDS = list(walk(main))
 
 
+FOUNDATION = {"init", "characteristic add", "characteristic list", "characteristic show",
+              "characteristic edit", "factor add", "factor list", "log", "correct", "void",
+              "history", "check", "import", "export"}
+
+
 def test_the_foundation_commands_are_registered():
-    names = {" ".join(p) for p, _ in COMMANDS}
-    expected = {"init", "characteristic add", "characteristic list", "characteristic show",
-                "characteristic edit", "factor add", "factor list", "log", "correct", "void",
-                "history", "check", "import", "export"}
-    assert expected <= names
+    assert FOUNDATION <= {" ".join(p) for p, _ in COMMANDS}
+
+
+def test_every_foundation_command_takes_db():
+    for path, command in COMMANDS:
+        if " ".join(path) in FOUNDATION:
+            opts = {o for p in command.params if isinstance(p, click.Option) for o in p.opts}
+            assert "--db" in opts, " ".join(path)
 
 
 @pytest.mark.parametrize("path, command", COMMANDS, ids=[" ".join(p) for p, _ in COMMANDS])
