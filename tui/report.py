@@ -320,7 +320,9 @@ def trend_chart_svg(tr: Any) -> str:
         if lim is not None:
             ax.axhline(lim, color="firebrick" if name != "target" else "grey", linewidth=1,
                        linestyle=":" if name == "target" else "-")
-            ax.annotate(name, (x[-1] if x else 0, lim), fontsize=7, va="bottom", ha="right")
+            at_left = name == "target"  # the latest windows sit at the right
+            ax.annotate(name, ((x[0] if at_left else x[-1]) if x else 0, lim), fontsize=7,
+                        va="bottom", ha="left" if at_left else "right")
     step = max(1, len(x) // 6)
     ax.set_xticks(x[::step], ser.labels[::step], fontsize=7)
     ax.set_ylabel(tr.characteristic.unit or "value", fontsize=8)

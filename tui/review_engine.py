@@ -374,15 +374,14 @@ def run_review(store, *, as_of: date | None = None, week: str | None = None,
                 direction, size, fraction, qv, details)))
 
     if record:
-        if transitions:
+        with store.write():  # the transitions and the review date in one transaction
             written = store_alerts.record_transitions(store, [t for _, t in transitions],
                                                       by=by or getattr(store, "user", None))
-            for (i, _), alert in zip(transitions, written, strict=True):
-                s = summaries[i]
-                summaries[i] = ComparisonSummary(**{**s.__dict__, "alert_id": alert.id,
-                                                    "alert_state": alert.state})
-        if not last_recorded or date.fromisoformat(last_recorded) <= day:
             store.set_setting(LAST_REVIEW_KEY, day.isoformat())
+        for (i, _), alert in zip(transitions, written, strict=True):
+            s = summaries[i]
+            summaries[i] = ComparisonSummary(**{**s.__dict__, "alert_id": alert.id,
+                                                "alert_state": alert.state})
     summaries.sort(key=lambda s: (s.q is None, s.q if s.q is not None else 0.0,
                                   s.characteristic, s.factor))
     opened = [s for s in summaries if s.event in ("opened", "reopened")]
