@@ -249,16 +249,19 @@ def _g_cos(b: np.ndarray, c: np.ndarray) -> np.ndarray:
     return np.exp(-0.5 * b * b) - np.exp(-0.5 * c * c) * np.real(np.exp(-1j * c * b) * w)
 
 
-def _anom_v_nodes(k_eff: float) -> tuple[np.ndarray, np.ndarray]:
+def _anom_v_nodes(k_eff: float, p_min: float) -> tuple[np.ndarray, np.ndarray]:
     """Nodes for the Fourier variable v ≥ 0.
 
     The integrand is a Gaussian-like bump of width ~1 plus an oscillating tail whose envelope
-    decays like v^{-k}; k = 3 needs the longest range.
+    decays like v^{-k}; k = 3 needs the longest range. A factor with group fraction p enters its
+    tail only for v ≫ 1/√p, so a design with one very small group (p_min ≪ 1/k) stretches the
+    range by sqrt(1/(k·p_min)) (capped at 16).
     """
     v_hi = 80.0 if k_eff < 3.5 else (48.0 if k_eff < 4.5 else (32.0 if k_eff < 5.5 else 16.0))
+    v_hi *= min(16.0, max(1.0, math.sqrt(1.0 / (k_eff * p_min))))
     # The error is set by the truncation at v_hi, not by the node density (measured: 12 nodes per
     # 4 units are as accurate as 12 per 2 units).
-    return composite_nodes(0.0, v_hi, int(v_hi / 4.0), 12)
+    return composite_nodes(0.0, v_hi, int(math.ceil(v_hi / 4.0)), 12)
 
 
 def _anom_known_variance(h: np.ndarray, p: np.ndarray, mult: np.ndarray) -> np.ndarray:
@@ -272,7 +275,7 @@ def _anom_known_variance(h: np.ndarray, p: np.ndarray, mult: np.ndarray) -> np.n
     f_{S,box}(0) = (1/2π) ∫ Π_i g(ω√n_i; c_i) dω. Substituting ω = v/√N gives
     P = sqrt(2/π) ∫_0^∞ Π_i g(v√p_i; c_i) dv (the integrand is even in v).
     """
-    v, wv = _anom_v_nodes(float(mult.sum()))
+    v, wv = _anom_v_nodes(float(mult.sum()), float(np.min(p)))
     h = np.asarray(h, dtype=float)[..., None, None]
     b = v[None, :] * np.sqrt(p)[:, None]  # (u, V)
     c = h * np.sqrt(1.0 - p)[:, None]

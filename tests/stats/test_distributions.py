@@ -189,19 +189,22 @@ def test_anom_two_groups_is_t():
     assert qanom(0.95, np.array([4.0, 9.0]), 11.0) == pytest.approx(stats.t.ppf(0.975, 11))
 
 
-def test_anom_known_variance_converged():
+@pytest.mark.parametrize("sizes", [[4, 7, 7, 15, 30], [1000, 5, 5], [10] * 11 + [300]])
+def test_anom_known_variance_converged(sizes):
     # Internal consistency: the Fourier integral with the default nodes agrees with a rule over a
-    # range 15 times longer and 40 times denser; also the Chebyshev interpolant used in production.
-    p, mult = _mvt.unique_with_counts(np.array([4.0, 7, 7, 15, 30]) / 63.0)
+    # much longer range (v up to 2000) and denser nodes, for a mild, an extreme ([1000, 5, 5]) and
+    # a one-large-group design; also the interpolant used in production.
+    n = np.array(sizes, dtype=float)
+    p, mult = _mvt.unique_with_counts(n / n.sum())
     x = np.linspace(0.8, 5.0, 9)
     default = _mvt._anom_known_variance(x, p, mult)
-    v, wv = _mvt.composite_nodes(0.0, 500.0, 1000, 12)
+    v, wv = _mvt.composite_nodes(0.0, 2000.0, 4000, 12)
     b = v[None, :] * np.sqrt(p)[:, None]
     fine = [math.sqrt(2 / math.pi) * (np.prod(_mvt._g_cos(b, xx * np.sqrt(1 - p)[:, None])
                                               ** mult[:, None], axis=0) @ wv) for xx in x]
-    np.testing.assert_allclose(default, fine, atol=3e-7)
+    np.testing.assert_allclose(default, fine, atol=2e-6)
     interp = _mvt._anom_interpolant(tuple(p), tuple(mult))
-    np.testing.assert_allclose(_mvt._eval_interpolant(interp, x), fine, atol=3e-7)
+    np.testing.assert_allclose(_mvt._eval_interpolant(interp, x), fine, atol=2e-6)
 
 
 def test_anom_cdf_monotone_and_within_sidak_bounds():
