@@ -195,12 +195,7 @@ def log_lots(store: Store, entries: Sequence[LotEntry], *, round_values: bool = 
     now = now_utc()
     now_s = format_stored(now)
     conn = store.conn
-    with store.write():
-        chars = {c.name: c for c in store.characteristics()}
-        factors = store.factors()
-        factor_names = {f.name for f in factors}
-        required = [f.name for f in factors if f.required]
-
+    def prepare_all(chars: dict[str, Characteristic]) -> tuple[dict, list[_Prepared]]:
         problems: dict[int, list[RowProblem]] = {}
         good: list[_Prepared] = []
         times: dict[object, str] = {}
@@ -210,6 +205,19 @@ def log_lots(store: Store, entries: Sequence[LotEntry], *, round_values: bool = 
                 problems[i] = p
             else:
                 good.append(p)
+        return problems, good
+
+    # Per-entry checks need no lock: run them first, and again inside the transaction only if
+    # a characteristic changed meanwhile (keeps the write lock short for big batches).
+    chars_seen = {c.name: c for c in store.characteristics()}
+    problems, good = prepare_all(chars_seen)
+    with store.write():
+        chars = {c.name: c for c in store.characteristics()}
+        if chars != chars_seen:
+            problems, good = prepare_all(chars)
+        factors = store.factors()
+        factor_names = {f.name for f in factors}
+        required = [f.name for f in factors if f.required]
 
         # Stored lots named in this input: id, tags, and first-logged values per characteristic.
         codes = sorted({p.lot for p in good if p.lot is not None})
