@@ -11,7 +11,9 @@ all-pairwise comparisons", J. Computational and Graphical Statistics 13, 456-466
 
 Every non-significant pair keeps a column in common (a split column always keeps a copy with both
 members of any pair other than (i, j)), and no significant pair shares one, so the display is
-exact. Columns are then lettered a, b, c, ... in the order of their best-ranked member, where the
+exact. The number of columns is small for significance patterns that follow the ordering of the
+means (the usual case) but can grow exponentially in contrived patterns (2^(k/2) for k groups
+whose only significant pairs form a perfect matching). Columns are then lettered a, b, c, ... in the order of their best-ranked member, where the
 ranking is by decreasing mean when ``means`` are given, else the order of ``names``.
 """
 
