@@ -59,12 +59,12 @@ def open_store(db_path: Path, *, read_only: bool = False):  # -> store.Store
     try:
         return Store.open(db_path, read_only=read_only)
     except StoreMissing:
-        raise click.ClickException(
+        raise UserError(
             f"no store at {db_path}. Create one with: lotwatch init {db_path}"
             "  (or try the demo: lotwatch demo)"
         ) from None
     except StoreError as exc:
-        raise click.ClickException(str(exc)) from None
+        raise UserError(str(exc)) from None
 
 
 def store_errors(f: F) -> F:
