@@ -164,20 +164,24 @@ class Store:
         if p.is_dir():
             raise StoreCorrupt(f"{p} is a folder, not a lotwatch store file")
         immutable = False
+        conn: sqlite3.Connection | None = None
         try:
             conn = _connect(p, "ro" if read_only else "rw", timeout)
             try:
                 _probe(conn)
             except sqlite3.OperationalError as exc:
-                if not read_only or translate_error(exc, p) is None or isinstance(
-                    translate_error(exc, p), StoreCorrupt
-                ):
+                mapped = translate_error(exc, p)
+                if not read_only or mapped is None or isinstance(mapped, StoreCorrupt):
                     raise
+                # Read-only WAL store in a folder we cannot write: SQLite cannot make the -shm
+                # file, so read the file as immutable (no locking; see the docstring).
                 conn.close()
                 conn = _connect(p, "ro", timeout, immutable=True)
                 _probe(conn)
                 immutable = True
         except sqlite3.Error as exc:
+            if conn is not None:
+                conn.close()
             raise translate_error(exc, p) or StoreCorrupt(
                 f"{p} could not be read as a lotwatch store: {exc}"
             ) from None

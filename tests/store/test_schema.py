@@ -3,7 +3,10 @@
 from __future__ import annotations
 
 import os
+import shutil
 import sqlite3
+import subprocess
+import tempfile
 from pathlib import Path
 
 import pytest
@@ -167,6 +170,53 @@ def test_read_only_in_unwritable_folder(tmp_path: Path) -> None:
             assert len(s.factors()) == 3
     finally:
         folder.chmod(0o755)
+
+
+def _nobody_python() -> str | None:
+    """/usr/bin/python3 (3.11+) runnable as user nobody via runuser, when the tests run as root."""
+    if os.geteuid() != 0 or not shutil.which("runuser") or not Path("/usr/bin/python3").exists():
+        return None
+    probe = subprocess.run(["runuser", "-u", "nobody", "--", "/usr/bin/python3", "-c",
+                            "import sys; print(sys.version_info >= (3, 11))"],
+                           capture_output=True, text=True)
+    return "/usr/bin/python3" if probe.stdout.strip() == "True" else None
+
+
+def test_read_only_in_unwritable_folder_as_other_user() -> None:
+    """As root, run the open as user nobody: the WAL store's folder is not writable for it."""
+    python = _nobody_python()
+    if python is None:
+        pytest.skip("needs root, runuser and a system python 3.11+ for user nobody")
+    with tempfile.TemporaryDirectory() as tmp:  # under /tmp: reachable by nobody (pytest's is not)
+        _run_as_nobody(python, Path(tmp))
+
+
+def _run_as_nobody(python: str, tmp_path: Path) -> None:
+    code = tmp_path / "code"
+    shutil.copytree(Path(__file__).resolve().parents[2] / "store", code / "store",
+                    ignore=shutil.ignore_patterns("__pycache__"))
+    folder = tmp_path / "ro"
+    folder.mkdir()
+    Store.create(folder / "s.sqlite").close()
+    for p in (tmp_path, code, *code.rglob("*"), folder):
+        p.chmod(0o755 if p.is_dir() else 0o644)
+    (folder / "s.sqlite").chmod(0o644)
+    script = (
+        "import sys; sys.path.insert(0, sys.argv[1])\n"
+        "from store import Store, StoreReadOnly\n"
+        "with Store.open(sys.argv[2], read_only=True) as s:\n"
+        "    print(len(s.factors()), s.immutable)\n"
+        "try:\n"
+        "    s = Store.open(sys.argv[2]); s.set_setting('a', 'b')\n"
+        "except StoreReadOnly as exc:\n"
+        "    print('refused:', exc)\n"
+    )
+    out = subprocess.run(["runuser", "-u", "nobody", "--", python, "-c", script, str(code),
+                          str(folder / "s.sqlite")], capture_output=True, text=True, timeout=60)
+    assert out.returncode == 0, out.stderr
+    lines = out.stdout.splitlines()
+    assert lines[0] == "3 True"  # opened read-only via SQLite's immutable mode
+    assert lines[1].startswith("refused:") and "cannot be" in lines[1]
 
 
 def test_file_not_writable(store_path: Path) -> None:
