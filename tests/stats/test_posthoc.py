@@ -66,7 +66,12 @@ def test_tukey_kramer_other_alpha():
     np.testing.assert_allclose([c.lower for c in ours], ci.low[i, j], rtol=1e-6)
 
 
-@pytest.mark.parametrize("seed,sizes", CASES)
+# scipy's Games-Howell interval calls studentized_range.ppf once per pair (~0.4 s each), so the
+# 12-group case (66 pairs) runs only with the slow tests.
+GH_CASES = CASES[:3] + [pytest.param(*CASES[3], marks=pytest.mark.slow)]
+
+
+@pytest.mark.parametrize("seed,sizes", GH_CASES)
 def test_games_howell_matches_scipy_and_pingouin(seed, sizes):
     samples, names = _data(seed, sizes, sds=[0.5 + 0.4 * i for i in range(len(sizes))])
     ours = games_howell(samples, names)
