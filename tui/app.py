@@ -86,15 +86,16 @@ def describe_error(exc: BaseException | None, task: str) -> str:
 
     if exc is None:
         return f"{task} failed for an unknown reason. The app keeps running; try again."
-    said = clean(str(exc), 400)
-    if isinstance(exc, StoreLocked):
-        return (f"{said} Another program is writing to the store: wait a moment and try again "
-                "(what you typed is kept).")
-    if isinstance(exc, StoreFull):
-        return f"{said} The disk is full; nothing was saved. Free some space and try again."
+    said = clean(str(exc), 400).strip()
+    if said and said[-1] not in ".!?":
+        said += "."
+    said = said[:1].upper() + said[1:]
+    # The store's messages already say what happened and what to do; add only what the app
+    # itself knows: that the form keeps what was typed.
+    if isinstance(exc, (StoreLocked, StoreFull)):
+        return f"{said} What you typed is kept: press Enter in the form to try again."
     if isinstance(exc, StoreReadOnly):
-        return (f"{said} The store cannot be written: it was opened with --read-only, or the "
-                "file or its folder is not writable. Nothing was saved.")
+        return f"{said} To make changes, quit and reopen without --read-only."
     if isinstance(exc, StoreMissing):
         return (f"{said} The store file is gone. Restore it, or quit and start lotwatch with "
                 "--db pointing at a store.")

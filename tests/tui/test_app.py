@@ -332,4 +332,4 @@ async def test_a_failed_save_keeps_the_form_and_its_contents(small_store, monkey
         await settle(pilot, lambda: any("locked" in m for m in notifications(app)))
         assert app.screen is form
         assert form.query_one("#values", Input).value == "10.01"
-        assert "wait a moment and try again" in screen_text(app)
+        assert "What you typed is kept" in screen_text(app)

@@ -14,13 +14,13 @@ from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Grid, Vertical
 from textual.screen import ModalScreen
-from textual.suggester import SuggestFromList
 from textual.widgets import Input, Label, Select, Static
 
 from tui.data import CharacteristicInfo, EntryDraft, Overview
 from tui.entry_checks import TimeCheck, ValuesCheck, one_line, required, split_values
 from tui.safe_text import clean, literal
 from tui.screens.confirm import ConfirmScreen
+from tui.widgets.tag_input import TagInput
 
 if TYPE_CHECKING:
     from tui.app import LotwatchApp
@@ -59,7 +59,7 @@ class LotEntryScreen(ModalScreen[None]):
         self._initial = characteristic if characteristic in self._chars else (
             overview.characteristics[0].name if overview.characteristics else None)
         self._saving = False
-        self._tag_inputs: dict[str, Input] = {}
+        self._tag_inputs: dict[str, TagInput] = {}
 
     @property
     def lw(self) -> LotwatchApp:
@@ -84,11 +84,12 @@ class LotEntryScreen(ModalScreen[None]):
                         validators.insert(0, required(f.name))
                     hint = ("known: " + ", ".join(clean(v, 12) for v in known[:6])
                             + (" …" if len(known) > 6 else "")) if known else "type a value"
-                    inp = Input(placeholder=hint, suggester=SuggestFromList(known),
-                                validators=validators, compact=True, id=_tag_id(f.name))
-                    inp.tooltip = f"{f.name}: → accepts the suggestion"
+                    inp = TagInput(known, placeholder=hint, validators=validators,
+                                   compact=True, id=_tag_id(f.name))
+                    inp.tooltip = Text(f"{clean(f.name, 20)}: → accepts the suggestion, "
+                                       "↑/↓ step through known values")
                     self._tag_inputs[f.name] = inp
-                    yield Label(label)
+                    yield Label(Text(label))
                     yield inp
                 yield Label("Values *")
                 yield Input(placeholder="e.g. 10.2 10.3 (several values: spaces)",
@@ -105,7 +106,7 @@ class LotEntryScreen(ModalScreen[None]):
                 yield Input(placeholder="optional", compact=True, id="note", max_length=500)
             yield Static("", id="info")
             yield Static("", id="problems")
-            yield Static("Enter save · Esc cancel · Tab next field · → take suggestion · "
+            yield Static("Enter save · Esc cancel · Tab next · → or ↑↓ known value · "
                          "* required", id="keys", markup=False)
 
     def on_mount(self) -> None:

@@ -83,6 +83,7 @@ class HelpScreen(ModalScreen[None]):
         from tui.screens.entry import LotEntryScreen
         from tui.screens.main import MainScreen
         from tui.screens.review import ReviewScreen
+        from tui.widgets.tag_input import TagInput
 
         text = Text()
         text.append("lotwatch help (↑/↓ scroll, Esc close)\n\n", style="bold")
@@ -93,6 +94,7 @@ class HelpScreen(ModalScreen[None]):
             ("Weekly review", ReviewScreen.BINDINGS),
             ("Alerts", AlertsScreen.BINDINGS),
             ("Lot entry form", LotEntryScreen.BINDINGS),
+            ("Tag fields of the form", TagInput.BINDINGS),
             ("Acknowledge", AcknowledgeScreen.BINDINGS),
         ]:
             text.append_text(binding_lines(title, bindings))

@@ -67,7 +67,7 @@ class ReviewScreen(Screen[None]):
 
     def show_review(self, review: ReviewView) -> None:
         head = Text(no_wrap=False)
-        head.append(f"Weekly review {clean(review.window_label, 30)}", style="bold")
+        head.append(f"Weekly review {clean(review.window_label, 44)}", style="bold")
         head.append(f": {review.family_size} comparisons, q = {review.fdr_method.upper()} "
                     f"false-discovery-adjusted p (level {review.fdr_level:g}). "
                     "[ ] week · Enter open · p record (opens/clears alerts) · k acknowledge")
@@ -75,16 +75,17 @@ class ReviewScreen(Screen[None]):
         t = self.query_one(DataTable)
         keep = t.cursor_row
         self.rows = list(review.rows)
-        headers = ["characteristic", "factor", "k", "n", "F", "p", "q", "ω²", "shift", "alert"]
-        right = [False, False, True, True, True, True, True, True, True, False]
+        # p is left to the drill-in (Enter): at 80 columns the alert state needs the room.
+        headers = ["characteristic", "factor", "k", "n", "F", "q", "ω²", "shift", "alert"]
+        right = [False, False, True, True, True, True, True, True, False]
         rows, styles = [], []
         for r in self.rows:
             alert = r.alert_state or ("–" if r.status == "ok" else r.status)
             rows.append([clean(r.characteristic, 16), clean(r.factor, 8), str(r.k),
-                         str(r.n_total), num(r.f, 3), pval(r.p), pval(r.q),
+                         str(r.n_total), num(r.f, 3), pval(r.q),
                          num(r.omega_squared, 2), num(r.largest_shift, 3), clean(alert, 15)])
             hot = r.alert_state == "open"
-            styles.append(["bold" if hot else ""] * 9 + ["bold reverse" if hot else ""])
+            styles.append(["bold" if hot else ""] * 8 + ["bold reverse" if hot else ""])
         fill(t, headers, right, rows, keys=[str(i) for i in range(len(rows))], styles=styles)
         if self.rows:
             t.move_cursor(row=min(keep, len(self.rows) - 1))
