@@ -333,3 +333,34 @@ async def test_a_failed_save_keeps_the_form_and_its_contents(small_store, monkey
         assert app.screen is form
         assert form.query_one("#values", Input).value == "10.01"
         assert "What you typed is kept" in screen_text(app)
+
+
+async def test_recording_the_review_opens_alerts_and_read_only_refuses(small_store):
+    from store import Store
+    from store.alerts import list_alerts
+
+    path, _ = small_store
+    ro = LotwatchApp(path, read_only=True)
+    async with ro.run_test(size=SIZE) as pilot:
+        await _started(pilot)
+        await pilot.press("r")
+        await settle(pilot, lambda: ro.review is not None)
+        await pilot.press("p")
+        await settle(pilot)
+        assert any("recording reviews is disabled" in m for m in notifications(ro))
+    with Store.open(path, read_only=True) as store:
+        assert list_alerts(store) == []
+
+    app = LotwatchApp(path)
+    async with app.run_test(size=SIZE) as pilot:
+        await _started(pilot)
+        await pilot.press("r")
+        await settle(pilot, lambda: app.review is not None)
+        await pilot.press("p")
+        await settle(pilot, lambda: any("Review recorded" in m for m in notifications(app)))
+        # bore runs 0.15 mm high at East (sd 0.05, tolerance 1 mm): the review opens it.
+        await settle(pilot, lambda: any(r.alert_state == "open" and r.characteristic == "bore"
+                                        and r.factor == "site" for r in app.review.rows))
+    with Store.open(path, read_only=True) as store:
+        opened = [(a.characteristic, a.factor, a.state) for a in list_alerts(store)]
+    assert ("bore", "site", "open") in opened

@@ -48,6 +48,8 @@ class MainScreen(Screen[None]):
                 key_display="["),
         Binding("right_square_bracket", "later_week", "Later week", show=False,
                 key_display="]"),
+        Binding("pagedown", "page(1)", "Scroll tab down", show=False, priority=True),
+        Binding("pageup", "page(-1)", "Scroll tab up", show=False, priority=True),
         Binding("1", "tab('groups')", "Groups", show=False),
         Binding("2", "tab('tests')", "Tests", show=False),
         Binding("3", "tab('trend')", "Trend", show=False),
@@ -126,9 +128,10 @@ class MainScreen(Screen[None]):
         lst = self.query_one(CharacteristicList)
         lst.show(overview.characteristics, overview.states, self.lw.view.characteristic)
         if not overview.characteristics:
-            self.query_one(AnovaPanel).show_message(
-                "This store has no characteristics yet. Add one with: "
-                "lotwatch characteristic add NAME --unit U --resolution R")
+            empty = ("This store has no characteristics yet. Add one with: lotwatch "
+                     "characteristic add NAME --unit U --resolution R (it appears here at once).")
+            self.query_one(AnovaPanel).show_message(empty)
+            self.query_one("#letters", Static).update(Text(empty))
         head = self.query_one("#alerts-head", Static)
         n = len(overview.open_alerts)
         n_open = sum(1 for a in overview.open_alerts if a.state == "open")
@@ -144,7 +147,13 @@ class MainScreen(Screen[None]):
         self._show_trend(detail)
         letters = detail.battery.letters
         letter_text = Text(no_wrap=False)
-        if letters:
+        if len(detail.battery.groups) < 2:
+            n = len(detail.battery.groups)
+            letter_text.append(
+                f"Not enough data in {clean(detail.window_label, 40)}: {n} group(s) with at "
+                f"least the minimum lots. Log lots with n, choose another window with w, or "
+                "another factor with f.")
+        elif letters:
             letter_text.append(f"{detail.battery.recommendation.posthoc} letters "
                                "(groups sharing a letter do not differ): ", style="italic")
             letter_text.append(", ".join(f"{clean(g, 12)} {clean(s, 6)}"
@@ -156,7 +165,7 @@ class MainScreen(Screen[None]):
             for i, r in enumerate(detail.recent):
                 if i:
                     recent.append(" · ")
-                recent.append_text(literal(r.lot, 18))
+                recent.append_text(literal(r.lot, 24))
                 recent.append(" ")
                 recent.append_text(literal(r.level, 12))
                 recent.append(f" {clean(r.values, 24)} ({r.measured_at})")
@@ -200,6 +209,18 @@ class MainScreen(Screen[None]):
 
     def action_later_week(self) -> None:
         self.lw.shift_week(+1)
+
+    def action_page(self, step: int) -> None:
+        """Scroll the shown tab a page, whatever has focus (the list keeps ↑/↓)."""
+        tabs = self.query_one(TabbedContent)
+        pane = self.query_one(f"#{tabs.active}", TabPane)
+        for widget in pane.query("VerticalScroll, DataTable"):
+            if widget.max_scroll_y > 0:
+                if step > 0:
+                    widget.scroll_page_down()
+                else:
+                    widget.scroll_page_up()
+                return
 
     def action_tab(self, tab: str) -> None:
         self.query_one(TabbedContent).active = tab

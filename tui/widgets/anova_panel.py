@@ -48,7 +48,7 @@ def companion_lines(detail: DetailView) -> list[Text]:
         lines.append(Text(f"Kruskal-Wallis: H = {num(k.statistic)} on {num(k.df, 3)} df, "
                           f"p = {pval(k.p)}"))
     else:
-        lines.append(Text(f"Kruskal-Wallis: {clean(k.sentence or k.status)}"))
+        lines.append(Text(clean(k.sentence or f"Kruskal-Wallis: {k.status}")))
     lines.append(Text("Variance check: ", style="bold")
                  + Text(clean(b.brown_forsythe.sentence or b.brown_forsythe.status)))
     lines.append(Text("Residual check: ", style="bold")
