@@ -233,10 +233,10 @@ def _last_lots_walk(store: Store, characteristic_id: int, key: str, day_where: l
 
 
 _MEAS_SCHEMA = {
-    "id": pl.Int64, "lot_id": pl.Int64, "lot": pl.String, "characteristic": pl.String,
-    "unit": pl.String, "resolution": pl.String, "current_units": pl.Int64,
-    "original_units": pl.Int64, "voided": pl.Int64, "measured_at": pl.String,
-    "logged_at": pl.String, "logged_by": pl.String, "note": pl.String, "source": pl.String,
+    "id": pl.Int64, "lot": pl.String, "characteristic_id": pl.Int64,
+    "current_units": pl.Int64, "original_units": pl.Int64, "voided": pl.Int64,
+    "measured_at": pl.String, "logged_at": pl.String, "logged_by": pl.String,
+    "note": pl.String, "source": pl.String,
 }
 FIXED_COLUMNS = ("id", "lot", "characteristic", "value", "value_text", "unit", "measured_at",
                  "logged_at", "logged_by", "note", "source", "voided", "current_units",
@@ -274,13 +274,26 @@ def measurements_frame(store: Store, *, characteristic: str | None = None,
     if hi is not None:
         where.append("m.day <= ?")
         params.append(hi)
-    sql = ("SELECT m.id, m.lot_id, l.lot_code, c.name, c.unit, c.resolution, m.current_units, "
-           "m.original_units, m.voided, m.measured_at, m.logged_at, m.logged_by, m.note, "
-           "m.source FROM measurements m JOIN lots l ON l.id = m.lot_id "
-           "JOIN characteristics c ON c.id = m.characteristic_id"
-           + (" WHERE " + " AND ".join(where) if where else "") + " ORDER BY m.measured_at, m.id")
-    frame = pl.DataFrame(store.conn.execute(sql, params).fetchall(), schema=_MEAS_SCHEMA,
-                         orient="row")
+    keys = [f.name for f in store.factors()]
+    keys += [k for k in store.tag_keys() if k not in keys]
+    tag_cols = [f"tag_{k}" if k in FIXED_COLUMNS or k in _MEAS_SCHEMA else k for k in keys]
+    # One LEFT JOIN per tag key pivots the tags in SQLite (a handful of keys, PK lookups).
+    joins = "".join(f" LEFT JOIN lot_tags t{i} ON t{i}.lot_id = m.lot_id AND t{i}.key = ?"
+                    for i in range(len(keys)))
+    sql = ("SELECT m.id, l.lot_code, m.characteristic_id, m.current_units, m.original_units, "
+           "m.voided, m.measured_at, m.logged_at, m.logged_by, m.note, m.source"
+           + "".join(f", t{i}.value" for i in range(len(keys)))
+           + " FROM measurements m JOIN lots l ON l.id = m.lot_id" + joins
+           + (" WHERE " + " AND ".join(where) if where else ""))
+    schema = dict(_MEAS_SCHEMA) | {col: pl.String for col in tag_cols}
+    rows = store.conn.execute(sql, [*keys, *params]).fetchall()
+    frame = pl.DataFrame(rows, schema=schema, orient="row")
+    del rows
+    chars = pl.DataFrame(
+        [(c.id, c.name, c.unit, c.resolution) for c in store.characteristics()],
+        schema={"characteristic_id": pl.Int64, "characteristic": pl.String, "unit": pl.String,
+                "resolution": pl.String}, orient="row")
+    frame = frame.join(chars, on="characteristic_id", how="left")
     parts = []
     for res in frame["resolution"].unique().sort().to_list():
         part = frame.filter(pl.col("resolution") == res)
@@ -291,23 +304,14 @@ def measurements_frame(store: Store, *, characteristic: str | None = None,
             _text_expr("original_units", res).alias("original_text"),
         ))
     if parts:
-        frame = pl.concat(parts).sort("measured_at", "id")
+        frame = pl.concat(parts)
     else:
         frame = frame.with_columns(pl.lit(None, pl.Float64).alias("value"),
                                    pl.lit(None, pl.String).alias("value_text"),
                                    pl.lit(None, pl.Float64).alias("original_value"),
                                    pl.lit(None, pl.String).alias("original_text"))
-    keys = [f.name for f in store.factors()]
-    keys += [k for k in store.tag_keys() if k not in keys]
-    tags = pl.DataFrame(
-        store.conn.execute("SELECT lot_id, key, value FROM lot_tags").fetchall(),
-        schema={"lot_id": pl.Int64, "key": pl.String, "value": pl.String}, orient="row")
-    tag_cols: list[str] = []
-    for key in keys:
-        col = f"tag_{key}" if key in FIXED_COLUMNS or key == "lot_id" else key
-        sub = tags.filter(pl.col("key") == key).select("lot_id", pl.col("value").alias(col))
-        frame = frame.join(sub, on="lot_id", how="left", maintain_order="left")
-        tag_cols.append(col)
+    # measured_at text sorts like the instant it names (fixed-width UTC form)
+    frame = frame.sort("measured_at", "id")
     return frame.select(
         "id", "lot", "characteristic", "value", "value_text", "unit", *tag_cols,
         _ts("measured_at").alias("measured_at"), _ts("logged_at").alias("logged_at"),
