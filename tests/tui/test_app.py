@@ -5,7 +5,7 @@ from __future__ import annotations
 import pytest
 from scipy import stats as sps
 from textual.widgets import Input
-from tui_helpers import notifications, screen_text, settle
+from tui_helpers import notifications, screen_text, settle, wait_until
 
 from tui.app import LotwatchApp
 from tui.data import login_name
@@ -364,3 +364,36 @@ async def test_recording_the_review_opens_alerts_and_read_only_refuses(small_sto
     with Store.open(path, read_only=True) as store:
         opened = [(a.characteristic, a.factor, a.state) for a in list_alerts(store)]
     assert ("bore", "site", "open") in opened
+
+
+async def test_a_slow_recompute_never_repaints_over_a_newer_one(small_store, monkeypatch):
+    import threading
+    import time
+
+    from tui import data
+
+    real = data.load_detail
+    slow_done = threading.Event()
+
+    def slow_for_site(path, read_only, request):
+        if request.factor != "site":
+            return real(path, read_only, request)
+        time.sleep(1.0)
+        try:
+            return real(path, read_only, request)
+        finally:
+            slow_done.set()
+
+    monkeypatch.setattr(data, "load_detail", slow_for_site)
+    path, _ = small_store
+    app = LotwatchApp(path)
+    async with app.run_test(size=SIZE) as pilot:
+        await wait_until(pilot, lambda: app.overview is not None and not app.overview.partial)
+        assert app.detail is None  # the site comparison is still computing
+        await pilot.press("f")  # line: fast
+        await wait_until(pilot, lambda: app.detail is not None)
+        assert app.detail.factor == "line"
+        await wait_until(pilot, slow_done.is_set)  # the slow site computation has finished
+        await pilot.pause(0.3)  # ... and had time to post its (stale) result
+        assert app.detail.factor == "line"
+        assert "bore by line" in screen_text(app)

@@ -62,3 +62,12 @@ def screen_text(app) -> str:
 
 def notifications(app) -> list[str]:
     return [n.message for n in app._notifications]
+
+
+async def wait_until(pilot, condition: Callable[[], bool], timeout: float = 8.0) -> None:
+    """Poll ``condition`` between pauses, without waiting for workers to finish."""
+    deadline = time.monotonic() + timeout
+    while not condition():
+        if time.monotonic() > deadline:
+            raise AssertionError("the app did not reach the expected state in time")
+        await pilot.pause(0.02)

@@ -37,7 +37,10 @@ MEANINGS = [
     ("q-values",
      "Each week many comparisons (characteristic x factor) are tested. q = p adjusted for that "
      "family by Benjamini-Hochberg: among comparisons with q below 0.05, about 5% or fewer are "
-     "expected to be false alarms. Alerts open on q, not p."),
+     "expected to be false alarms. An alert opens on q, not p, and only when the largest shift "
+     "also reaches a practical size (the characteristic's min shift, else a share of the "
+     "tolerance) in k of the last m windows (review settings; 2 of 3 unless changed). It clears "
+     "after m windows without a signal."),
     ("Detectable shift",
      "When nothing is significant: the smallest shift of one group from the others that the F "
      "test would detect with 80% power at these group sizes and this within-group SD. "
@@ -49,6 +52,11 @@ MEANINGS = [
 ]
 
 
+KEY_NAMES = {"escape": "Esc", "enter": "Enter", "pagedown": "PgDn", "pageup": "PgUp",
+             "down": "↓", "up": "↑", "question_mark": "?", "slash": "/", "tab": "Tab",
+             "left_square_bracket": "[", "right_square_bracket": "]"}
+
+
 def binding_lines(title: str, bindings: list[BindingType]) -> Text:
     """One line per binding: keys and description."""
     text = Text()
@@ -56,7 +64,8 @@ def binding_lines(title: str, bindings: list[BindingType]) -> Text:
     for b in bindings:
         if not isinstance(b, Binding) or not b.description:
             continue
-        keys = b.key_display or ", ".join(k.strip() for k in b.key.split(","))
+        keys = b.key_display or ", ".join(KEY_NAMES.get(k.strip(), k.strip())
+                                          for k in b.key.split(","))
         text.append(f"  {keys:<12}", style="bold")
         text.append(f"{b.description}")
         if b.tooltip:
