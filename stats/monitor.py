@@ -286,36 +286,42 @@ def bucket_cube(buckets: pl.DataFrame, comparisons: Sequence[Comparison], *, fir
     primary key). Rows of other comparisons or outside the day range are ignored.
     """
     comps = list(comparisons)
+    index = {(c.characteristic, c.factor): i for i, c in enumerate(comps)}
     ndays = (last_day - first_day).days + 1
     b = buckets.filter((pl.col("day") >= first_day) & (pl.col("day") <= last_day))
-    b = b.with_columns(
-        pl.col("characteristic").cast(pl.String), pl.col("factor").cast(pl.String),
-        pl.col("level").cast(pl.String))
-    comp_tab = pl.DataFrame({"characteristic": [c.characteristic for c in comps],
-                             "factor": [c.factor for c in comps],
-                             "c": list(range(len(comps)))},
-                            schema={"characteristic": pl.String, "factor": pl.String, "c": pl.Int64})
-    b = b.join(comp_tab, on=["characteristic", "factor"], how="inner")
-    lv_tab = (b.select("c", "level").unique().sort("c", "level")
-              .with_columns(pl.int_range(pl.len()).over("c").alias("g")))
-    levels: list[list[str]] = [[] for _ in comps]
-    for c, lv in lv_tab.select("c", "level").iter_rows():
-        levels[c].append(lv)
+    # Runs of equal (characteristic, factor, level): one run per key when the frame is sorted
+    # (as the store returns it); correct, only slower, when it is not. Keys are resolved once
+    # per run, so no string work is done per row.
+    keys = ["characteristic", "factor", "level"]
+    run = b.select(pl.struct(keys).rle_id().alias("r"))["r"].to_numpy() if b.height else \
+        np.zeros(0, dtype=np.int64)
+    heads = b[np.flatnonzero(np.r_[True, run[1:] != run[:-1]]) if b.height else [], keys]
+    level_sets: list[set[str]] = [set() for _ in comps]
+    run_key = []
+    for ch, fa, lv in heads.iter_rows():
+        c = index.get((str(ch), str(fa)), -1)
+        if c >= 0:
+            level_sets[c].add(str(lv))
+        run_key.append((c, str(lv)))
+    levels = [sorted(x) for x in level_sets]
+    lv_index = [{lv: g for g, lv in enumerate(x)} for x in levels]
     kmax = max([len(x) for x in levels] + [1])
     shape = (len(comps), kmax, ndays + 1)
     cum_n = np.zeros(shape, dtype=np.int64)
     cum_s1 = np.zeros(shape, dtype=np.int64)
     cum_s2 = np.zeros(shape, dtype=np.int64)
     if b.height:
-        b = b.join(lv_tab, on=["c", "level"], how="inner")
-        ci = b["c"].to_numpy()
-        gi = b["g"].to_numpy()
+        run_c = np.array([c for c, _ in run_key], dtype=np.int64)
+        run_g = np.array([lv_index[c][lv] if c >= 0 else -1 for c, lv in run_key], dtype=np.int64)
+        ci, gi = run_c[run], run_g[run]
+        keep = ci >= 0
         t = (b["day"].cast(pl.Int32).to_numpy() - _epoch_day(first_day)) + 1
+        ci, gi, t = ci[keep], gi[keep], t[keep]
         # one bucket per (comparison, level, day), as the store's primary key guarantees:
         # plain assignment, no accumulation needed
-        cum_n[ci, gi, t] = b["n"].to_numpy()
-        cum_s1[ci, gi, t] = b["sum_d"].to_numpy()
-        cum_s2[ci, gi, t] = b["sum_d2"].to_numpy()
+        cum_n[ci, gi, t] = b["n"].to_numpy()[keep]
+        cum_s1[ci, gi, t] = b["sum_d"].to_numpy()[keep]
+        cum_s2[ci, gi, t] = b["sum_d2"].to_numpy()[keep]
         np.cumsum(cum_n, axis=2, out=cum_n)
         np.cumsum(cum_s1, axis=2, out=cum_s1)
         np.cumsum(cum_s2, axis=2, out=cum_s2)

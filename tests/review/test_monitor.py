@@ -306,3 +306,25 @@ def test_windows_before_and_after_the_data_are_empty():
             assert gs.n[1, 0].tolist() == [4, 4]
         else:
             assert gs.n[1].sum() == 0
+
+
+def test_bucket_cube_does_not_depend_on_row_order():
+    """The store returns buckets sorted; any order must give the same cube."""
+    rng = np.random.default_rng(2)
+    n = 400
+    raw = pl.DataFrame({"characteristic": rng.choice(["a", "b"], n).tolist(),
+                        "factor": rng.choice(["site", "line"], n).tolist(),
+                        "level": rng.choice(["L1", "L2", "L3"], n).tolist(),
+                        "day": [DAY0 + timedelta(days=int(d)) for d in rng.integers(0, 30, n)],
+                        "u": rng.integers(-50, 50, n)})
+    b = _buckets(raw, 0)
+    comps = [mon.Comparison(c, f, 0, 1.0) for c in "ab" for f in ("site", "line")]
+    last = DAY0 + timedelta(days=29)
+    one = mon.bucket_cube(b.sort("characteristic", "factor", "level", "day"), comps,
+                          first_day=DAY0, last_day=last)
+    two = mon.bucket_cube(b.sample(fraction=1.0, shuffle=True, seed=3), comps, first_day=DAY0,
+                          last_day=last)
+    assert one.levels == two.levels
+    for x, y in ((one.cum_n, two.cum_n), (one.cum_s1, two.cum_s1), (one.cum_s2, two.cum_s2)):
+        np.testing.assert_array_equal(x, y)
+    assert one.cum_n[:, :, -1].sum() == n
