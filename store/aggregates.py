@@ -82,6 +82,7 @@ def lot_factor_levels(conn: sqlite3.Connection, lot_id: int) -> list[tuple[str, 
     ).fetchall()
 
 
+# One factor at a time: grouping 1M rows three times is faster than 3M rows once.
 _RECOMPUTE = """
 SELECT m.characteristic_id AS characteristic_id, t.key AS factor, t.value AS level, m.day AS day,
        count(*) AS n,
@@ -89,10 +90,9 @@ SELECT m.characteristic_id AS characteristic_id, t.key AS factor, t.value AS lev
        sum((m.current_units - c.origin_units) * (m.current_units - c.origin_units)) AS sum_d2
 FROM measurements m
 JOIN characteristics c ON c.id = m.characteristic_id
-JOIN lot_tags t ON t.lot_id = m.lot_id
-JOIN factors f ON f.name = t.key
-WHERE m.voided = 0 {extra}
-GROUP BY m.characteristic_id, t.key, t.value, m.day
+JOIN lot_tags t ON t.lot_id = m.lot_id AND t.key = ?
+WHERE m.voided = 0
+GROUP BY m.characteristic_id, t.value, m.day
 """
 
 
@@ -100,7 +100,7 @@ def backfill_factor(conn: sqlite3.Connection, factor: str) -> int:
     """Build the buckets of a newly added factor from stored lots' tags (caller holds the
     write transaction). Returns the number of bucket rows made."""
     sql = ("INSERT INTO buckets(characteristic_id, factor, level, day, n, sum_d, sum_d2) "
-           + _RECOMPUTE.format(extra="AND t.key = ?"))
+           + _RECOMPUTE)
     cur = conn.execute(sql, (factor,))
     return cur.rowcount
 
@@ -118,7 +118,9 @@ def check(store: Store) -> CheckReport:
         problems.append(f"foreign key: {table} row {rowid} points to a missing {parent} row")
     # A few thousand rows each way: compare in Python after one pass of the recomputation.
     cols = "characteristic_id, factor, level, day, n, sum_d, sum_d2"
-    fresh = {r[:4]: r[4:] for r in conn.execute(_RECOMPUTE.format(extra=""))}
+    fresh = {}
+    for (factor,) in conn.execute("SELECT name FROM factors").fetchall():
+        fresh.update((r[:4], r[4:]) for r in conn.execute(_RECOMPUTE, (factor,)))
     kept = {r[:4]: r[4:] for r in conn.execute(f"SELECT {cols} FROM buckets")}
     bad_keys = sorted(k for k in fresh.keys() | kept.keys() if fresh.get(k) != kept.get(k))
     for key in bad_keys[:20]:
