@@ -195,6 +195,7 @@ def log_lots(store: Store, entries: Sequence[LotEntry], *, round_values: bool = 
     now = now_utc()
     now_s = format_stored(now)
     conn = store.conn
+
     def prepare_all(chars: dict[str, Characteristic]) -> tuple[dict, list[_Prepared]]:
         problems: dict[int, list[RowProblem]] = {}
         good: list[_Prepared] = []
@@ -284,7 +285,8 @@ def log_lots(store: Store, entries: Sequence[LotEntry], *, round_values: bool = 
                     continue
                 at = f" (row {first.row})" if first.row is not None else ""
                 problems.setdefault(p.index, []).append(_problem(
-                    e, e.column or "value", ", ".join(e.values),
+                    e, e.column or "value",
+                    ", ".join(format_units(u, p.char.resolution) for u in p.units),
                     f"lot {p.lot!r} has {p.char.name} twice in this input with different "
                     f"values{at}"))
                 continue
