@@ -382,6 +382,10 @@ class LotwatchApp(App[None]):
             self.post_message(WriteFailed(group, message))
         elif group == "detail" and self.main_screen is not None:
             self.main_screen.show_detail_problem(message)
+        elif group == "overview" and self.main_screen is not None:
+            self.main_screen.refresh_status(note="store not read")
+        elif group == "review" and isinstance(screen, ReviewScreen):
+            screen.show_problem(message)
         elif group == "poll":  # the poller died: keep watching with a fresh one
             self.set_timer(1.0, self._poll_store)
         self.notify(message, title="Problem", severity="error", markup=False, timeout=12)

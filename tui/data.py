@@ -20,6 +20,8 @@ from typing import TYPE_CHECKING, Any
 if TYPE_CHECKING:
     from stats.results import BatteryResult
     from store import Store
+    from store.alerts import Alert, AlertEvent
+    from tui.review_engine import ComparisonSummary
 
 
 # --- what the screens show ---------------------------------------------------------------------
@@ -239,64 +241,27 @@ def _char_info(c: Any) -> CharacteristicInfo:
     )
 
 
-def _attr(obj: Any, name: str, default: Any = None) -> Any:
-    if isinstance(obj, dict):
-        return obj.get(name, default)
-    return getattr(obj, name, default)
+def _alert_row(a: Alert) -> AlertRow:
+    return AlertRow(id=a.id, characteristic=a.characteristic, factor=a.factor, state=a.state,
+                    opened_at=a.opened_at, opened_window=a.opened_window,
+                    last_window=a.last_window, groups=", ".join(a.groups) or None,
+                    direction=a.direction, size=a.size, q=a.q, updated_at=a.updated_at)
 
 
-def _alert_row(a: Any) -> AlertRow:
-    return AlertRow(
-        id=int(_attr(a, "id")),
-        characteristic=str(_attr(a, "characteristic", "")),
-        factor=str(_attr(a, "factor", "")),
-        state=str(_attr(a, "state", "")),
-        opened_at=str(_attr(a, "opened_at", "")),
-        opened_window=_attr(a, "opened_window"),
-        last_window=_attr(a, "last_window"),
-        groups=_groups_text(_attr(a, "groups")),
-        direction=_attr(a, "direction"),
-        size=_attr(a, "size"),
-        q=_attr(a, "q"),
-        updated_at=_attr(a, "updated_at"),
-    )
-
-
-def _groups_text(groups: Any) -> str | None:
-    if groups is None:
-        return None
-    if isinstance(groups, (list, tuple)):
-        return ", ".join(str(g) for g in groups)
-    return str(groups)
-
-
-def _event_row(e: Any) -> AlertEventRow:
-    details = _attr(e, "details") or {}
-    text = details.get("text") if isinstance(details, dict) else None
-    return AlertEventRow(at=str(_attr(e, "at", "")), event=str(_attr(e, "event", "")),
-                         by=_attr(e, "by"), note=_attr(e, "note"), window=_attr(e, "window"),
+def _event_row(e: AlertEvent) -> AlertEventRow:
+    text = e.details.get("text") if isinstance(e.details, dict) else None
+    return AlertEventRow(at=e.at, event=e.event, by=e.by, note=e.note, window=e.window,
                          text=str(text) if text else None)
 
 
-def _comparison_row(c: Any, alert_ids: dict[tuple[str, str], int]) -> ComparisonRow:
-    key = (c.characteristic, c.factor)
+def _comparison_row(c: ComparisonSummary) -> ComparisonRow:
     return ComparisonRow(
         characteristic=c.characteristic, factor=c.factor, window_label=c.window_label, k=c.k,
         n_total=c.n_total, f=c.f, p=c.p, welch_p=c.welch_p, q=c.q,
         omega_squared=c.omega_squared, largest_shift=c.largest_shift,
         largest_shift_group=c.largest_shift_group, detectable_shift=c.detectable_shift,
-        alert_state=c.alert_state, status=c.status,
-        alert_id=c.alert_id if c.alert_id is not None else alert_ids.get(key),
+        alert_state=c.alert_state, status=c.status, alert_id=c.alert_id,
     )
-
-
-def _alert_ids(rows: list[AlertRow]) -> dict[tuple[str, str], int]:
-    """Latest alert id per (characteristic, factor) among not-cleared alerts."""
-    out: dict[tuple[str, str], int] = {}
-    for a in sorted(rows, key=lambda r: r.id):
-        if a.state != "cleared":
-            out[(a.characteristic, a.factor)] = a.id
-    return out
 
 
 def read_alerts(store: Store, state: str | None = None) -> list[AlertRow]:
@@ -440,14 +405,12 @@ def _day_text(value: Any) -> str:
 
 
 def load_review(path: Path, read_only: bool, week: str | None) -> ReviewView:
-    """Every comparison of ``week`` (None = the latest), sorted by q, with alert ids attached."""
+    """Every comparison of ``week`` (None = up to today), sorted by q (undefined q last)."""
     from tui.review_engine import run_review
 
     with opened(path, read_only) as store:
         review = run_review(store, week=week, persist=False)
-        alerts = read_alerts(store)
-    ids = _alert_ids(alerts)
-    rows = _sort_q([_comparison_row(c, ids) for c in review.comparisons])
+    rows = _sort_q([_comparison_row(c) for c in review.comparisons])
     return ReviewView(week=week, window_label=review.window_label,
                       family_size=review.family_size, fdr_method=review.fdr_method,
                       fdr_level=review.fdr_level, rows=rows)

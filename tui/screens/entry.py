@@ -13,6 +13,7 @@ from textual import on
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Grid, Vertical
+from textual.css.query import NoMatches
 from textual.screen import ModalScreen
 from textual.widgets import Input, Label, Select, Static
 
@@ -24,11 +25,6 @@ from tui.widgets.tag_input import TagInput
 
 if TYPE_CHECKING:
     from tui.app import LotwatchApp
-
-
-def _tag_id(factor: str) -> str:
-    """A widget id for a factor's input (factor names may hold any characters)."""
-    return "tag-" + "".join(ch if ch.isalnum() else "_" for ch in factor) + f"-{abs(hash(factor))}"
 
 
 class LotEntryScreen(ModalScreen[None]):
@@ -76,7 +72,7 @@ class LotEntryScreen(ModalScreen[None]):
                              value=self._initial if self._initial else Select.NULL,
                              allow_blank=self._initial is None, compact=True,
                              id="characteristic")
-                for f in self.overview.factors:
+                for i, f in enumerate(self.overview.factors):
                     known = self.overview.tag_values.get(f.name, [])
                     label = clean(f.name, 11) + (" *" if f.required else "")
                     validators = [one_line(f.name)]
@@ -85,7 +81,7 @@ class LotEntryScreen(ModalScreen[None]):
                     hint = ("known: " + ", ".join(clean(v, 12) for v in known[:6])
                             + (" …" if len(known) > 6 else "")) if known else "type a value"
                     inp = TagInput(known, placeholder=hint, validators=validators,
-                                   compact=True, id=_tag_id(f.name))
+                                   compact=True, id=f"tag-{i}")
                     inp.tooltip = Text(f"{clean(f.name, 20)}: → accepts the suggestion, "
                                        "↑/↓ step through known values")
                     self._tag_inputs[f.name] = inp
@@ -126,7 +122,7 @@ class LotEntryScreen(ModalScreen[None]):
     def current_characteristic(self) -> CharacteristicInfo | None:
         try:
             value = self.query_one("#characteristic", Select).value
-        except Exception:  # during compose the Select does not exist yet
+        except NoMatches:  # validators run before the Select is mounted
             value = self._initial
         if value is Select.NULL or value is None:
             return None

@@ -90,6 +90,10 @@ class ReviewScreen(Screen[None]):
         if self.rows:
             t.move_cursor(row=min(keep, len(self.rows) - 1))
 
+    def show_problem(self, message: str) -> None:
+        self.query_one("#review-head", Static).update(
+            Text("Weekly review not computed: ", style="bold") + Text(clean(message, 300)))
+
     def _current(self) -> ComparisonRow | None:
         t = self.query_one(DataTable)
         if not self.rows or t.cursor_row < 0 or t.cursor_row >= len(self.rows):
