@@ -161,6 +161,7 @@ class TrendResult:
     lsl: float | None
     target: float | None
     usl: float | None
+    stats: mon.WindowStats | None = None
 
 
 def _clean(obj: Any) -> Any:
@@ -422,15 +423,29 @@ def trend(store, characteristic: str, factor: str, *, as_of: date | None = None,
                       schema={"window_end": pl.Date, "window": pl.String,
                               "grand_mean": pl.Float64}, orient="row")
     ch = chars[characteristic]
-    return TrendResult(ch, factor, plan, frame, gm, ch.lsl, ch.target, ch.usl)
+    return TrendResult(ch, factor, plan, frame, gm, ch.lsl, ch.target, ch.usl, ws)
 
 
 def window_values(store, characteristic: str, factor: str, window: mon.Window,
-                  settings: ReviewSettings) -> pl.DataFrame:
-    """The raw current values of one window (for the full battery)."""
+                  settings: ReviewSettings,
+                  first_days: dict[str, date | None] | None = None) -> pl.DataFrame:
+    """The raw current values of one window (for the full battery).
+
+    For "last_n" windows ``first_days`` gives each level's first day in the window (from
+    ``GroupSums.first_day``), so the battery sees exactly the values the bucket sums covered.
+    """
     if settings.window == "last_n":
-        return store.values_frame(characteristic, factor, until=window.end,
-                                  last_n=settings.last_n)
+        starts = {lv: d for lv, d in (first_days or {}).items() if d is not None}
+        if not starts:
+            return store.values_frame(characteristic, factor, until=window.end,
+                                      last_n=settings.last_n)
+        vals = store.values_frame(characteristic, factor, since=min(starts.values()),
+                                  until=window.end)
+        begin = pl.DataFrame({"level": list(starts), "first_day": list(starts.values())},
+                             schema={"level": pl.String, "first_day": pl.Date})
+        return (vals.join(begin, on="level", how="inner")
+                .filter(pl.col("measured_at").dt.date() >= pl.col("first_day"))
+                .drop("first_day"))
     return store.values_frame(characteristic, factor, since=window.start, until=window.end)
 
 
@@ -446,7 +461,10 @@ def comparison_detail(store, characteristic: str, factor: str, *, as_of: date | 
     tr = trend(store, characteristic, factor, as_of=day)
     latest = tr.windows[-1]
     ch = tr.characteristic
-    values = window_values(store, characteristic, factor, latest, settings)
+    firsts = None
+    if tr.stats is not None and tr.stats.sums.first_day:
+        firsts = dict(zip(tr.stats.sums.levels[0], tr.stats.sums.first_day[-1][0], strict=False))
+    values = window_values(store, characteristic, factor, latest, settings, firsts)
     names, samples = [], []
     for lv, part in sorted(values.partition_by("level", as_dict=True).items()):
         names.append(lv[0] if isinstance(lv, tuple) else lv)

@@ -313,3 +313,19 @@ def test_by_method_is_more_conservative(demo_replay):
         if c.q is not None:
             assert c.q >= qb[(c.characteristic, c.factor)] - 1e-15
     assert "Yekutieli" in by.family_statement and str(by.family_size) in by.family_statement
+
+
+@pytest.mark.parametrize("kind", ["trailing", "last_n", "week"])
+def test_detail_battery_sees_the_window_the_review_saw(tmp_path, kind):
+    """comparison_detail's battery (raw values) and the review (bucket sums) agree on the latest
+    window for every window kind: same N, same F (stats.run_battery as the oracle)."""
+    store = _weekly_store(tmp_path / "s.sqlite", {2, 3}, 4)
+    store.set_setting("review.window", kind)
+    store.set_setting("review.last_n", "13")
+    r = eng.run_review(store, as_of=_sunday(4) - timedelta(days=2), persist=False)
+    c = _state(r)
+    d = eng.comparison_detail(store, "x", "site", as_of=_sunday(4) - timedelta(days=2))
+    assert d.battery.anova.n_total == c.n_total
+    assert d.battery.anova.f == pytest.approx(c.f, rel=1e-9)
+    assert d.window_label == c.window_label
+    store.close()
