@@ -14,7 +14,7 @@ import sqlite3
 import threading
 from collections.abc import Iterable
 from dataclasses import dataclass
-from datetime import date, timedelta
+from datetime import UTC, date, datetime, timedelta
 from pathlib import Path
 
 from textual import work
@@ -86,9 +86,8 @@ def describe_error(exc: BaseException | None, task: str) -> str:
 
     if exc is None:
         return f"{task} failed for an unknown reason. The app keeps running; try again."
-    said = clean(str(exc), 400).strip()
-    if said and said[-1] not in ".!?":
-        said += "."
+    raw = clean(str(exc), 400).strip()
+    said = raw + ("." if raw and raw[-1] not in ".!?" else "")
     said = said[:1].upper() + said[1:]
     # The store's messages already say what happened and what to do; add only what the app
     # itself knows: that the form keeps what was typed.
@@ -106,15 +105,20 @@ def describe_error(exc: BaseException | None, task: str) -> str:
     if isinstance(exc, StoreError):
         return said
     if isinstance(exc, sqlite3.Error):
-        return (f"{task}: the store could not be read or written ({said}). If the file was "
+        return (f"{task}: the store could not be read or written ({raw}). If the file was "
                 "moved, replaced or damaged, quit and reopen it (lotwatch check can verify it).")
     if isinstance(exc, OSError):
-        return f"{task}: {said}. Check the disk and the file's permissions."
-    return (f"{task} failed unexpectedly ({type(exc).__name__}: {said}). The app keeps "
+        return f"{task}: {raw}. Check the disk and the file's permissions."
+    return (f"{task} failed unexpectedly ({type(exc).__name__}: {raw}). The app keeps "
             "running; please report this with what you did just before.")
 
 
 # --- weeks ---------------------------------------------------------------------------------------
+
+
+def utc_today() -> date:
+    """Today's date in UTC: the review engine's default review day."""
+    return datetime.now(UTC).date()
 
 
 def iso_week(day: date) -> str:
@@ -136,7 +140,7 @@ def shift_week(label: str, step: int) -> str:
     """The ISO week ``step`` weeks after ``label``."""
     monday = parse_week(label)
     if monday is None:
-        monday = date.today()
+        monday = utc_today()
     return iso_week(monday + timedelta(weeks=step))
 
 
@@ -530,7 +534,7 @@ class LotwatchApp(App[None]):
 
     def shift_week(self, step: int) -> None:
         """Move the windows' end a week back or forth; forth from this week returns to today."""
-        this_week = iso_week(date.today())
+        this_week = iso_week(utc_today())
         base = self.view.week or this_week
         target = shift_week(base, step)
         if parse_week(target) >= parse_week(this_week):  # type: ignore[operator]
@@ -540,11 +544,10 @@ class LotwatchApp(App[None]):
         self.choose()
 
     def shift_review_week(self, step: int) -> None:
-        base = self.review_week
-        if base is None:
-            label = self.review.window_label if self.review else ""
-            base = label.strip()[:8] if parse_week(label) else iso_week(date.today())
-        self.review_week = shift_week(base, step)
+        """The review of a week earlier or later; later than this week means up to today."""
+        this_week = iso_week(utc_today())
+        target = shift_week(self.review_week or this_week, step)
+        self.review_week = None if parse_week(target) >= parse_week(this_week) else target  # type: ignore[operator]
         self.request_review()
 
     def drill_into(self, characteristic: str, factor: str, week: str | None) -> None:
