@@ -359,12 +359,14 @@ class WeeklyReport:
 
 
 def build_weekly_report(store, *, week: str | None = None, as_of=None,
-                        fdr_method: str | None = None) -> WeeklyReport:
-    """Run (and record) the review, then gather every active alert's battery and trend."""
+                        fdr_method: str | None = None, persist: bool = True) -> WeeklyReport:
+    """Run the review (recording it, as ``lotwatch review`` does, unless ``persist`` is False),
+    then gather every active alert's battery and trend."""
     from store import alerts as store_alerts
     from tui import review_engine as eng
 
-    result = eng.run_review(store, week=week, as_of=as_of, fdr_method=fdr_method)
+    result = eng.run_review(store, week=week, as_of=as_of, fdr_method=fdr_method,
+                            persist=persist)
     latest = result.windows[-1].label
     sections, new, cleared = [], [], []
     for c in result.comparisons:

@@ -110,11 +110,15 @@ def review_command(week: str | None, as_of: str | None, fmt: str, fail_on_alert:
               help="Report file: .md for Markdown, .html for a self-contained web page.")
 @click.option("--fdr", "fdr", type=click.Choice(["bh", "by"]), default=None,
               help="False-discovery control (default: the store's setting, bh).")
+@click.option("--dry-run", is_flag=True,
+              help="Do not record the review's alert changes (the report shows them as they stand).")
 @db_option
 @store_errors
 def report_command(week: str | None, as_of: str | None, out: Path, fdr: str | None,
-                   db_path: Path) -> None:
+                   dry_run: bool, db_path: Path) -> None:
     """Write the weekly review report: alerts, the family table, each alert's battery and trend.
+
+    The review is recorded as by `lotwatch review` (re-running it changes nothing).
 
     Example: lotwatch report --week 2026-W48 --out w48.html
     """
@@ -130,7 +134,8 @@ def report_command(week: str | None, as_of: str | None, out: Path, fdr: str | No
     if day is not None and wk is not None:
         raise UserError("give either --week or --as-of, not both")
     with open_store(db_path) as store:
-        rep = _run(build_weekly_report, store, week=wk, as_of=day, fdr_method=fdr)
+        rep = _run(build_weekly_report, store, week=wk, as_of=day, fdr_method=fdr,
+                   persist=not dry_run)
     text = report_markdown(rep) if suffix == ".md" else report_html(rep)
     tmp = out.with_name(out.name + ".part")
     try:
