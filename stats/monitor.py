@@ -622,7 +622,8 @@ class AlertDecision:
     count: int  # windows with a signal among the last M
 
 
-def decide_alert(history: Sequence[bool], previous: str | None, *, k: int, m: int) -> AlertDecision:
+def decide_alert(history: Sequence[bool], previous: str | None, *, k: int, m: int,
+                 latest_testable: bool = True) -> AlertDecision:
     """The K-of-M rule with hysteresis, as a pure function of the last windows and the state.
 
     ``history``: signal per window, oldest first, the latest last (only the last ``m`` count;
@@ -632,6 +633,8 @@ def decide_alert(history: Sequence[bool], previous: str | None, *, k: int, m: in
     * no alert / cleared: opens ("opened" / "reopened") when ≥ k of the last m windows signal.
     * open / acknowledged: stays ("held") while any of the last m windows signals; clears when
       none of them does (absent for m windows). An acknowledgement survives holds.
+    * ``latest_testable`` False (the latest window had not enough data for a test): an alert is
+      held, not cleared; missing data is not evidence that the difference has gone.
     """
     if previous is not None and previous not in ALERT_STATES:
         raise ValueError(f"unknown alert state {previous!r}")
@@ -640,7 +643,7 @@ def decide_alert(history: Sequence[bool], previous: str | None, *, k: int, m: in
         if count >= k:
             return AlertDecision("open", "opened" if previous is None else "reopened", count)
         return AlertDecision(previous, None, count)
-    if count == 0:
+    if count == 0 and latest_testable:
         return AlertDecision("cleared", "cleared", count)
     return AlertDecision(previous, "held", count)
 

@@ -336,7 +336,8 @@ def run_review(store, *, as_of: date | None = None, week: str | None = None,
         previous = store_alerts.latest_alert(store, comp.characteristic, comp.factor)
         prev_state = previous.state if previous else None
         decision = mon.decide_alert(sig[:, c].tolist(), prev_state, k=settings.alert_k,
-                                    m=settings.alert_m)
+                                    m=settings.alert_m,
+                                    latest_testable=ws.status[W, c] != mon.NOT_ENOUGH)
         event = decision.event
         if event == "held" and previous is not None and previous.last_window == latest.label:
             event = None  # this window was already recorded

@@ -330,3 +330,11 @@ def test_bucket_cube_does_not_depend_on_row_order():
     for x, y in ((one.cum_n, two.cum_n), (one.cum_s1, two.cum_s1), (one.cum_s2, two.cum_s2)):
         np.testing.assert_array_equal(x, y)
     assert one.cum_n[:, :, -1].sum() == n
+
+
+def test_no_data_holds_rather_than_clears():
+    """A window without enough data is no evidence the difference has gone: hold, don't clear."""
+    d = mon.decide_alert([False, False, False], "open", k=2, m=3, latest_testable=False)
+    assert (d.state, d.event) == ("open", "held")
+    d = mon.decide_alert([False, False, False], None, k=2, m=3, latest_testable=False)
+    assert (d.state, d.event) == (None, None)
