@@ -14,7 +14,7 @@ from store.errors import BadInput, Conflict, NotFound, RowProblem
 from store.lots import _range_problem
 from store.model import AuditEntry
 from store.timeutil import format_stored, now_utc
-from store.values import BadValue, FinerThanResolution, format_units, parse_decimal, to_units
+from store.values import BadValue, FinerThanResolution, format_units, text_to_units
 
 if TYPE_CHECKING:
     from store.connection import Store
@@ -56,8 +56,7 @@ def correct(store: Store, measurement_id: int, new_value: str, *, reason: str,
             raise Conflict(f"measurement {mid} (lot {lot!r}, {char.name}) is voided; "
                            "a voided measurement cannot be corrected")
         try:
-            dec = parse_decimal(new_value)
-            units, _ = to_units(dec, char.resolution, round_values=round_value)
+            units, _ = text_to_units(new_value, char.resolution, round_values=round_value)
         except FinerThanResolution as exc:
             raise BadInput([RowProblem(
                 "command line", None, "value", str(new_value),
@@ -67,7 +66,7 @@ def correct(store: Store, measurement_id: int, new_value: str, *, reason: str,
         except BadValue as exc:
             raise BadInput([RowProblem("command line", None, "value", str(new_value),
                                        f"{exc} ({char.name})")]) from None
-        problem = _range_problem(units, dec, char)
+        problem = _range_problem(units, char)
         if problem:
             raise BadInput([RowProblem("command line", None, "value", str(new_value), problem)])
         if units == cur:

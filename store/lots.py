@@ -20,7 +20,6 @@ import secrets
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 from datetime import datetime
-from decimal import Decimal
 from typing import TYPE_CHECKING
 
 from store.aggregates import Deltas
@@ -32,8 +31,9 @@ from store.values import (
     BadValue,
     FinerThanResolution,
     format_units,
-    parse_decimal,
-    to_units,
+    scale_of,
+    scaled_bound,
+    text_to_units,
 )
 
 if TYPE_CHECKING:
@@ -141,8 +141,7 @@ def _prepare(i: int, e: LotEntry, chars: dict[str, Characteristic], now: datetim
     if char is not None:
         for j, text in enumerate(values):
             try:
-                dec = parse_decimal(text)
-                u, was_rounded = to_units(dec, char.resolution, round_values=round_values)
+                u, was_rounded = text_to_units(text, char.resolution, round_values=round_values)
             except FinerThanResolution as exc:
                 problems.append(_problem(
                     e, column, text,
@@ -152,7 +151,7 @@ def _prepare(i: int, e: LotEntry, chars: dict[str, Characteristic], now: datetim
             except BadValue as exc:
                 problems.append(_problem(e, column, text, f"{exc} ({char.name})", j))
                 continue
-            reason = _range_problem(u, dec, char)
+            reason = _range_problem(u, char)
             if reason:
                 problems.append(_problem(e, column, text, reason, j))
                 continue
@@ -165,15 +164,21 @@ def _prepare(i: int, e: LotEntry, chars: dict[str, Characteristic], now: datetim
                      rounded=rounded, row=_row_of(e))
 
 
-def _range_problem(units: int, dec: Decimal, c: Characteristic) -> str | None:
+def _range_problem(units: int, c: Characteristic) -> str | None:
+    """Why a value (in units) is implausible for ``c``, or None. Exact: compares units * m with
+    the limits times 10**k."""
     lo, hi = c.plausible_low, c.plausible_high
-    value = format_units(units, c.resolution)
-    if (lo is not None and dec < Decimal(repr(lo))) or (hi is not None and dec > Decimal(repr(hi))):
+    m, _ = scale_of(c.resolution)
+    scaled = units * m
+    if ((lo is not None and scaled < scaled_bound(lo, c.resolution))
+            or (hi is not None and scaled > scaled_bound(hi, c.resolution))):
         lo_t = "-inf" if lo is None else f"{lo:g}"
         hi_t = "+inf" if hi is None else f"{hi:g}"
+        value = format_units(units, c.resolution)
         return (f"{_with_unit(value, c)} is outside the plausible range {lo_t} to "
                 f"{_with_unit(hi_t, c)} of {c.name}")
     if abs(units - c.origin_units) > MAX_ABS_D:
+        value = format_units(units, c.resolution)
         return (f"{_with_unit(value, c)} is more than {MAX_ABS_D:,} resolution steps away from "
                 f"the origin of {c.name}; check the value or the resolution")
     return None

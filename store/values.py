@@ -10,6 +10,7 @@ request) is half-even ("banker's rounding", IEEE 754 roundTiesToEven; Python ``d
 from __future__ import annotations
 
 import math
+import re
 from decimal import ROUND_HALF_EVEN, Context, Decimal, InvalidOperation, localcontext
 from functools import lru_cache
 
@@ -93,6 +94,38 @@ def to_units(value: Decimal, resolution: str, *, round_values: bool = False) -> 
     if not round_values:
         raise FinerThanResolution(value)
     return int(whole), True
+
+
+_PLAIN = re.compile(r"\s*(-?)(\d+)(?:\.(\d+))?\s*\Z")
+
+
+def text_to_units(text: object, resolution: str, *,
+                  round_values: bool = False) -> tuple[int, bool]:
+    """Parse a value and convert it to units: ``to_units(parse_decimal(text), ...)``.
+
+    Plain decimals ("500.1", "-3", "0.050") that fit the resolution exactly take an integer
+    fast path (value * 10**k is the digit string; units = that / m); everything else, including
+    values needing rounding, goes through ``decimal``. Both give identical results.
+    """
+    if isinstance(text, str):
+        match = _PLAIN.match(text)
+        if match:
+            m, k = _scale(resolution)
+            sign, whole, frac = match.groups()
+            frac = frac or ""
+            if len(frac) <= k:
+                n = int(whole + frac + "0" * (k - len(frac)))
+                q, r = divmod(-n if sign else n, m)
+                if r == 0:
+                    return q, False
+    return to_units(parse_decimal(text), resolution, round_values=round_values)
+
+
+@lru_cache(maxsize=1024)
+def scaled_bound(bound: float, resolution: str) -> Decimal:
+    """A float limit times 10**k, exactly (compare with ``units * m``)."""
+    _, k = _scale(resolution)
+    return Decimal(repr(bound)).scaleb(k)
 
 
 class FinerThanResolution(BadValue):

@@ -10,10 +10,19 @@ from decimal import Decimal
 
 import polars as pl
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from store import BadInput, Conflict, LotEntry, NotFound, Store
 from store.timeutil import BadTime, format_local, format_stored, to_utc
-from store.values import BadValue, choose_origin, format_units, parse_decimal, to_units
+from store.values import (
+    BadValue,
+    choose_origin,
+    format_units,
+    parse_decimal,
+    text_to_units,
+    to_units,
+)
 
 TAGS = {"site": "north", "line": "1", "shift": "day"}
 
@@ -37,6 +46,21 @@ def test_rounding_is_half_even() -> None:
     assert to_units(Decimal("500.175"), "0.05", round_values=True) == (10004, True)
     assert to_units(Decimal("0.25"), "0.1", round_values=True) == (2, True)
     assert to_units(Decimal("0.35"), "0.1", round_values=True) == (4, True)
+
+
+@settings(max_examples=300, deadline=None)
+@given(st.integers(-10**7, 10**7), st.integers(0, 4), st.integers(0, 2),
+       st.sampled_from(["0.1", "0.05", "1", "0.25", "100", "0.001"]), st.booleans())
+def test_fast_path_equals_decimal_path(n: int, decimals: int, pad: int, res: str,
+                                       rounding: bool) -> None:
+    text = format(Decimal(n).scaleb(-decimals), "f") + ("0" * pad if decimals else "")
+    try:
+        expected = to_units(parse_decimal(text), res, round_values=rounding)
+    except BadValue as exc:
+        with pytest.raises(type(exc)):
+            text_to_units(text, res, round_values=rounding)
+    else:
+        assert text_to_units(text, res, round_values=rounding) == expected
 
 
 @pytest.mark.parametrize("text", ["nan", "NaN", "inf", "-Infinity", "abc", "", "1,5", "--1"])
@@ -144,6 +168,9 @@ def test_not_a_number(fill: Store, dump, entry, text: str, reason: str) -> None:
 def test_outside_plausible_range(fill: Store, dump, entry) -> None:
     _refused(fill, dump, [entry("650.0", "L9")],
              re.escape("650.0 mL is outside the plausible range 400 to 600 mL of fill_volume"))
+    _refused(fill, dump, [entry("399.9", "L9")], "outside the plausible range")
+    _refused(fill, dump, [entry("600.1", "L9")], "outside the plausible range")
+    assert fill.log_lots([entry("400.0", "L9"), entry("600", "L10")]).stored == 2  # inclusive
 
 
 def test_missing_required_tag(fill: Store, dump, entry) -> None:
