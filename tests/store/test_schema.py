@@ -317,3 +317,40 @@ def test_closed_store_refuses_writes(store_path: Path) -> None:
     s.close()  # idempotent
     with pytest.raises(StoreError, match="closed"):
         s.set_setting("a", "b")
+
+
+def test_older_store_is_upgraded_on_open(store_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    Store.create(store_path).close()
+
+    def to_next(conn: sqlite3.Connection) -> None:
+        conn.execute("CREATE TABLE extra (id INTEGER PRIMARY KEY) STRICT")
+
+    nxt = schema.SCHEMA_VERSION + 1
+    monkeypatch.setitem(schema.MIGRATIONS, nxt, to_next)
+    monkeypatch.setattr(schema, "SCHEMA_VERSION", nxt)
+    with pytest.raises(StoreReadOnly, match="older store format"):
+        Store.open(store_path, read_only=True)  # a read-only open never upgrades
+    with Store.open(store_path) as s:
+        assert schema.user_version(s.conn) == nxt
+        assert schema.has_table(s.conn, "extra")
+        assert s.info()["schema_version"] == str(nxt)
+        assert s.info()["created_by"] == schema.LOTWATCH_VERSION
+
+
+def test_failed_upgrade_leaves_store_as_it_was(store_path: Path,
+                                               monkeypatch: pytest.MonkeyPatch) -> None:
+    Store.create(store_path).close()
+
+    def broken(conn: sqlite3.Connection) -> None:
+        conn.execute("CREATE TABLE half (id INTEGER PRIMARY KEY) STRICT")
+        raise RuntimeError("migration bug")
+
+    nxt = schema.SCHEMA_VERSION + 1
+    monkeypatch.setitem(schema.MIGRATIONS, nxt, broken)
+    monkeypatch.setattr(schema, "SCHEMA_VERSION", nxt)
+    with pytest.raises(RuntimeError, match="migration bug"):
+        Store.open(store_path)
+    monkeypatch.undo()
+    with Store.open(store_path) as s:
+        assert schema.user_version(s.conn) == schema.SCHEMA_VERSION
+        assert not schema.has_table(s.conn, "half")
