@@ -107,6 +107,8 @@ def describe_error(exc: BaseException | None, task: str) -> str:
     if isinstance(exc, sqlite3.Error):
         return (f"{task}: the store could not be read or written ({raw}). If the file was "
                 "moved, replaced or damaged, quit and reopen it (lotwatch check can verify it).")
+    if isinstance(exc, ValueError):  # the review engine's word for a bad setting or week
+        return f"{task}: {raw}."
     if isinstance(exc, OSError):
         return f"{task}: {raw}. Check the disk and the file's permissions."
     return (f"{task} failed unexpectedly ({type(exc).__name__}: {raw}). The app keeps "
@@ -599,6 +601,11 @@ class LotwatchApp(App[None]):
                 if a.id == alert_id:
                     return a
         return None
+
+    def action_help_quit(self) -> None:
+        """ctrl+c does not quit; say which key does (never ctrl+q: flow control over SSH)."""
+        where = " (Esc closes this first)" if isinstance(self.screen, ModalScreen) else ""
+        self.notify(f"Press q to quit lotwatch{where}.", title="Quit?", markup=False)
 
     def action_review(self) -> None:
         self.switch_mode("review")
