@@ -493,6 +493,8 @@ class LatestWindow:
     other days). A new level or characteristic triggers a full reload.
     """
 
+    PER_NAME_READS = 3  # beyond this many characteristics one whole-day read is cheaper
+
     def __init__(self, store, *, as_of: date | None = None) -> None:
         self.store = store
         self.settings = review_settings(store)
@@ -516,30 +518,44 @@ class LatestWindow:
         self.day_s2 = np.diff(cube.cum_s2, axis=2)
         self._compute()
 
-    def refresh_day(self, day: date) -> None:
-        """Bring the window up to date after writes on ``day`` (UTC)."""
+    def refresh_day(self, day: date, characteristics: list[str] | None = None) -> None:
+        """Bring the window up to date after writes on ``day`` (UTC).
+
+        ``characteristics``: the ones written (a logged ``LotEntry`` names one); only their
+        buckets of that day are re-read (one read per characteristic, each a short scan of the
+        characteristic's own buckets). None, or more than a few, re-reads the whole day at once.
+        """
         if self.window.start is None or not (self.window.start <= day <= self.window.end):
             return
-        b = self.store.bucket_frame(since=day, until=day)
+        names: list[str | None] = [None]
+        if characteristics is not None and len(set(characteristics)) <= self.PER_NAME_READS:
+            names = list(dict.fromkeys(characteristics))
+        if any(n is not None and n not in self.chars for n in names):
+            self.reload()  # a characteristic new to this window
+            return
         t = (day - self.window.start).days
-        cs, gs, ns, s1, s2 = [], [], [], [], []
-        for ch, fa, lv, _, n, a, q in b.iter_rows():
-            c = self._ci.get((ch, fa))
-            g = self._lv.get((c, lv)) if c is not None else None
-            if g is None:  # a characteristic, factor or level new to this window
-                self.reload()
-                return
-            cs.append(c)
-            gs.append(g)
-            ns.append(n)
-            s1.append(a)
-            s2.append(q)
-        self.day_n[:, :, t] = 0
-        self.day_s1[:, :, t] = 0
-        self.day_s2[:, :, t] = 0
-        self.day_n[cs, gs, t] = ns
-        self.day_s1[cs, gs, t] = s1
-        self.day_s2[cs, gs, t] = s2
+        for name in names:
+            b = self.store.bucket_frame(characteristic=name, since=day, until=day)
+            cs, gs, ns, s1, s2 = [], [], [], [], []
+            for ch, fa, lv, _, n, a, q in b.iter_rows():
+                c = self._ci.get((ch, fa))
+                g = self._lv.get((c, lv)) if c is not None else None
+                if g is None:  # a factor or level new to this window
+                    self.reload()
+                    return
+                cs.append(c)
+                gs.append(g)
+                ns.append(n)
+                s1.append(a)
+                s2.append(q)
+            rows = slice(None) if name is None else [
+                i for i, x in enumerate(self.comps) if x.characteristic == name]
+            self.day_n[rows, :, t] = 0
+            self.day_s1[rows, :, t] = 0
+            self.day_s2[rows, :, t] = 0
+            self.day_n[cs, gs, t] = ns
+            self.day_s1[cs, gs, t] = s1
+            self.day_s2[cs, gs, t] = s2
         self._compute()
 
     def _compute(self) -> None:
