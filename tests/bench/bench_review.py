@@ -25,7 +25,8 @@ Measured (medians over repeats; CPU time is shared, so expect noise):
   (``LatestWindow.refresh_day`` re-reads that day's buckets of the characteristics written),
   with the schema as it is and with an index on ``buckets(day)`` added to the benchmark store
   (a suggested schema change);
-* memory: tracemalloc peak of one full review (a separate, untimed pass);
+* memory: tracemalloc peak of one full review (a separate, untimed pass), and the peak resident
+  set size of a fresh process that opens the store and runs one full review;
 * ``--ten-million``: the same on 10,000,000 measurements, review cost relative to 1M (this build
   takes several minutes and ~2 GB of disk, hence optional).
 
@@ -238,11 +239,36 @@ _LOT_NUMBERS = itertools.count()  # distinct lot codes across calls
 
 
 def memory_peak(store: Store) -> float:
+    """tracemalloc peak (Python and numpy allocations; polars' own allocator is not traced)."""
     tracemalloc.start()
     full_review(store)
     _, peak = tracemalloc.get_traced_memory()
     tracemalloc.stop()
     return peak / 2**20
+
+
+_RSS_PROBE = """
+import resource, sys
+sys.path.insert(0, {root!r}); sys.path.insert(0, {bench!r})
+import bench_review as b
+from store import Store
+store = Store.open({path!r}, read_only=True)
+before = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+b.full_review(store)
+after = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+print(before, after)
+"""
+
+
+def rss_peak(path: Path) -> tuple[float, float]:
+    """Peak resident set size (MB) of a fresh process after imports and opening the store, and
+    after one full review (Linux ru_maxrss is in KiB)."""
+    import subprocess
+
+    code = _RSS_PROBE.format(root=str(ROOT), bench=str(Path(__file__).parent), path=str(path))
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True).stdout.split()
+    return int(out[0]) / 1024, int(out[1]) / 1024
 
 
 def main() -> None:
@@ -287,7 +313,9 @@ def main() -> None:
               f"median {t_idx * 1000:.2f} ms")
         store.conn.execute("DROP INDEX bench_buckets_day")
         peak = memory_peak(store)
-        print(f"memory peak of one full review (tracemalloc): {peak:.1f} MB")
+        base_rss, rss = rss_peak(path)
+        print(f"memory of one full review: tracemalloc peak {peak:.1f} MB; process peak RSS "
+              f"{rss:.0f} MB ({base_rss:.0f} MB after imports and opening the store)")
         store.close()
         if args.ten_million:
             big = Path(tmp) / "big.sqlite"
@@ -296,9 +324,11 @@ def main() -> None:
             print(f"built 10,000,000 measurements in {time.perf_counter() - t0:.0f} s")
             t_big, _ = timed(lambda: full_review(bstore), reps)
             big_peak = memory_peak(bstore)
+            big_base, big_rss = rss_peak(big)
             print(f"full review at 10M: median {t_big * 1000:.1f} ms, "
-                  f"{t_big / t_rev:.2f}x the 1M cost (goal <= 2x); memory peak {big_peak:.1f} MB "
-                  f"(goal < 300 MB)")
+                  f"{t_big / t_rev:.2f}x the 1M cost (goal <= 2x); tracemalloc peak "
+                  f"{big_peak:.1f} MB, process peak RSS {big_rss:.0f} MB ({big_base:.0f} MB "
+                  f"before the review; goal < 300 MB)")
             bstore.close()
     print(f"(process CPU time ratio, less sensitive to other load on the machine: "
           f"{CPU['baseline'] / CPU['review']:.1f}x)")
