@@ -349,6 +349,8 @@ class LotwatchApp(App[None]):
                         store = Store.open(self.db_path, read_only=self.read_only)
                         identity = current
                         last_version = store.data_version()
+                        if getattr(store, "immutable", False):
+                            last_version = hash((last_version, data.file_stamp(self.db_path)))
                         if replaced or trouble is not None:
                             report("The store file was replaced or restored; showing its "
                                    "current contents.", "", recovered=True)
@@ -359,6 +361,8 @@ class LotwatchApp(App[None]):
                 else:
                     try:
                         version = store.data_version()
+                        if getattr(store, "immutable", False):
+                            version = hash((version, data.file_stamp(self.db_path)))
                     except (sqlite3.Error, StoreError) as exc:
                         report(f"Reading the store failed: {clean(str(exc), 200)}",
                                "lotwatch will try to reopen it.")

@@ -230,6 +230,21 @@ def file_identity(path: Path) -> tuple[int, int] | None:
     return (st.st_dev, st.st_ino)
 
 
+def file_stamp(path: Path) -> tuple[int, ...]:
+    """Modification times and sizes of the store file and its WAL: a change detector for stores
+    opened ``immutable`` (read-only in a folder we cannot write), where SQLite's own
+    ``data_version`` never moves."""
+    out: list[int] = []
+    for p in (path, Path(f"{path}-wal")):
+        try:
+            st = os.stat(p)
+        except FileNotFoundError:
+            out += [0, 0]
+        else:
+            out += [st.st_mtime_ns, st.st_size]
+    return tuple(out)
+
+
 # --- loaders -----------------------------------------------------------------------------------
 
 
