@@ -147,8 +147,8 @@ def values_frame(store: Store, characteristic: str, factor: str, *, since: date 
             # CROSS JOIN fixes the loop order: picked lots first, then their measurements.
             sql = ("SELECT m.id, l.lot_code, t.value, m.measured_at, m.current_units "
                    f"FROM {temp} p CROSS JOIN measurements m ON m.lot_id = p.id "
-                   "JOIN lots l ON l.id = m.lot_id "
-                   "JOIN lot_tags t ON t.lot_id = m.lot_id AND t.key = ? "
+                   "CROSS JOIN lots l ON l.id = m.lot_id "
+                   "CROSS JOIN lot_tags t ON t.lot_id = m.lot_id AND t.key = ? "
                    "WHERE " + " AND ".join(where) + " ORDER BY m.measured_at, m.id")
             rows = store.conn.execute(sql, params).fetchall()
         finally:
