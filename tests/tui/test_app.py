@@ -397,3 +397,29 @@ async def test_a_slow_recompute_never_repaints_over_a_newer_one(small_store, mon
         await pilot.pause(0.3)  # ... and had time to post its (stale) result
         assert app.detail.factor == "line"
         assert "bore by line" in screen_text(app)
+
+
+async def test_acknowledging_from_the_weekly_review(alert_store):
+    from store import Store
+    from store.alerts import alert_history
+
+    path, alert_id = alert_store
+    app = LotwatchApp(path)
+    async with app.run_test(size=SIZE) as pilot:
+        await _started(pilot)
+        await pilot.press("r")
+        await settle(pilot, lambda: app.review is not None)
+        rows = app.review.rows
+        target = next(i for i, r in enumerate(rows) if r.alert_id == alert_id)
+        table = app.screen.query_one("#review-table")
+        table.move_cursor(row=target)
+        await pilot.press("k")
+        await pilot.pause()
+        assert isinstance(app.screen, AcknowledgeScreen)
+        await pilot.press(*"East gauge recalibrated")
+        await pilot.press("enter")
+        await settle(pilot, lambda: not isinstance(app.screen, AcknowledgeScreen))
+    with Store.open(path, read_only=True) as store:
+        notes = [(e.by, e.note) for e in alert_history(store, alert_id)
+                 if e.event == "acknowledged"]
+    assert notes == [(login_name(), "East gauge recalibrated")]
