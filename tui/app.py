@@ -387,8 +387,6 @@ class LotwatchApp(App[None]):
         group = worker.group
         screen = self.screen
         if group in ("write-lot", "write-ack"):
-            if isinstance(screen, (LotEntryScreen, AcknowledgeScreen)):
-                screen.save_failed(message)
             self.post_message(WriteFailed(group, message))
         elif group == "detail" and self.main_screen is not None:
             self.main_screen.show_detail_problem(message)
@@ -399,6 +397,12 @@ class LotwatchApp(App[None]):
         elif group == "poll":  # the poller died: keep watching with a fresh one
             self.set_timer(1.0, self._poll_store)
         self.notify(message, title="Problem", severity="error", markup=False, timeout=12)
+
+    def on_write_failed(self, message: WriteFailed) -> None:
+        """The form that asked for the write stays open with its contents and says why."""
+        screen = self.screen
+        if isinstance(screen, (LotEntryScreen, AcknowledgeScreen)):
+            screen.save_failed(message.message)
 
     # --- results ---------------------------------------------------------------------------
 
