@@ -627,9 +627,6 @@ class LotwatchApp(App[None]):
     def action_help(self) -> None:
         self.push_screen(HelpScreen())
 
-    def action_next_factor(self) -> None:
-        self.cycle_factor(+1)
-
     def get_system_commands(self, screen: Screen) -> Iterable[SystemCommand]:
         yield SystemCommand("Log a lot", "Open the lot entry form (n)", self.action_new_lot)
         yield SystemCommand("Weekly review", "Every comparison of a week sorted by q (r)",

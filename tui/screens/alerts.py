@@ -86,7 +86,6 @@ class AlertsScreen(Screen[None]):
         self.query_one(AlertList).focus()
         if self.lw.alerts is not None:
             self.show_alerts(self.lw.alerts)
-        self.lw.request_alerts()
         self._show_state()
 
     def on_screen_resume(self) -> None:

@@ -60,7 +60,6 @@ class ReviewScreen(Screen[None]):
         t.focus()
         if self.lw.review is not None:
             self.show_review(self.lw.review)
-        self.lw.request_review()
 
     def on_screen_resume(self) -> None:
         self.lw.request_review()
