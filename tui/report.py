@@ -171,7 +171,10 @@ def _alert_lines(result: Any, *, clean) -> list[str]:
 
 
 def alert_sentence(c: Any) -> str:
-    """The alert's sentence for a comparison (always ending with the caution)."""
+    """The alert's sentence for a comparison (always ending with the caution): the stored
+    alert's description when there is one, else this review's numbers."""
+    if getattr(c, "alert_text", None):
+        return c.alert_text
     from tui.review_engine import alert_text
 
     size = abs(c.largest_shift) if c.largest_shift is not None else None
@@ -212,6 +215,7 @@ def render_review_md(result: Any) -> str:
     lines += family_table_md(result)
     lines += [ln if ln else "" for ln in _status_lines(result, clean=md_escape)]
     lines += _alert_lines(result, clean=md_escape)
+    lines += [f"\nNote: {md_escape(n)}" for n in result.notes]
     lines += ["", f"*{CAUTION}*", ""]
     return "\n".join(lines)
 
@@ -420,6 +424,8 @@ def report_markdown(rep: WeeklyReport) -> str:
     lines.append(f"Open alerts: {len(rep.sections)}. New this window: {len(rep.new_alerts)}. "
                  f"Cleared this window: {len(rep.cleared)}.")
     lines.append("")
+    for n in r.notes:
+        lines += [f"Note: {md_escape(n)}", ""]
     for c in rep.new_alerts:
         lines.append(f"- new: {md_escape(alert_sentence(c))}")
     for s in rep.sections:
@@ -432,7 +438,8 @@ def report_markdown(rep: WeeklyReport) -> str:
     lines += [ln for ln in _status_lines(r, clean=md_escape)]
     for s in rep.sections:
         c, b = s.summary, s.detail.battery
-        lines += ["", f"## Alert {c.alert_id}: {md_escape(c.characteristic)} by "
+        aid = c.alert_id or "(replayed)"
+        lines += ["", f"## Alert {aid}: {md_escape(c.characteristic)} by "
                   f"{md_escape(c.factor)}", "", md_escape(alert_sentence(c)), "",
                   "### ANOVA table", ""]
         lines += _anova_md(b)
@@ -480,7 +487,9 @@ def report_html(rep: WeeklyReport) -> str:
              f"<p>As of {e(r.as_of.isoformat())}. {e(settings_sentence(r))}</p>",
              f"<p>{e(r.family_statement)}</p>", "<h2>Summary</h2>",
              f"<p>Open alerts: {len(rep.sections)}. New this window: {len(rep.new_alerts)}. "
-             f"Cleared this window: {len(rep.cleared)}.</p><ul>"]
+             f"Cleared this window: {len(rep.cleared)}.</p>"]
+    parts += [f"<p>Note: {e(n)}</p>" for n in r.notes]
+    parts.append("<ul>")
     for c in rep.new_alerts:
         parts.append(f'<li class="alert">new: {e(alert_sentence(c))}</li>')
     for s in rep.sections:
@@ -506,7 +515,8 @@ def report_html(rep: WeeklyReport) -> str:
     for s in rep.sections:
         c, b = s.summary, s.detail.battery
         a = b.anova
-        parts += [f"<h2>Alert {c.alert_id}: {e(c.characteristic)} by {e(c.factor)}</h2>",
+        aid = c.alert_id or "(replayed)"
+        parts += [f"<h2>Alert {aid}: {e(c.characteristic)} by {e(c.factor)}</h2>",
                   f'<p class="alert">{e(alert_sentence(c))}</p>', "<h3>ANOVA table</h3>",
                   _html_table(["source", "df", "SS", "MS", "F", "p"], [
                       ["Between groups", a.df_between, fit(a.ss_between, 10),

@@ -76,6 +76,7 @@ class ComparisonSummary:
     test: str = "F"  # the test whose p feeds q: "F" or "Welch" (Bartlett p < alpha)
     bartlett_p: float | None = None
     p_used: float | None = None
+    alert_text: str | None = None  # the active alert's sentence (with the caution)
 
     def to_dict(self) -> dict[str, Any]:
         d = {k: getattr(self, k) for k in self.__dataclass_fields__}
@@ -281,99 +282,134 @@ def alert_text(characteristic: str, factor: str, groups: list[str], direction: s
             f"{size_s}{frac} in {window}{qs}. {CAUTION}")
 
 
+REPLAY_WINDOWS = 12  # windows replayed to reconstruct alert states for an earlier review
+
+
 def run_review(store, *, as_of: date | None = None, week: str | None = None,
                fdr_method: str | None = None, fdr_level: float | None = None,
                persist: bool = True, by: str | None = None) -> ReviewResult:
     """Evaluate every characteristic × factor over the review's windows and update alerts.
 
     ``fdr_method``/``fdr_level`` default to the store's settings (BH at 0.05). With ``persist``
-    the alert transitions are recorded unless a later review has already been recorded.
-    Raises ``ValueError`` for a bad week/date/setting, ``StoreError`` from the store.
+    the alert transitions are recorded. A review dated before the latest recorded one records
+    nothing; its alert states are reconstructed by replaying the K-of-M rule over the
+    ``REPLAY_WINDOWS`` windows up to its date (acknowledgements are not replayed), and a note
+    says so. Raises ``ValueError`` for a bad week/date/setting, ``StoreError`` from the store.
     """
     from store import alerts as store_alerts
 
     settings = review_settings(store, fdr_method=fdr_method, fdr_level=fdr_level)
     day = resolve_as_of(as_of=as_of, week=week)
-    windows = mon.window_plan(day, settings, settings.alert_m)
-    latest = windows[-1]
+    m = settings.alert_m
+    last_recorded = store.get_setting(LAST_REVIEW_KEY)
+    historical = bool(last_recorded) and date.fromisoformat(last_recorded) > day
+    record = persist and not getattr(store, "read_only", False) and not historical
+    notes: list[str] = []
+    if historical:
+        notes.append(f"a review up to {last_recorded} is already recorded, so this earlier "
+                     "review changes no alert; the alert states shown are what the K-of-M rule "
+                     f"gives at {day.isoformat()}, replayed over the {REPLAY_WINDOWS} windows "
+                     "before it (acknowledgements are not replayed)")
+    plan = mon.window_plan(day, settings, max(m, REPLAY_WINDOWS) if historical else m)
+    windows = plan[-m:]
+    latest = plan[-1]
     label = f"{week.upper()} ({latest.label})" if week else latest.label
     comps, chars = comparisons_of(store)
-    notes: list[str] = []
     if not comps:
         return ReviewResult(day, label, 0, settings.fdr_method, settings.fdr_level, [], [], [],
                             settings, windows, False, ["the store has no characteristics yet"])
-    ws = compute_windows(store, comps, windows, settings)
+    ws = compute_windows(store, comps, plan, settings)
     q, sizes = mon.family_fdr(ws.p_used, settings.fdr_method)
     detect = mon.detectable_shift(ws, alpha=settings.alpha)
     sig, gates = mon.signals(ws, q, settings, detect)
-    W = len(windows) - 1
+    W = len(plan) - 1
 
-    last_recorded = store.get_setting(LAST_REVIEW_KEY)
-    record = persist and not getattr(store, "read_only", False)
-    if record and last_recorded and date.fromisoformat(last_recorded) > day:
-        record = False
-        notes.append(f"a review up to {last_recorded} is already recorded: alert states shown "
-                     "as they stand and not changed by this earlier review")
+    def describe(w: int, c: int, anom: dict[str, str]) -> tuple[list[str], str | None,
+                                                                  float | None, float | None]:
+        """Groups driving window w's difference (ANOM flags on the side of the largest shift,
+        after the largest-shift group), direction, size and size / tolerance."""
+        ch = chars[comps[c].characteristic]
+        shift = _f(ws.largest_shift[w, c])
+        direction = None if shift is None else ("higher" if shift > 0 else "lower")
+        side = "above" if direction == "higher" else "below"
+        top = ws.group_name(c, int(ws.largest_group[w, c]))
+        groups = ([top] if top else []) + [lv for lv, fl in anom.items()
+                                           if fl == side and lv != top]
+        tol = (ch.usl - ch.lsl) if ch.lsl is not None and ch.usl is not None else None
+        size = abs(shift) if shift is not None else None
+        return groups, direction, size, (size / tol if size is not None and tol else None)
 
     summaries: list[ComparisonSummary] = []
     transitions: list[tuple[int, store_alerts.Transition]] = []
     for c, comp in enumerate(comps):
         ch = chars[comp.characteristic]
-        g = int(ws.largest_group[W, c])
-        shift = _f(ws.largest_shift[W, c])
         anom = _anom(ws, W, c, settings.alpha)
-        direction = None if shift is None else ("higher" if shift > 0 else "lower")
-        # the groups driving a signal: ANOM flags on the side of the largest shift, else the
-        # largest-shift group alone
-        side = "above" if direction == "higher" else "below"
-        top = ws.group_name(c, g)
-        flagged = [lv for lv, fl in anom.items() if fl == side]
-        groups = ([top] if top else []) + [lv for lv in flagged if lv != top]
-        tol = (ch.usl - ch.lsl) if ch.lsl is not None and ch.usl is not None else None
-        size = abs(shift) if shift is not None else None
-        fraction = size / tol if size is not None and tol else None
+        groups, direction, size, fraction = describe(W, c, anom)
+        shift = _f(ws.largest_shift[W, c])
+        qv = _f(q[W, c])
         _, gate_src = mon.practical_gate(comp, settings)
         previous = store_alerts.latest_alert(store, comp.characteristic, comp.factor)
         prev_state = previous.state if previous else None
-        decision = mon.decide_alert(sig[:, c].tolist(), prev_state, k=settings.alert_k,
-                                    m=settings.alert_m,
-                                    latest_testable=ws.status[W, c] != mon.NOT_ENOUGH)
-        event = decision.event
-        if event == "held" and previous is not None and previous.last_window == latest.label:
-            event = None  # this window was already recorded
-        state = decision.state if record else prev_state
-        qv = _f(q[W, c])
+        text = None
+        event = None
+        if historical:
+            state = None
+            for i in range(m - 1, W + 1):  # replay the rule window by window
+                state = mon.decide_alert(sig[i - m + 1:i + 1, c].tolist(), state,
+                                         k=settings.alert_k, m=m,
+                                         latest_testable=ws.status[i, c] != mon.NOT_ENOUGH).state
+            alert_id = None
+            if state in ("open", "acknowledged"):
+                hits = [i for i in range(W + 1) if sig[i, c]]
+                w = hits[-1] if hits else W
+                g2, d2, s2, f2 = describe(w, c, anom if w == W else {})
+                text = alert_text(comp.characteristic, comp.factor, g2, d2, s2, ch.unit, f2,
+                                  plan[w].label, _f(q[w, c]))
+        else:
+            decision = mon.decide_alert(sig[W - m + 1:, c].tolist(), prev_state,
+                                        k=settings.alert_k, m=m,
+                                        latest_testable=ws.status[W, c] != mon.NOT_ENOUGH)
+            event = decision.event
+            if event == "held" and previous is not None and previous.last_window == latest.label:
+                event = None  # this window was already recorded
+            if not record:
+                event = None
+            state = decision.state if record else prev_state
+            alert_id = previous.id if previous else None
+            if record and event is not None:
+                t_groups, t_dir, t_size, t_frac, t_q = groups, direction, size, fraction, qv
+                if event in ("held", "cleared") and not sig[W, c] and previous is not None:
+                    # no signal in this window: the alert keeps describing its last signal
+                    t_groups, t_dir, t_size = previous.groups, previous.direction, previous.size
+                    t_frac, t_q = previous.size_fraction, previous.q
+                t_text = alert_text(comp.characteristic, comp.factor, t_groups, t_dir, t_size,
+                                    ch.unit, t_frac, latest.label, t_q)
+                details = {"text": t_text, "q": t_q, "p": _f(ws.p[W, c]), "f": _f(ws.f[W, c]),
+                           "welch_p": _f(ws.welch_p[W, c]), "gate": _f(gates[W, c]),
+                           "gate_source": gate_src, "signals_in_last_m": decision.count,
+                           "k": settings.alert_k, "m": m, "anom": anom,
+                           "family_size": int(sizes[W]), "fdr_method": settings.fdr_method,
+                           "signal_in_window": bool(sig[W, c]), "window_q": qv,
+                           "window_shift": shift, "window_end": latest.end.isoformat()}
+                transitions.append((len(summaries), store_alerts.Transition(
+                    comp.characteristic, comp.factor, event, latest.label, t_groups, t_dir,
+                    t_size, t_frac, t_q, details)))
+            elif previous is not None and state in ("open", "acknowledged"):
+                text = _stored_alert_text(previous, ch.unit)
         summaries.append(ComparisonSummary(
             characteristic=comp.characteristic, factor=comp.factor, window_label=latest.label,
             k=int(ws.k[W, c]), n_total=int(ws.n_total[W, c]), f=_f(ws.f[W, c]),
             p=_f(ws.p[W, c]), welch_f=_f(ws.welch_f[W, c]), welch_p=_f(ws.welch_p[W, c]), q=qv,
             omega_squared=_f(ws.omega_squared[W, c]), largest_shift=shift,
-            largest_shift_group=ws.group_name(c, g), detectable_shift=_f(detect[W, c]),
-            alert_state=state, status=str(ws.status[W, c]), excluded=ws.excluded(W, c),
-            eta_squared=_f(ws.eta_squared[W, c]), welch_df2=_f(ws.welch_df2[W, c]),
-            window_short=latest.short, gate=_f(gates[W, c]), gate_source=gate_src,
-            signal=bool(sig[W, c]), signal_history=[bool(x) for x in sig[:, c]],
-            event=event if record else None, alert_id=previous.id if previous else None,
-            anom=anom, groups=[x for x in groups if x], direction=direction,
+            largest_shift_group=ws.group_name(c, int(ws.largest_group[W, c])),
+            detectable_shift=_f(detect[W, c]), alert_state=state, status=str(ws.status[W, c]),
+            excluded=ws.excluded(W, c), eta_squared=_f(ws.eta_squared[W, c]),
+            welch_df2=_f(ws.welch_df2[W, c]), window_short=latest.short, gate=_f(gates[W, c]),
+            gate_source=gate_src, signal=bool(sig[W, c]),
+            signal_history=[bool(x) for x in sig[W - m + 1:, c]], event=event,
+            alert_id=alert_id, anom=anom, groups=groups, direction=direction,
             size_fraction=fraction, unit=ch.unit, test=str(ws.test[W, c]),
-            bartlett_p=_f(ws.bartlett_p[W, c]), p_used=_f(ws.p_used[W, c])))
-        if record and event is not None:
-            if event in ("held", "cleared") and not sig[W, c] and previous is not None:
-                # no signal in this window: the alert keeps describing its last signal
-                groups, direction, size = previous.groups, previous.direction, previous.size
-                fraction, qv = previous.size_fraction, previous.q
-            text = alert_text(comp.characteristic, comp.factor, groups, direction, size, ch.unit,
-                              fraction, latest.label, qv)
-            details = {"text": text, "q": qv, "p": _f(ws.p[W, c]), "f": _f(ws.f[W, c]),
-                       "welch_p": _f(ws.welch_p[W, c]), "gate": _f(gates[W, c]),
-                       "gate_source": gate_src, "signals_in_last_m": decision.count,
-                       "k": settings.alert_k, "m": settings.alert_m, "anom": anom,
-                       "family_size": int(sizes[W]), "fdr_method": settings.fdr_method,
-                       "signal_in_window": bool(sig[W, c]), "window_q": _f(q[W, c]),
-                       "window_shift": shift}
-            transitions.append((len(summaries) - 1, store_alerts.Transition(
-                comp.characteristic, comp.factor, event, latest.label, [x for x in groups if x],
-                direction, size, fraction, qv, details)))
+            bartlett_p=_f(ws.bartlett_p[W, c]), p_used=_f(ws.p_used[W, c]), alert_text=text))
 
     if record:
         with store.write():  # the transitions and the review date in one transaction
@@ -381,15 +417,25 @@ def run_review(store, *, as_of: date | None = None, week: str | None = None,
                                                       by=by or getattr(store, "user", None))
             store.set_setting(LAST_REVIEW_KEY, day.isoformat())
         for (i, _), alert in zip(transitions, written, strict=True):
-            s = summaries[i]
-            summaries[i] = ComparisonSummary(**{**s.__dict__, "alert_id": alert.id,
-                                                "alert_state": alert.state})
+            s_ = summaries[i]
+            active = alert.state in ("open", "acknowledged")
+            summaries[i] = ComparisonSummary(**{
+                **s_.__dict__, "alert_id": alert.id, "alert_state": alert.state,
+                "alert_text": _stored_alert_text(alert, s_.unit) if active else None})
     summaries.sort(key=lambda s: (s.q is None, s.q if s.q is not None else 0.0,
                                   s.characteristic, s.factor))
     opened = [s for s in summaries if s.event in ("opened", "reopened")]
     cleared = [s for s in summaries if s.event == "cleared"]
     return ReviewResult(day, label, int(sizes[W]), settings.fdr_method, settings.fdr_level,
                         summaries, opened, cleared, settings, windows, record, notes)
+
+
+def _stored_alert_text(alert: Any, unit: str) -> str:
+    """The sentence of a stored alert (its last signal), with its id."""
+    return f"alert {alert.id}: " + alert_text(alert.characteristic, alert.factor, alert.groups,
+                                               alert.direction, alert.size, unit,
+                                               alert.size_fraction, alert.last_window or "",
+                                               alert.q)
 
 
 # --------------------------------------------------------------------------------------------

@@ -164,3 +164,16 @@ def test_alerts_list_show_ack(demo_copy):
     assert "acknowledged by qe-lee" in r.output and "valve checked" in r.output
     assert run(demo_copy, "alerts", "show", "999").exit_code == 2
     assert run(demo_copy, "alerts", "list", "--state", "acknowledged").output.count("RB-2") == 1
+
+
+def test_report_for_an_earlier_week_shows_that_week(demo_copy, demo_replay, tmp_path):
+    """Reviews are recorded up to the end; a report on a week before the drift shows no alert
+    (states replayed to that date) and changes nothing."""
+    out = tmp_path / "early.md"
+    early = (demo_replay.onset - timedelta(days=21)).isoformat()
+    r = run(demo_copy, "report", "--as-of", early, "--out", str(out))
+    assert r.exit_code == 0, r.output
+    text = out.read_text()
+    assert "Open alerts: 0." in text and "already recorded" in text
+    r = run(demo_copy, "alerts", "list", "--format", "json")
+    assert [a["state"] for a in json.loads(r.output)["alerts"]] == ["open"]

@@ -167,6 +167,12 @@ def test_lifecycle_open_hold_acknowledge_clear_reopen(tmp_path):
     assert (ack.by, ack.note) == ("qe-anna", "checking filler B")
     opened = store_alerts.alert_history(store, site_alerts[0].id)[0]
     assert opened.details["text"].endswith(mon.CAUTION)
+    # earlier reviews record nothing; their states are the rule replayed up to their date
+    n_events = store.conn.execute("SELECT count(*) FROM alert_events").fetchone()[0]
+    replayed = {wk: _state(eng.run_review(store, as_of=_sunday(wk))).alert_state
+                for wk in (3, 4, 6, 9, 12)}
+    assert replayed == {3: None, 4: "open", 6: "open", 9: "cleared", 12: "open"}
+    assert store.conn.execute("SELECT count(*) FROM alert_events").fetchone()[0] == n_events
     assert opened.details["family_size"] == 2  # site and line; shift has one level only
     store.close()
 
