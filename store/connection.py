@@ -426,7 +426,7 @@ class Store:
             new_id = int(cur.lastrowid or 0)
         return self.characteristic_by_id(new_id)
 
-    def edit_characteristic(self, name: str, **changes: Any) -> Characteristic:
+    def edit_characteristic(self, name: str, /, **changes: Any) -> Characteristic:
         """Change fields of a characteristic: ``name`` (rename), ``unit``, ``resolution``,
         ``lsl``, ``target``, ``usl``, ``min_shift``, ``plausible`` (a (low, high) pair or None).
         The resolution cannot change once measurements exist (Conflict); nor does the origin."""
