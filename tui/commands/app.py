@@ -8,6 +8,30 @@ import click
 
 from tui.commands.common import db_option, open_store, store_errors
 
+REPLAY_WEEKS = 8
+
+
+def _replay_reviews(path: Path) -> tuple[int, int]:
+    """Record the weekly reviews of the demo's last ``REPLAY_WEEKS`` Sundays, oldest first, as a
+    site would have done each week, so the new demo store has alerts with a history.
+
+    Returns (reviews recorded, alerts opened). Runs the real review engine on the demo data.
+    """
+    from datetime import UTC, datetime, timedelta
+
+    from store import Store
+    from tui.review_engine import run_review
+
+    today = datetime.now(UTC).date()
+    last_sunday = today - timedelta(days=today.isoweekday() % 7)
+    days = [last_sunday - timedelta(weeks=i) for i in range(REPLAY_WEEKS - 1, -1, -1)]
+    opened = 0
+    with Store.open(path) as store:
+        for day in days:
+            opened += len(run_review(store, as_of=day, persist=True,
+                                     by="weekly review (demo replay)").opened)
+    return len(days), opened
+
 
 def _run_app(db_path: Path, read_only: bool) -> None:
     from tui.app import LotwatchApp
@@ -41,7 +65,8 @@ def demo(fresh: bool, no_open: bool, read_only: bool) -> None:
     """Build (or reuse) a store of invented demo data and open the interface on it.
 
     The demo store lives in your data directory, apart from your own store. Every site, line,
-    product and number in it is invented.
+    product and number in it is invented. A new demo store gets its last 8 weekly reviews
+    recorded (oldest first), so its alerts have a history to look at.
     """
     from store.demo import build_demo_store, demo_store_path, demo_summary
 
@@ -50,6 +75,10 @@ def demo(fresh: bool, no_open: bool, read_only: bool) -> None:
     if fresh or not existed:
         click.echo(f"Building the demo store at {path} (invented data)…", err=True)
     build_demo_store(path, fresh=fresh)
+    if fresh or not existed:
+        reviews, opened = _replay_reviews(path)
+        click.echo(f"Recorded the last {reviews} weekly reviews: {opened} alert(s) opened.",
+                   err=True)
     if no_open:
         store = open_store(path)
         try:
