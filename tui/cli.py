@@ -18,6 +18,7 @@ COMMAND_MODULES = [
     "tui.commands.transfer",
     "tui.commands.analyze",
     "tui.commands.review",
+    "tui.commands.settings",
     "tui.commands.app",
 ]
 
