@@ -248,21 +248,25 @@ def memory_peak(store: Store) -> float:
 
 
 _RSS_PROBE = """
-import resource, sys
+import sys
 sys.path.insert(0, {root!r}); sys.path.insert(0, {bench!r})
+def hwm():
+    for line in open("/proc/self/status"):
+        if line.startswith("VmHWM:"):
+            return int(line.split()[1])
 import bench_review as b
 from store import Store
 store = Store.open({path!r}, read_only=True)
-before = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+before = hwm()
 b.full_review(store)
-after = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
-print(before, after)
+print(before, hwm())
 """
 
 
 def rss_peak(path: Path) -> tuple[float, float]:
-    """Peak resident set size (MB) of a fresh process after imports and opening the store, and
-    after one full review (Linux ru_maxrss is in KiB)."""
+    """Peak resident set size (MB, Linux VmHWM of a fresh process: ru_maxrss would carry this
+    process's peak across fork and exec) after imports and opening the store, and after one
+    full review."""
     import subprocess
 
     code = _RSS_PROBE.format(root=str(ROOT), bench=str(Path(__file__).parent), path=str(path))
@@ -273,11 +277,11 @@ def rss_peak(path: Path) -> tuple[float, float]:
 
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--quick", action="store_true", help="200k measurements, fewer repeats")
+    ap.add_argument("--quick", action="store_true", help="100k measurements, fewer repeats")
     ap.add_argument("--ten-million", action="store_true", help="also build and review 10M")
     ap.add_argument("--measurements", type=int, default=None)
     args = ap.parse_args()
-    n = args.measurements or (200_000 if args.quick else 1_000_000)
+    n = args.measurements or (100_000 if args.quick else 1_000_000)
     reps, base_reps = (3, 1) if args.quick else (7, 1)
     with tempfile.TemporaryDirectory() as tmp:
         path = Path(tmp) / "bench.sqlite"
