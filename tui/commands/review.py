@@ -158,7 +158,7 @@ def report_command(week: str | None, as_of: str | None, out: Path, fdr: str | No
               help="How many windows back (default: review.trend_windows, 12).")
 @_when
 @click.option("--format", "fmt", type=click.Choice(["text", "json"]), default="text",
-              show_default=True)
+              show_default=True, help="Table and chart, or JSON of the means per window.")
 @click.option("--no-chart", is_flag=True, help="Only the table.")
 @db_option
 @store_errors
@@ -199,7 +199,7 @@ def alerts_group() -> None:
 @click.option("--state", type=click.Choice(["open", "acknowledged", "cleared", "active"]),
               default=None, help="Only alerts in this state (active = open or acknowledged).")
 @click.option("--format", "fmt", type=click.Choice(["text", "json"]), default="text",
-              show_default=True)
+              show_default=True, help="A line per alert, or JSON.")
 @db_option
 @store_errors
 def alerts_list(state: str | None, fmt: str, db_path: Path) -> None:
