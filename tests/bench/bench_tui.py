@@ -81,6 +81,8 @@ def tmux_paint(command: list[str], env: dict[str, str], painted: str,
             time.sleep(0.01)
     finally:
         subprocess.run(base + ["kill-server"], capture_output=True)
+        tmpdir = Path(os.environ.get("TMUX_TMPDIR", "/tmp")) / f"tmux-{os.getuid()}"
+        (tmpdir / sock).unlink(missing_ok=True)
         time.sleep(0.3)
     if first is None or done is None:
         raise RuntimeError(f"{command}: the screen never showed {painted!r}/{ready!r}")

@@ -59,9 +59,13 @@ class Tmux:
 
 @pytest.fixture
 def tmux():
-    t = Tmux(f"lotwatch-test-{os.getpid()}")
+    socket = f"lotwatch-test-{os.getpid()}"
+    t = Tmux(socket)
     yield t
     subprocess.run(t.base + ["kill-server"], capture_output=True)
+    # tmux leaves its socket file behind; it lives in $TMUX_TMPDIR (default /tmp)/tmux-UID.
+    tmpdir = Path(os.environ.get("TMUX_TMPDIR", "/tmp")) / f"tmux-{os.getuid()}"
+    (tmpdir / socket).unlink(missing_ok=True)
 
 
 def test_log_a_lot_in_the_demo_at_80x24(tmux, demo_data_home):
