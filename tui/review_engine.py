@@ -418,16 +418,26 @@ def run_review(store, *, as_of: date | None = None, week: str | None = None,
             store.set_setting(LAST_REVIEW_KEY, day.isoformat())
         for (i, _), alert in zip(transitions, written, strict=True):
             s_ = summaries[i]
-            active = alert.state in ("open", "acknowledged")
+            if alert.state == "cleared":
+                text = (f"alert {alert.id}: {alert.characteristic} by {alert.factor} cleared in "
+                        f"{alert.last_window}: no signal in the last {m} windows (it last showed "
+                        f"{', '.join(alert.groups) or 'a group'} {alert.direction or 'differing'} "
+                        f"by {_num(alert.size)} {s_.unit}). {CAUTION}")
+            else:
+                text = _stored_alert_text(alert, s_.unit)
             summaries[i] = ComparisonSummary(**{
                 **s_.__dict__, "alert_id": alert.id, "alert_state": alert.state,
-                "alert_text": _stored_alert_text(alert, s_.unit) if active else None})
+                "alert_text": text})
     summaries.sort(key=lambda s: (s.q is None, s.q if s.q is not None else 0.0,
                                   s.characteristic, s.factor))
     opened = [s for s in summaries if s.event in ("opened", "reopened")]
     cleared = [s for s in summaries if s.event == "cleared"]
     return ReviewResult(day, label, int(sizes[W]), settings.fdr_method, settings.fdr_level,
                         summaries, opened, cleared, settings, windows, record, notes)
+
+
+def _num(x: float | None) -> str:
+    return "?" if x is None else f"{x:.4g}"
 
 
 def _stored_alert_text(alert: Any, unit: str) -> str:
