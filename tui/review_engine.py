@@ -10,7 +10,8 @@ The FDR family of a window position is every characteristic × factor with a def
 latest position is the review's family. Each comparison's signal history over those windows and
 its stored alert state give the new state (``stats.monitor.decide_alert``); transitions are
 written as alert events. Re-running the same review records nothing new (a "held" event is written
-once per window), and a review dated before the latest recorded one never changes alert states.
+once per window), and a review dated before the latest recorded one never changes alert states
+(it shows the states the rule gives at its date, replayed over the windows before it).
 
 Settings (``lotwatch`` settings table; defaults in ``stats.monitor.ReviewSettings``):
 review.window (trailing | last_n | week), review.window_days (28), review.step_days (7),
@@ -19,7 +20,7 @@ review.fdr_level (0.05), review.fdr_method (bh | by), review.tolerance_fraction 
 review.no_limits_gate (detectable | skip), review.trend_windows (12).
 
 Counting lots: the buckets count measurements. Where a lot has several replicate values for a
-characteristic, "lots per group" below means values per group.
+characteristic, "lots per group" (review.min_lots, review.last_n) counts values per group.
 """
 
 from __future__ import annotations
@@ -278,8 +279,9 @@ def alert_text(characteristic: str, factor: str, groups: list[str], direction: s
     size_s = f"{size:.4g} {unit}".strip() if size is not None else "an unknown amount"
     frac = f" ({fraction:.0%} of the tolerance)" if fraction is not None else ""
     qs = f", q = {q:.3g}" if q is not None else ""
-    return (f"{characteristic} by {factor}: {who} {direction or 'differs'} than the others by "
-            f"{size_s}{frac} in {window}{qs}. {CAUTION}")
+    how = f"{direction} than" if direction else "differs from"
+    return (f"{characteristic} by {factor}: {who} {how} the others by {size_s}{frac} in "
+            f"{window}{qs}. {CAUTION}")
 
 
 REPLAY_WINDOWS = 12  # windows replayed to reconstruct alert states for an earlier review
