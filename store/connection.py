@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import getpass
 import math
+import os
 import sqlite3
 import time
 from collections.abc import Callable, Iterator, Sequence
@@ -46,7 +47,7 @@ DEFAULT_TIMEOUT = 30.0
 _BEGIN_RETRIES = 5
 
 # sqlite3 primary result codes (https://www.sqlite.org/rescode.html)
-_SQLITE_BUSY, _SQLITE_LOCKED, _SQLITE_READONLY = 5, 6, 8
+_SQLITE_BUSY, _SQLITE_LOCKED, _SQLITE_READONLY, _SQLITE_IOERR = 5, 6, 8, 10
 _SQLITE_CORRUPT, _SQLITE_FULL, _SQLITE_CANTOPEN, _SQLITE_NOTADB = 11, 13, 14, 26
 
 
@@ -85,12 +86,34 @@ def translate_error(exc: sqlite3.Error, path: Path | str) -> StoreError | None:
             f"{path} is not a readable lotwatch store (the file is damaged or is not an SQLite "
             f"database: {exc}). Restore it from a backup or export; lotwatch did not change it."
         )
+    if primary == _SQLITE_IOERR or "disk i/o error" in text:
+        # A full disk often shows up as an I/O error (e.g. SQLITE_IOERR_SHMSIZE: the -shm file
+        # cannot grow), before any SQLITE_FULL.
+        if _no_free_space(Path(path)):
+            return StoreFull(
+                f"the disk holding {path} is full (or a quota was reached), so lotwatch cannot "
+                "use the store (it needs room for its -wal and -shm files). Nothing was changed. "
+                "Free some space and try again."
+            )
+        return StoreError(
+            f"reading or writing {path} (or its -wal/-shm files beside it) failed with a disk "
+            f"I/O error ({exc}); nothing was changed. Check the disk or network share."
+        )
     if primary == _SQLITE_CANTOPEN or "unable to open" in text:
         return StoreReadOnly(
             f"{path} cannot be opened ({exc}); check that the file and its folder are readable "
             "(and writable, unless opening read-only)."
         )
     return None
+
+
+def _no_free_space(path: Path) -> bool:
+    """True when the file system holding ``path`` has no block left for this user."""
+    try:
+        st = os.statvfs(path.expanduser().absolute().parent)
+    except OSError:
+        return False
+    return st.f_bavail * st.f_frsize < 64 * 1024
 
 
 class Store:
@@ -107,6 +130,7 @@ class Store:
         self._depth = 0
         self._db: sqlite_utils.Database | None = None
         self._closed = False
+        self._identity = _identity(path)
 
     # ----------------------------------------------------------------- opening and closing
 
@@ -293,6 +317,7 @@ class Store:
         self._begin_immediate()
         self._depth = 1
         try:
+            self._check_same_file()
             yield self
             self.conn.execute("COMMIT")
         except BaseException as exc:
@@ -308,6 +333,24 @@ class Store:
             raise
         finally:
             self._depth = 0
+
+    def _check_same_file(self) -> None:
+        """Refuse to write once the file was deleted, moved or replaced since it was opened:
+        SQLite would go on writing into the old file (lost with it), and the old ``-wal`` file
+        could later be replayed over the new one (https://www.sqlite.org/howtocorrupt.html)."""
+        if self._identity is None:
+            return
+        now = _identity(self.path)
+        if now is None:
+            raise StoreMissing(
+                f"{self.path} was deleted or moved while lotwatch had it open; nothing was "
+                "stored. Put the file back (or open it where it is now) and try again."
+            )
+        if now != self._identity:
+            raise StoreError(
+                f"{self.path} was replaced by another file while lotwatch had it open; nothing "
+                "was stored. Open the store again to work on the new file."
+            )
 
     def _begin_immediate(self) -> None:
         # The busy handler normally waits up to the timeout; SQLite can still return BUSY at once
@@ -605,6 +648,15 @@ def _connect(p: Path, mode: str, timeout: float, *, immutable: bool = False) -> 
     conn.execute(f"PRAGMA busy_timeout = {int(timeout * 1000)}")
     conn.execute("PRAGMA foreign_keys = ON")
     return conn
+
+
+def _identity(p: Path) -> tuple[int, int] | None:
+    """(device, inode) of the file at ``p``, None when there is none."""
+    try:
+        st = os.stat(p)
+    except OSError:
+        return None
+    return st.st_dev, st.st_ino
 
 
 def _probe(conn: sqlite3.Connection) -> None:

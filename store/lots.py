@@ -115,6 +115,8 @@ def _prepare(i: int, e: LotEntry, chars: dict[str, Characteristic], now: datetim
         elif not v:
             problems.append(_problem(e, k, value if value is not None else "",
                                      f"tag {k!r} is empty"))
+        elif any(ord(ch) < 32 for ch in k + v):
+            problems.append(_problem(e, k, v, f"tag {k!r} contains a control character"))
         elif k in tags and tags[k] != v:
             problems.append(_problem(e, k, v, f"tag {k!r} is given twice ({tags[k]!r} and {v!r})"))
         else:

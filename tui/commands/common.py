@@ -67,6 +67,14 @@ def open_store(db_path: Path, *, read_only: bool = False):  # -> store.Store
         raise UserError(str(exc)) from None
 
 
+def plain(text: object) -> str:
+    """User-supplied text made safe for the terminal, line by line: escape sequences, control
+    and bidi characters removed (``tui.safe_text.clean``), line breaks kept."""
+    from tui.safe_text import clean
+
+    return "\n".join(clean(line) for line in str(text).split("\n"))
+
+
 def store_errors(f: F) -> F:
     """Turn any ``StoreError`` raised by a command into a clean message and exit status 2."""
 
@@ -77,7 +85,14 @@ def store_errors(f: F) -> F:
         try:
             return f(*args, **kwargs)
         except StoreError as exc:
-            raise UserError(str(exc)) from None
+            raise UserError(plain(exc)) from None
+        except UnicodeEncodeError as exc:
+            # an argument with bytes that are not UTF-8 (Python keeps them as surrogates)
+            bad = exc.object[exc.start:exc.end].encode("utf-8", "surrogateescape")
+            raise UserError(
+                f"some text given to lotwatch is not valid UTF-8 (bytes {bad!r}); check the "
+                "terminal's or the file's encoding. Nothing was changed."
+            ) from None
 
     return wrapper  # type: ignore[return-value]
 

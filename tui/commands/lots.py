@@ -6,7 +6,7 @@ from pathlib import Path
 
 import click
 
-from tui.commands.common import UserError, db_option, open_store, store_errors
+from tui.commands.common import UserError, db_option, open_store, plain, store_errors
 
 
 def _parse_tags(tags: tuple[str, ...]) -> dict[str, str]:
@@ -78,11 +78,11 @@ def log_command(characteristic: str, values: tuple[str, ...], tags: tuple[str, .
         ids = list(outcome.measurement_ids)
         lot_id = outcome.lots[0] if outcome.lots else lot
     if outcome.duplicates and not ids:
-        click.echo(f"Nothing new: lot {lot_id} already has these {characteristic} values "
-                   "(exact duplicate).")
+        click.echo(plain(f"Nothing new: lot {lot_id} already has these {characteristic} "
+                         "values (exact duplicate)."))
         return
-    click.echo(f"Stored {len(ids)} value(s) of {characteristic} in lot {lot_id}, "
-               f"measured {_local(measured_at)} (local time)")
+    click.echo(plain(f"Stored {len(ids)} value(s) of {characteristic} in lot {lot_id}, "
+                     f"measured {_local(measured_at)} (local time)"))
     click.echo("Measurement id(s): " + ", ".join(str(i) for i in ids))
     if outcome.rounded:
         click.echo(f"{outcome.rounded} value(s) rounded to the resolution")
@@ -145,7 +145,7 @@ def history_command(measurement_id: int, db_path: Path) -> None:
         line = f"  {_local(e.at)}  {e.action:<8} {change}  by {e.by}"
         if e.reason:
             line += f"  reason: {e.reason}"
-        click.echo(line)
+        click.echo(plain(line))
 
 
 @click.command("check")
@@ -164,7 +164,7 @@ def check_command(db_path: Path) -> None:
         return
     click.echo(f"Store check found {len(report.problems)} problem(s):")
     for p in report.problems:
-        click.echo(f"  {p}")
+        click.echo(plain(f"  {p}"))
     raise click.exceptions.Exit(1)
 
 

@@ -6,7 +6,7 @@ from pathlib import Path
 
 import click
 
-from tui.commands.common import UserError, db_option, open_store, store_errors
+from tui.commands.common import UserError, db_option, open_store, plain, store_errors
 
 
 def _fmt(x: float | None) -> str:
@@ -104,7 +104,7 @@ def characteristic_add(name: str, unit: str, resolution: str, lsl, target, usl, 
             name, unit=unit, resolution=resolution, lsl=lsl, target=target, usl=usl,
             min_shift=min_shift, plausible=tuple(plausible) if plausible else None,
         )
-    click.echo(f"Added characteristic {c.name} ({c.unit}, resolution {c.resolution})")
+    click.echo(plain(f"Added characteristic {c.name} ({c.unit}, resolution {c.resolution})"))
 
 
 @characteristic_group.command("list")
@@ -125,6 +125,7 @@ def characteristic_list(db_path: Path) -> None:
 
 
 def _table(header: tuple[str, ...], rows: list[tuple[str, ...]]) -> None:
+    rows = [tuple(plain(v) for v in r) for r in rows]
     widths = [max(len(str(r[i])) for r in [header, *rows]) for i in range(len(header))]
     for r in [header, *rows]:
         click.echo("  ".join(str(v).ljust(w) for v, w in zip(r, widths, strict=True)).rstrip())
@@ -139,7 +140,7 @@ def characteristic_show(name: str, db_path: Path) -> None:
     with open_store(db_path, read_only=True) as store:
         c = store.characteristic(name)
     for label, value in _describe(c):
-        click.echo(f"{label + ':':<17}{value}")
+        click.echo(plain(f"{label + ':':<17}{value}"))
 
 
 @characteristic_group.command("edit")
@@ -175,9 +176,9 @@ def characteristic_edit(name: str, unit, resolution, lsl, target, usl, min_shift
         raise UserError("nothing to change; give at least one option (see --help)")
     with open_store(db_path) as store:
         c = store.edit_characteristic(name, **changes)
-    click.echo(f"Updated characteristic {c.name}:")
+    click.echo(plain(f"Updated characteristic {c.name}:"))
     for label, value in _describe(c):
-        click.echo(f"  {label + ':':<17}{value}")
+        click.echo(plain(f"  {label + ':':<17}{value}"))
 
 
 # --- factors -----------------------------------------------------------------------------------
@@ -200,7 +201,7 @@ def factor_add(key: str, required: bool, db_path: Path) -> None:
     """Add grouping factor KEY (a tag key lots can carry)."""
     with open_store(db_path) as store:
         store.add_factor(key, required=required)
-    click.echo(f"Added factor {key}" + (" (required)" if required else ""))
+    click.echo(plain(f"Added factor {key}" + (" (required)" if required else "")))
 
 
 @factor_group.command("list")

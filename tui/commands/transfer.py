@@ -2,13 +2,14 @@
 
 from __future__ import annotations
 
+import io
 import sys
 from datetime import date
 from pathlib import Path
 
 import click
 
-from tui.commands.common import UserError, db_option, open_store, store_errors
+from tui.commands.common import UserError, db_option, open_store, plain, store_errors
 
 # Show a progress bar for at least this many values (always when stderr is a terminal and the
 # import is not tiny): below it, storing takes well under a second.
@@ -130,13 +131,15 @@ def import_command(file: str, fmt: str, layout: str, lot_column: str, time_colum
         except BadInput as exc:
             if len(exc.problems) > LISTED_PROBLEMS:
                 listing = write_rejected(parsed, exc.problems)
-                raise UserError(f"{exc}\nAll {len(exc.problems):,} problems are listed in "
-                                f"{listing}") from None
+                raise UserError(plain(f"{exc}\nAll {len(exc.problems):,} problems are listed in "
+                                      f"{listing}")) from None
             raise
     if skip_bad and summary.rejected:
         summary.rejected_file = write_rejected(parsed, summary.rejected)
 
-    click.echo(f"Imported {summary.path.name} ({summary.layout} layout)")
+    for note in summary.notes:
+        click.echo(plain(f"Note: {note}"))
+    click.echo(plain(f"Imported {summary.path.name} ({summary.layout} layout)"))
     counts = [("rows read", summary.rows_read), ("values read", summary.values_read),
               ("values stored", summary.stored),
               ("skipped as exact duplicates", summary.duplicates),
@@ -147,11 +150,11 @@ def import_command(file: str, fmt: str, layout: str, lot_column: str, time_colum
         click.echo(f"  {label + ':':<29}{n:,}")
     if summary.rejected:
         for p in summary.rejected[:20]:
-            click.echo(f"    {p}")
+            click.echo(plain(f"    {p}"))
         if len(summary.rejected) > 20:
             click.echo(f"    ... and {len(summary.rejected) - 20} more")
     if summary.rejected_file is not None:
-        click.echo(f"Rejected rows and reasons written to {summary.rejected_file}")
+        click.echo(plain(f"Rejected rows and reasons written to {summary.rejected_file}"))
 
 
 def _day(value: str | None, option: str) -> date | None:
@@ -193,11 +196,17 @@ def export_command(fmt: str | None, characteristics: tuple[str, ...], since: str
     since_d, until_d = _day(since, "--since"), _day(until, "--until")
     if since_d and until_d and since_d > until_d:
         raise UserError(f"--since {since} is after --until {until}")
+    # To a terminal, CSV text is shown with escape sequences and control/bidi characters
+    # removed (they could retitle the window or hide text); to a pipe or file it stays exact.
+    to_terminal = out is None and fmt == "csv" and sys.stdout.isatty()
+    buffer = io.StringIO() if to_terminal else None
     with open_store(db_path, read_only=True) as store:
         summary = write_export(
             store, format=fmt, out=out, characteristics=list(characteristics),
-            since=since_d, until=until_d, overwrite=overwrite,
+            since=since_d, until=until_d, overwrite=overwrite, stream=buffer,
         )
+    if buffer is not None:
+        click.echo(plain(buffer.getvalue()), nl=False)
     if summary.path is not None:
         click.echo(f"Wrote {summary.rows:,} measurement(s) to {summary.path}", err=True)
 
