@@ -41,22 +41,12 @@ def main(ctx: click.Context, db: str | None) -> None:
     ctx.ensure_object(dict)
     ctx.obj["db"] = db
     if ctx.invoked_subcommand is None:
-        watch = main.get_command(ctx, "watch")
-        if watch is None:
-            click.echo(ctx.get_help())
-            return
-        ctx.invoke(watch)
+        ctx.invoke(main.get_command(ctx, "watch"))
 
 
 def _register_all() -> None:
     for name in COMMAND_MODULES:
-        try:
-            module = importlib.import_module(name)
-        except ModuleNotFoundError as exc:
-            if exc.name == name:  # module not written yet
-                continue
-            raise
-        module.register(main)
+        importlib.import_module(name).register(main)
 
 
 _register_all()
