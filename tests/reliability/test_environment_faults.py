@@ -95,9 +95,6 @@ def test_every_command_on_a_full_disk_says_so_and_loses_nothing(tmp_path: Path) 
         assert run_cli(*LOG, "--db", path).returncode == 0
 
 
-@pytest.mark.xfail(reason="needs /work/patches/store-ioerror-full.diff: a full disk that stops "
-                          "SQLite creating the -shm file is reported as 'could not be read as "
-                          "a lotwatch store: disk I/O error'", strict=False)
 def test_full_disk_before_the_store_is_opened_says_disk_full(tmp_path: Path) -> None:
     with small_filesystem("2m") as fs:
         path = make_store(fs / "store.sqlite")
@@ -114,8 +111,6 @@ def test_full_disk_before_the_store_is_opened_says_disk_full(tmp_path: Path) -> 
         assert Snapshot.of(path) == before
 
 
-@pytest.mark.xfail(reason="needs /work/patches/store-ioerror-full.diff: EFBIG during the write "
-                          "surfaces as a raw sqlite3 'disk I/O error' traceback", strict=False)
 def test_file_size_limit_mid_import_is_refused_cleanly(tmp_path: Path) -> None:
     """RLIMIT_FSIZE (no root needed): the import process may not grow any file past a limit a
     little above the store's current size, so its WAL write fails part way."""
@@ -200,8 +195,6 @@ asyncio.run(main(sys.argv[1]))
 # --- deleted, replaced, too new ------------------------------------------------------------------
 
 
-@pytest.mark.xfail(reason="needs /work/patches/store-moved-file.diff: writes to a store deleted "
-                          "while open succeed into the unlinked file and are lost", strict=False)
 def test_store_deleted_while_open_refuses_to_write(tmp_path: Path) -> None:
     path = make_store(tmp_path / "store.sqlite")
     with Store.open(path) as s:
@@ -215,8 +208,6 @@ def test_store_deleted_while_open_refuses_to_write(tmp_path: Path) -> None:
             s.correct(1, "500.2", reason="typo")
 
 
-@pytest.mark.xfail(reason="needs /work/patches/store-moved-file.diff: writes after the store "
-                          "file is replaced go into the old file", strict=False)
 def test_store_replaced_while_open_refuses_to_write(tmp_path: Path) -> None:
     path = make_store(tmp_path / "store.sqlite")
     other = make_store(tmp_path / "backup.sqlite")
