@@ -149,10 +149,16 @@ def _migrate_to_1(conn: sqlite3.Connection) -> None:
         conn.execute(stmt)
 
 
+def _migrate_to_2(conn: sqlite3.Connection) -> None:
+    # The review's incremental refresh reads every bucket of one day across characteristics.
+    conn.execute("CREATE INDEX buckets_day ON buckets(day)")
+
+
 # MIGRATIONS[v] brings a store from schema version v-1 to v. Run in order inside one
 # BEGIN IMMEDIATE transaction by ``migrate``. Never edit a released step; add a new one.
 MIGRATIONS: dict[int, Callable[[sqlite3.Connection], None]] = {
     1: _migrate_to_1,
+    2: _migrate_to_2,
 }
 SCHEMA_VERSION = max(MIGRATIONS)
 

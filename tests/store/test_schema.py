@@ -354,3 +354,27 @@ def test_failed_upgrade_leaves_store_as_it_was(store_path: Path,
     with Store.open(store_path) as s:
         assert schema.user_version(s.conn) == schema.SCHEMA_VERSION
         assert not schema.has_table(s.conn, "half")
+
+
+def test_an_older_store_is_upgraded_on_open_and_keeps_its_data(store_path: Path) -> None:
+    """A store at schema version 1 (before the bucket day index) gains migration 2 when opened
+    for writing, with its measurements intact (versioned migrations: common practice)."""
+    import sqlite3
+
+    from store import LotEntry
+
+    with Store.create(store_path) as s:
+        s.add_characteristic("fill", unit="mL", resolution="0.1")
+        s.log_lots([LotEntry("fill", ["500.1"], {"site": "A", "line": "1", "shift": "x"},
+                             lot="L1")])
+    conn = sqlite3.connect(store_path)
+    conn.execute("DROP INDEX buckets_day")
+    conn.execute("PRAGMA user_version = 1")
+    conn.commit()
+    conn.close()
+    with Store.open(store_path) as s:
+        assert schema.user_version(s.conn) == schema.SCHEMA_VERSION
+        names = {r[0] for r in s.conn.execute("SELECT name FROM sqlite_master WHERE type='index'")}
+        assert "buckets_day" in names
+        assert s.check().ok
+        assert s.conn.execute("SELECT count(*) FROM measurements").fetchone()[0] == 1
