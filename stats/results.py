@@ -14,21 +14,25 @@ from __future__ import annotations
 
 import math
 from dataclasses import asdict, dataclass, field
+from datetime import date
 from typing import Any
 
 OK = "ok"
 
 
-def _clean(obj: Any) -> Any:
-    """Convert to JSON-safe values: non-finite floats become None, tuples become lists."""
+def json_safe(obj: Any) -> Any:
+    """Convert to JSON-safe values: non-finite floats become None, tuples become lists, numpy
+    scalars become Python numbers, dates become ISO 8601 text."""
     if isinstance(obj, float):
         return obj if math.isfinite(obj) else None
     if isinstance(obj, dict):
-        return {k: _clean(v) for k, v in obj.items()}
+        return {k: json_safe(v) for k, v in obj.items()}
     if isinstance(obj, (list, tuple)):
-        return [_clean(v) for v in obj]
+        return [json_safe(v) for v in obj]
+    if isinstance(obj, date):
+        return obj.isoformat()
     if hasattr(obj, "item") and callable(obj.item):  # numpy scalar
-        return _clean(obj.item())
+        return json_safe(obj.item())
     return obj
 
 
@@ -312,7 +316,7 @@ class BatteryResult:
                              "upper": c.upper, "p": c.p} for c in self.dunnett]
         if self.capability is not None:
             d["capability"] = [asdict(c) for c in self.capability]
-        return _clean(d)
+        return json_safe(d)
 
 
 def _pair(p: PairComparison) -> dict[str, Any]:

@@ -35,6 +35,7 @@ import polars as pl
 
 from stats import monitor as mon
 from stats.monitor import CAUTION, ReviewSettings
+from stats.results import json_safe
 
 LAST_REVIEW_KEY = "review.last_recorded_as_of"
 
@@ -82,7 +83,7 @@ class ComparisonSummary:
     def to_dict(self) -> dict[str, Any]:
         d = {k: getattr(self, k) for k in self.__dataclass_fields__}
         d["excluded"] = [{"level": lv, "n": n} for lv, n in self.excluded]
-        return _clean(d)
+        return json_safe(d)
 
 
 @dataclass
@@ -116,7 +117,7 @@ class ReviewResult:
 
     def to_dict(self) -> dict[str, Any]:
         s = self.settings
-        return _clean({
+        return json_safe({
             "as_of": self.as_of.isoformat(), "window": self.window_label,
             "windows": [{"label": w.label, "start": w.start.isoformat() if w.start else None,
                          "end": w.end.isoformat()} for w in self.windows],
@@ -164,20 +165,6 @@ class TrendResult:
     target: float | None
     usl: float | None
     stats: mon.WindowStats | None = None
-
-
-def _clean(obj: Any) -> Any:
-    if isinstance(obj, float):
-        return obj if math.isfinite(obj) else None
-    if isinstance(obj, dict):
-        return {k: _clean(v) for k, v in obj.items()}
-    if isinstance(obj, (list, tuple)):
-        return [_clean(v) for v in obj]
-    if isinstance(obj, (np.floating, np.integer, np.bool_)):
-        return _clean(obj.item())
-    if isinstance(obj, date):
-        return obj.isoformat()
-    return obj
 
 
 def _f(x: Any) -> float | None:
