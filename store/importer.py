@@ -216,7 +216,10 @@ def read_frame(path: Path, options: ImportOptions, notes: list[str]):  # -> pl.D
         raise FileRefused(f"{path.name}: cannot be read as CSV ({message})") from None
     if frame.width == 0:
         raise FileRefused(f"{path.name}: no header row")
-    header = next(csv.reader(io.StringIO(first_line), delimiter=delimiter), [])
+    try:
+        header = next(csv.reader(io.StringIO(first_line), delimiter=delimiter), [])
+    except csv.Error as exc:
+        raise FileRefused(f"{path.name}: the header line cannot be read ({exc})") from None
     names = [h.strip() for h in header]
     repeated = sorted({h for h in names if names.count(h) > 1})
     if repeated:
