@@ -7,6 +7,9 @@ from pathlib import Path
 import click
 
 from tui.commands.common import UserError, db_option, open_store, plain, store_errors
+from tui.safe_text import truncate
+
+CELL_WIDTH = 32  # a table cell holding user text is cut to this many columns (ending in …)
 
 
 def _fmt(x: float | None) -> str:
@@ -125,7 +128,7 @@ def characteristic_list(db_path: Path) -> None:
 
 
 def _table(header: tuple[str, ...], rows: list[tuple[str, ...]]) -> None:
-    rows = [tuple(plain(v) for v in r) for r in rows]
+    rows = [tuple(truncate(plain(v), CELL_WIDTH) for v in r) for r in rows]
     widths = [max(len(str(r[i])) for r in [header, *rows]) for i in range(len(header))]
     for r in [header, *rows]:
         click.echo("  ".join(str(v).ljust(w) for v, w in zip(r, widths, strict=True)).rstrip())
