@@ -167,7 +167,10 @@ def _float_table(arrays: list[np.ndarray], alpha: float) -> AnovaTable:
 
 
 def _to_float(x: Number) -> float:
-    return float(x)
+    try:
+        return float(x)
+    except OverflowError:  # an exact Fraction beyond the float range
+        raise ValueError("a sum of squares is too large for floating point") from None
 
 
 def _sqrt(x: Number) -> float:
@@ -197,7 +200,7 @@ def _finish(k: int, n_total: int, ssb: Number, ssw: Number, grand: float | None,
                           decision="Every group has a single value, so the within-group "
                                    "variation cannot be estimated and F cannot be computed.")
     msw = ssw / dfw
-    if ssw == 0:
+    if ssw == 0 or msw == 0:  # msw can underflow to 0 when ssw is subnormal
         if ssb == 0:
             return AnovaTable(**base, **common, ms_within=0.0, f=None, p=None, resid_sd=0.0,
                               status="all values equal",

@@ -49,6 +49,9 @@ from stats.welch import welch_anova
 
 T = TypeVar("T")
 DUNN_ADJUST = _posthoc.ADJUST_METHODS
+# Largest |value| accepted: squares of 1e150 summed over a million values stay below the largest
+# double (about 1.8e308), so no sum of squares overflows.
+MAX_MAGNITUDE = 1e150
 
 
 def _group_summaries(names: list[str], arrays: list[np.ndarray],
@@ -111,6 +114,12 @@ def run_battery(samples: Sequence[Any], names: Sequence[str], *, alpha: float = 
         if bad.any():
             notes.append(f"Dropped {int(bad.sum())} non-finite value(s) from group {name}.")
             a = a[~bad]
+        if a.size and float(np.max(np.abs(a))) > MAX_MAGNITUDE:
+            raise ValueError(
+                f"group {name}: a value of magnitude {float(np.max(np.abs(a))):.3g} is too large "
+                f"to analyse in double precision (limit {MAX_MAGNITUDE:.0e}: sums of squares "
+                "would overflow); express the data in a larger unit"
+            )
         cleaned[name] = a
     excluded = [ExcludedGroup(name=n, n=int(a.size),
                               reason=f"fewer than {min_n} values" if a.size else "no values")

@@ -55,12 +55,17 @@ def noncentrality_interval(f_obs: float, df1: float, df2: float,
         if cdf(0.0) <= target:
             return 0.0
         hi = max(10.0, 2.0 * f_obs * df1)
+        if hi > 1e9:  # F so large that scipy's noncentral F is NaN out there: bound unknown
+            return math.nan
         while cdf(hi) > target:
             hi *= 2.0
             if hi > 1e9:
                 return math.inf
-        return float(optimize.brentq(lambda lam: cdf(lam) - target, 0.0, hi, xtol=1e-12,
-                                     rtol=1e-12, maxiter=500))
+        try:
+            return float(optimize.brentq(lambda lam: cdf(lam) - target, 0.0, hi, xtol=1e-12,
+                                         rtol=1e-12, maxiter=500))
+        except ValueError:  # the noncentral F CDF came back NaN inside the bracket
+            return math.nan
 
     return bound(1 - alpha / 2), bound(alpha / 2)
 
@@ -81,7 +86,7 @@ def effect_sizes(table: AnovaTable | Parts, alpha: float = 0.05) -> EffectSize:
     if ssw <= 0:
         return EffectSize(eta_squared=eta, omega_squared=omega, cohen_f=math.inf,
                           status="zero within-group variance")
-    cohen = math.sqrt(eta / (1 - eta))
+    cohen = math.sqrt(ssb / ssw)  # = sqrt(eta² / (1 - eta²)); no 0/0 when eta² rounds to 1
     n_total = dfb + dfw + 1
     f_obs = (ssb / dfb) / msw
     lo, hi = noncentrality_interval(f_obs, dfb, dfw, alpha)

@@ -28,7 +28,10 @@ def f_test_power(lam: float, df1: float, df2: float, alpha: float) -> float:
     crit = float(special.fdtri(df1, df2, 1 - alpha))
     if lam <= 0:
         return float(special.fdtrc(df1, df2, crit))
-    return 1.0 - float(special.ncfdtr(df1, df2, lam, crit))
+    below = float(special.ncfdtr(df1, df2, lam, crit))
+    if math.isnan(below) and lam > 1e6:  # scipy gives NaN for enormous λ, where the power is 1
+        return 1.0
+    return 1.0 - below
 
 
 def _lambda_coef(ns: Sequence[int]) -> float:
@@ -43,7 +46,8 @@ def n_per_group_for_power(k: int, effect_shift_sd: float, alpha: float, target: 
         return None
 
     def power(n: int) -> float:
-        return f_test_power(effect_shift_sd ** 2 * n * (k - 1) / k, k - 1, k * n - k, alpha)
+        lam = effect_shift_sd * effect_shift_sd * n * (k - 1) / k  # inf, not OverflowError
+        return f_test_power(lam, k - 1, k * n - k, alpha)
 
     lo, hi = 2, 2
     while power(hi) < target:
@@ -83,7 +87,9 @@ def power_analysis(ns: Sequence[int], sd_within: float | None, *, alpha: float =
     if sd_within <= 0:
         return empty("zero within-group variance")
     df1, df2 = k - 1, n_total - k
-    coef = _lambda_coef(sizes) / sd_within ** 2
+    coef = _lambda_coef(sizes) / (sd_within * sd_within)
+    if not math.isfinite(coef):
+        return empty("within-group SD too small for a power calculation")
 
     def power_at(d: float) -> float:
         return f_test_power(d * d * coef, df1, df2, alpha)
@@ -95,8 +101,11 @@ def power_analysis(ns: Sequence[int], sd_within: float | None, *, alpha: float =
         hi *= 2
     else:
         return empty("power does not reach 80% at any shift")
-    detectable = float(optimize.brentq(lambda d: power_at(d) - 0.80, 0.0, hi, xtol=1e-12 * hi,
-                                       rtol=1e-12))
+    if power_at(0.0) >= 0.80:  # alpha itself is at least 0.80: no shift is needed
+        detectable = 0.0
+    else:
+        detectable = float(optimize.brentq(lambda d: power_at(d) - 0.80, 0.0, hi,
+                                           xtol=1e-12 * hi, rtol=1e-12))
     if shift is None:
         return PowerResult(alpha=alpha, sd_within=sd_within, shift=None, power_at_shift=None,
                            n_per_group_80=None, n_per_group_90=None,

@@ -123,8 +123,11 @@ def analyze_command(file: Path, value_col: str, by_col: str, resolution: str | N
 
     from stats.battery import run_battery
 
-    result = run_battery(samples, names, alpha=alpha, resolution=resolution,
-                         reference=reference, lsl=lsl, usl=usl, shift=shift)
+    try:
+        result = run_battery(samples, names, alpha=alpha, resolution=resolution,
+                             reference=reference, lsl=lsl, usl=usl, shift=shift)
+    except ValueError as exc:  # the battery's refusal (e.g. values too large for floats)
+        raise UserError(f"{file}: {exc}") from None
     if fmt == "json":
         click.echo(json.dumps(result.to_dict(), indent=2, allow_nan=False))
         return
