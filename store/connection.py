@@ -145,8 +145,17 @@ class Store:
             p.parent.mkdir(parents=True, exist_ok=True)
         except OSError as exc:
             raise StoreReadOnly(f"cannot create the folder {p.parent}: {exc.strerror}") from None
+        # Create the file ourselves so its mode follows the umask (0666 & ~umask: group
+        # writable under umask 002, for a store shared by a group); SQLite would make it 0644
+        # whatever the umask, and its -wal and -shm files copy the store file's mode.
         try:
-            conn = _connect(p, "rwc", timeout)
+            os.close(os.open(p, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o666))
+        except FileExistsError:
+            raise StoreExists(f"{p} already exists; open it, or choose another file name") from None
+        except OSError as exc:
+            raise StoreReadOnly(f"cannot create {p}: {exc.strerror}") from None
+        try:
+            conn = _connect(p, "rw", timeout)
             conn.execute("PRAGMA journal_mode = WAL")
         except sqlite3.Error as exc:
             _remove_quietly(p)
