@@ -22,9 +22,8 @@ Measured (medians over repeats; CPU time is shared, so expect noise):
   not recorded);
 * incremental: after one lot is logged (one characteristic, as one LotEntry; and a lot with all
   20), the latest window for all 60 comparisons brought current from the stored aggregates
-  (``LatestWindow.refresh_day`` re-reads that day's buckets of the characteristics written),
-  with the schema as it is and with an index on ``buckets(day)`` added to the benchmark store
-  (a suggested schema change);
+  (``LatestWindow.refresh_day`` re-reads that day's buckets of the characteristics written,
+  a range read on the schema's ``buckets(day)`` index);
 * memory: tracemalloc peak of one full review (a separate, untimed pass), and the peak resident
   set size of a fresh process that opens the store and runs one full review;
 * ``--ten-million``: the same on 10,000,000 measurements, review cost relative to 1M (this build
@@ -308,14 +307,6 @@ def main() -> None:
             print(f"incremental latest window after one lot with {per_lot} characteristic(s): "
                   f"median {t_inc * 1000:.2f} ms (goal < 20 ms; max rel. F difference from a "
                   f"full recompute {inc_diff:.1e})")
-        # The store's buckets are keyed (characteristic, factor, level, day), so one day's rows
-        # need a scan of the table (or of one characteristic's buckets); an index on day
-        # (suggested to the store core) makes it a range read.
-        store.conn.execute("CREATE INDEX IF NOT EXISTS bench_buckets_day ON buckets(day)")
-        t_idx, _ = incremental(store, nrep, per_lot=N_CHARS)
-        print(f"  {N_CHARS} characteristics with an index on buckets(day) (not in the schema): "
-              f"median {t_idx * 1000:.2f} ms")
-        store.conn.execute("DROP INDEX bench_buckets_day")
         peak = memory_peak(store)
         base_rss, rss = rss_peak(path)
         print(f"memory of one full review: tracemalloc peak {peak:.1f} MB; process peak RSS "
