@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import multiprocessing as mp
 import random
+import re
 import time
 import traceback
 from dataclasses import dataclass, field
@@ -117,7 +118,7 @@ def import_writer(path: str, writer: int, n_files: int, lots_per_file: int, work
                         output += "".join(traceback.format_exception(r.exception))
                 res.latencies.append((time.perf_counter() - t0) / lots_per_file)
                 expect = lots_per_file if attempt == 1 else 0
-                if code != 0 or f"values stored:              {expect:,}" not in output:
+                if code != 0 or not re.search(rf"values stored:\s+{expect:,}\n", output):
                     res.errors.append(f"file {csv_path.name} attempt {attempt}: exit {code}\n"
                                       f"{output}")
                 elif attempt == 1:
