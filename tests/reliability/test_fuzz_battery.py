@@ -194,17 +194,11 @@ def _run(n: int) -> int:
     return tried
 
 
-PENDING = pytest.mark.xfail(
-    reason="needs /work/patches/stats-fuzz-robustness.diff (ZeroDivisionError, OverflowError and "
-           "scipy brentq ValueErrors on degenerate or huge-magnitude groups)", strict=False)
 
-
-@PENDING
 def test_battery_fuzz_fast() -> None:
     assert _run(200) >= 200
 
 
-@PENDING
 @pytest.mark.slow
 def test_battery_fuzz_10k() -> None:
     assert _run(10_000) >= 10_000
@@ -222,7 +216,6 @@ FOUND = [
 ]
 
 
-@pytest.mark.xfail(reason="needs /work/patches/stats-fuzz-robustness.diff", strict=False)
 @pytest.mark.parametrize("groups,kw", FOUND)
 def test_inputs_found_by_fuzzing(groups, kw) -> None:
     names = [f"g{i}" for i in range(len(groups))]
@@ -230,7 +223,6 @@ def test_inputs_found_by_fuzzing(groups, kw) -> None:
         _one(groups, names, kw)
 
 
-@pytest.mark.xfail(reason="needs /work/patches/stats-fuzz-robustness.diff", strict=False)
 @pytest.mark.parametrize("seed", [504181, 8634351, 2865])  # NaN into brentq, MSW -> 0, Fraction
 def test_seeded_inputs_found_by_fuzzing(seed) -> None:
     with np.errstate(all="ignore"):

@@ -230,17 +230,11 @@ def _importer_property(fuzz_store, tmp_path_factory, n: int) -> None:
     assert tried >= n
 
 
-PENDING = pytest.mark.xfail(
-    reason="needs /work/patches/store-importer-header.diff (a header with a lone CR raised "
-           "_csv.Error)", strict=False)
 
-
-@PENDING
 def test_importer_fuzz_fast(fuzz_store, tmp_path_factory) -> None:
     _importer_property(fuzz_store, tmp_path_factory, FAST)
 
 
-@PENDING
 @pytest.mark.slow
 def test_importer_fuzz_10k(fuzz_store, tmp_path_factory) -> None:
     _importer_property(fuzz_store, tmp_path_factory, SLOW)
@@ -277,13 +271,11 @@ def _cli_property(tmp_path_factory, n: int) -> int:
     return tried[0]
 
 
-@PENDING
 def test_import_command_fuzz_fast(tmp_path_factory) -> None:
     tried = _cli_property(tmp_path_factory, 60)
     print(f"import command fuzz: {tried:,} inputs tried")
 
 
-@PENDING
 @pytest.mark.slow
 def test_import_command_fuzz_1k(tmp_path_factory) -> None:
     tried = _cli_property(tmp_path_factory, 1_000)
@@ -294,7 +286,6 @@ def test_import_command_fuzz_1k(tmp_path_factory) -> None:
 # --- the inputs fuzzing found, kept as plain regression tests -----------------------------------
 
 
-@pytest.mark.xfail(reason="needs /work/patches/store-importer-header.diff", strict=False)
 def test_header_with_a_lone_carriage_return_is_refused(fuzz_store, tmp_path: Path) -> None:
     f = tmp_path / "cr.csv"
     f.write_bytes(b"\r\x01")  # found by the fuzzer: _csv.Error from the header line

@@ -14,8 +14,6 @@ import os
 import stat
 import subprocess
 
-import pytest
-
 from tests.reliability.helpers import CHAR, assert_clean_refusal
 from tests.reliability.helpers_env import accounts, public_dir  # noqa: F401 - fixture
 
@@ -39,8 +37,6 @@ def _ok(res: subprocess.CompletedProcess) -> str:
     return res.stdout
 
 
-@pytest.mark.xfail(reason="needs /work/patches/store-create-umask.diff: SQLite creates the store "
-                          "0644 whatever the umask, so the second member cannot write", strict=False)
 def test_two_accounts_in_a_group_share_one_store(accounts) -> None:  # noqa: F811
     group = accounts.group()
     gid = grp.getgrnam(group).gr_gid
