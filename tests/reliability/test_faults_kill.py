@@ -62,14 +62,17 @@ with Store.open(path) as s:
 
 _DRIVER_VOID = """
 import sys
-from store import Store
+from store import LotEntry, Store
 path, tag = sys.argv[1], sys.argv[2]
 with Store.open(path) as s:
-    ids = [r[0] for r in s.conn.execute(
-        "SELECT id FROM measurements WHERE voided = 0 ORDER BY random()")]
-    for k, mid in enumerate(ids):
-        s.void(mid, reason=f"{tag} {k}", by="voider")
+    k = 0
+    while True:  # log a lot, then void one of its values: runs until killed
+        out = s.log_lots([LotEntry("torque", ["12.01", "11.99"],
+                                   {"site": "north", "line": "3", "shift": "night"},
+                                   lot=f"{tag}-V{k}")])
+        s.void(out.measurement_ids[k % 2], reason=f"{tag} {k}", by="voider")
         print(f"done {k}", flush=True)
+        k += 1
 """
 
 _DRIVER_ALERTS = """
