@@ -91,7 +91,7 @@ def review_command(week: str | None, as_of: str | None, fmt: str, fail_on_alert:
     wk = _check_week(week)
     if day is not None and wk is not None:
         raise UserError("give either --week or --as-of, not both")
-    with open_store(db_path) as store:
+    with open_store(db_path, read_only=dry_run) as store:
         result = _run(eng.run_review, store, as_of=day, week=wk, fdr_method=fdr,
                       persist=not dry_run)
     if fmt == "json":
@@ -133,7 +133,7 @@ def report_command(week: str | None, as_of: str | None, out: Path, fdr: str | No
     wk = _check_week(week)
     if day is not None and wk is not None:
         raise UserError("give either --week or --as-of, not both")
-    with open_store(db_path) as store:
+    with open_store(db_path, read_only=dry_run) as store:
         rep = _run(build_weekly_report, store, week=wk, as_of=day, fdr_method=fdr,
                    persist=not dry_run)
     text = report_markdown(rep) if suffix == ".md" else report_html(rep)
