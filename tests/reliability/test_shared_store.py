@@ -70,8 +70,12 @@ def test_two_accounts_in_a_group_share_one_store(accounts) -> None:  # noqa: F81
         hist = _ok(accounts.run(alice, ["history", 1, "--db", path]))
         assert f"by {alice}" in hist and f"by {bob}" in hist
 
-        # outside the group: may read, cannot write, and is told why
-        _ok(accounts.run(outsider, ["check", "--db", path]))
+        # outside the group: may read (and run a dry-run review), cannot write, and is told why
+        (d / "out").mkdir()
+        (d / "out").chmod(0o777)
+        for args in (["check"], ["history", 1], ["export"], ["review", "--dry-run"],
+                     ["report", "--dry-run", "--out", d / "out" / "w.md"], ["alerts", "list"]):
+            _ok(accounts.run(outsider, [*args, "--db", path]))
         out = assert_clean_refusal(accounts.run(outsider, [*LOG, "--lot", "X-1", "--db", path]))
         assert "cannot be written" in out or "not writable" in out, out
         _ok(accounts.run(alice, ["check", "--db", path]))
