@@ -302,3 +302,16 @@ def test_nul_tag_from_a_utf16_file_is_refused_with_its_row(fuzz_store, tmp_path:
         import_file(fuzz_store, f, ImportOptions())
     assert "row 1" in str(info.value) and "site" in str(info.value)
     assert _state(fuzz_store) == before
+
+
+@pytest.mark.xfail(reason="needs /work/patches/store-importer-pattern-names.diff", strict=False)
+@pytest.mark.parametrize("data", [b"*,", b"lot,^a$\nx,1\n",
+                                  b"lot,characteristic,value,*\nA,fill_volume,500.0,1\n"])
+def test_header_names_polars_reads_as_patterns_are_refused(fuzz_store, tmp_path: Path,
+                                                           data: bytes) -> None:
+    f = tmp_path / "pattern.csv"
+    f.write_bytes(data)  # found by the fuzzer: polars ComputeError (pl.col("*") is every column)
+    before = _state(fuzz_store)
+    with pytest.raises(StoreError):
+        import_file(fuzz_store, f, ImportOptions())
+    assert _state(fuzz_store) == before
