@@ -194,6 +194,7 @@ def read_frame(path: Path, options: ImportOptions, notes: list[str]):  # -> pl.D
             frame = pl.read_parquet(io.BytesIO(data))
         except Exception as exc:  # polars raises several types for damaged files
             raise FileRefused(f"{path.name}: not a readable Parquet file ({exc})") from None
+        _refuse_pattern_names(path, frame)
         return _parquet_as_text(frame)
 
     text = _decode(path, data, notes)
@@ -227,8 +228,20 @@ def read_frame(path: Path, options: ImportOptions, notes: list[str]):  # -> pl.D
                           f"{', '.join(repr(h) for h in repeated)} more than once")
     if len(names) == frame.width:
         frame = frame.rename(dict(zip(frame.columns, names, strict=True)))
+    _refuse_pattern_names(path, frame)
     # undo the formula neutralisation of lotwatch's CSV export ("'=x" -> "=x"; store.export)
     return frame.with_columns(pl.col(c).str.replace(_NEUTRALISED, "$1") for c in frame.columns)
+
+
+def _refuse_pattern_names(path: Path, frame) -> None:
+    """polars reads ``pl.col("*")`` as every column and ``pl.col("^...$")`` as a regex, so a
+    header naming a column like that would break every later step: refuse it up front."""
+    odd = [c for c in frame.columns if c == "*" or (c.startswith("^") and c.endswith("$"))]
+    if odd:
+        raise FileRefused(
+            f"{path.name}: column name(s) {', '.join(repr(c) for c in odd)} cannot be used "
+            "(lotwatch reads them as patterns); rename them in the header"
+        )
 
 
 def _ragged_rows(source: str, text: str, delimiter: str) -> list[RowProblem]:
