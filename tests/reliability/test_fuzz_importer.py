@@ -231,12 +231,10 @@ def _importer_property(fuzz_store, tmp_path_factory, n: int) -> None:
 
 
 
-@pytest.mark.xfail(reason="may hit a header named '*' until /work/patches/store-importer-pattern-names.diff is applied", strict=False)
 def test_importer_fuzz_fast(fuzz_store, tmp_path_factory) -> None:
     _importer_property(fuzz_store, tmp_path_factory, FAST)
 
 
-@pytest.mark.xfail(reason="may hit a header named '*' until /work/patches/store-importer-pattern-names.diff is applied", strict=False)
 @pytest.mark.slow
 def test_importer_fuzz_10k(fuzz_store, tmp_path_factory) -> None:
     _importer_property(fuzz_store, tmp_path_factory, SLOW)
@@ -273,13 +271,11 @@ def _cli_property(tmp_path_factory, n: int) -> int:
     return tried[0]
 
 
-@pytest.mark.xfail(reason="may hit a header named '*' until /work/patches/store-importer-pattern-names.diff is applied", strict=False)
 def test_import_command_fuzz_fast(tmp_path_factory) -> None:
     tried = _cli_property(tmp_path_factory, 60)
     print(f"import command fuzz: {tried:,} inputs tried")
 
 
-@pytest.mark.xfail(reason="may hit a header named '*' until /work/patches/store-importer-pattern-names.diff is applied", strict=False)
 @pytest.mark.slow
 def test_import_command_fuzz_1k(tmp_path_factory) -> None:
     tried = _cli_property(tmp_path_factory, 1_000)
@@ -308,7 +304,6 @@ def test_nul_tag_from_a_utf16_file_is_refused_with_its_row(fuzz_store, tmp_path:
     assert _state(fuzz_store) == before
 
 
-@pytest.mark.xfail(reason="needs /work/patches/store-importer-pattern-names.diff", strict=False)
 @pytest.mark.parametrize("data", [b"*,", b"lot,^a$\nx,1\n",
                                   b"lot,characteristic,value,*\nA,fill_volume,500.0,1\n"])
 def test_header_names_polars_reads_as_patterns_are_refused(fuzz_store, tmp_path: Path,
