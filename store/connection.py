@@ -36,6 +36,7 @@ from store.errors import (
     StoreTooNew,
 )
 from store.model import AuditEntry, Characteristic, CheckReport, Factor, LogOutcome, LotEntry
+from store.text import unsafe_character
 from store.timeutil import format_stored, now_utc
 from store.values import BadValue, canonical_resolution, choose_origin, scale_of
 
@@ -689,8 +690,8 @@ def _clean_name(name: object, what: str) -> str:
         problem = f"the {what} name is empty"
     elif len(text) > 80:
         problem = f"the {what} name is longer than 80 characters"
-    elif any(ord(ch) < 32 for ch in text):
-        problem = f"the {what} name contains a control character"
+    elif (bad := unsafe_character(text)) is not None:
+        problem = f"the {what} name contains {bad}"
     if problem:
         raise BadInput([RowProblem("command line", None, what, str(name), problem)])
     return text

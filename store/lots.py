@@ -15,7 +15,6 @@ Nothing is written unless every entry is good, except with ``skip_bad``.
 
 from __future__ import annotations
 
-import re
 import secrets
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
@@ -25,6 +24,7 @@ from typing import TYPE_CHECKING
 from store.aggregates import Deltas
 from store.errors import BadInput, RowProblem
 from store.model import Characteristic, LogOutcome, LotEntry
+from store.text import unsafe_character
 from store.timeutil import BadTime, format_stored, now_utc
 from store.values import (
     MAX_ABS_D,
@@ -42,7 +42,6 @@ if TYPE_CHECKING:
 PROGRESS_EVERY = 10_000
 _CHUNK = 500  # parameters per IN (...) lookup, below SQLite's default limit
 _LOT_ALPHABET = "ABCDEFGHJKLMNPQRSTUVWXYZ23456789"  # no 0/O, 1/I
-_CONTROL = re.compile(r"[\x00-\x1f\x7f]")
 
 
 @dataclass
@@ -104,8 +103,8 @@ def _prepare(i: int, e: LotEntry, chars: dict[str, Characteristic], now: datetim
             problems.append(_problem(e, "lot", e.lot, "the lot ID is empty"))
         elif len(lot) > 100:
             problems.append(_problem(e, "lot", e.lot, "the lot ID is longer than 100 characters"))
-        elif _CONTROL.search(lot):
-            problems.append(_problem(e, "lot", e.lot, "the lot ID contains a control character"))
+        elif (bad := unsafe_character(lot)) is not None:
+            problems.append(_problem(e, "lot", e.lot, f"the lot ID contains {bad}"))
     tags: dict[str, str] = {}
     for key, value in (e.tags or {}).items():
         k = str(key).strip() if key is not None else ""
@@ -115,8 +114,8 @@ def _prepare(i: int, e: LotEntry, chars: dict[str, Characteristic], now: datetim
         elif not v:
             problems.append(_problem(e, k, value if value is not None else "",
                                      f"tag {k!r} is empty"))
-        elif any(ord(ch) < 32 for ch in k + v):
-            problems.append(_problem(e, k, v, f"tag {k!r} contains a control character"))
+        elif (bad := unsafe_character(k + v)) is not None:
+            problems.append(_problem(e, k, v, f"tag {k!r} contains {bad}"))
         elif k in tags and tags[k] != v:
             problems.append(_problem(e, k, v, f"tag {k!r} is given twice ({tags[k]!r} and {v!r})"))
         else:

@@ -43,21 +43,37 @@ def _try(fn, *args, **kw):
         return None
 
 
+# Identifiers (lot IDs, tags, names) holding display controls are refused at input
+# (store/text.py); a store can still hold them (written by another program, or before that
+# rule), so the fixture puts them in with SQL and every output must stay safe anyway.
+MARK = "\u00a7ctl\u00a7"  # placeholder replaced by BIDI + C1 after logging
+
+
+def _inject_display_controls(s: Store) -> None:
+    bad = "\u202e" + "\u009b" + BIDI + C1
+    with s.write():
+        for table, column in (("lots", "lot_code"), ("lot_tags", "value"), ("buckets", "level"),
+                              ("characteristics", "name"), ("factors", "name"),
+                              ("lot_tags", "key"), ("buckets", "factor"),
+                              ("alerts", "groups")):
+            s.conn.execute(f"UPDATE {table} SET {column} = replace({column}, ?, ?)", (MARK, bad))
+
+
 def hostile_store(path: Path) -> dict[str, object]:
-    """A store whose every user-text field holds hostile text where the store accepts it."""
+    """A store whose every user-text field holds hostile text."""
     make_store(path)
     info: dict[str, object] = {}
     with Store.open(path) as s:
-        _try(s.add_characteristic, "chr" + MARKUP + "\u202e" + "\u009b", unit="u" + CSI + MARKUP,
+        _try(s.add_characteristic, "chr" + MARKUP + MARK, unit="u" + CSI + MARKUP,
              resolution="0.1", target=500)
-        _try(s.add_factor, "oven" + MARKUP + "\u202e")
-        tag_values = ["north" + MARKUP + BIDI + C1, "south", "L" + LONG, "1", "day", "night"]
+        _try(s.add_factor, "oven" + MARKUP + MARK)
+        tag_values = ["north" + MARKUP + MARK, "south", "L" + LONG, "1", "day", "night"]
         entries = []
         for i in range(12):
             entries.append(LotEntry(
                 CHAR, [f"{500 + i % 5 / 10:.1f}", f"{500 + i % 3 / 10:.1f}"],
                 {"site": tag_values[i % 3], "line": str(1 + i % 2), "shift": tag_values[4 + i % 2]},
-                lot=f"L{i}" + MARKUP + "\u202e" + "\u009b" + "x" * 40,
+                lot=f"L{i}" + MARKUP + MARK + "x" * 40,
                 measured_at=f"2026-11-{20 + i % 5:02d}T08:00:00Z",
                 note="note" + HOSTILE + LONG, by="who" + HOSTILE))
         out = s.log_lots(entries)
@@ -65,9 +81,11 @@ def hostile_store(path: Path) -> dict[str, object]:
         s.correct(mid, "500.4", reason="why" + HOSTILE + LONG, by="fixer" + HOSTILE)
         s.correct(mid, "500.3", reason="again" + MARKUP, by="[i]x[/i]")
         [alert] = record_transitions(s, [Transition(
-            CHAR, "site", "opened", "W" + MARKUP, ["north" + MARKUP + BIDI + C1], "higher", 0.2,
+            CHAR, "site", "opened", "W" + MARKUP, ["north" + MARKUP + MARK], "higher", 0.2,
             0.1, 0.001)], by="review" + HOSTILE)
         acknowledge(s, alert.id, by="eng" + HOSTILE, note="ack" + HOSTILE + LONG)
+        _inject_display_controls(s)
+        assert s.check().ok
         info.update(mid=mid, alert=alert.id, chars=[c.name for c in s.characteristics()])
     return info
 

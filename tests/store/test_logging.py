@@ -430,3 +430,22 @@ def test_disk_full_during_logging_stores_nothing(fill: Store, dump, entry) -> No
     with pytest.raises(StoreFull, match="nothing was stored"):
         fill.log_lots([entry("500.0", f"F{k}") for k in range(3000)])
     assert dump(fill) == before
+
+
+@pytest.mark.parametrize("bad, what", [
+    ("L\x1b[31m1", "U+001B"),       # ESC: start of a terminal escape sequence
+    ("L\x9b1", "U+009B"),           # C1 control (CSI)
+    ("L\u202e1", "U+202E"),         # right-to-left override: can make one ID look like another
+])
+def test_identifiers_with_display_controls_are_refused(store, bad: str, what: str) -> None:
+    """Lot IDs and tag values may not carry characters that change how text is displayed
+    (common practice for identifiers shown on terminals)."""
+    store.add_characteristic("ctl", unit="mm", resolution="1")
+    tags = {"site": "A", "line": "1", "shift": "x"}
+    with pytest.raises(BadInput, match=re.escape(what)):
+        store.log_lots([LotEntry("ctl", ["5"], tags, lot=bad)])
+    with pytest.raises(BadInput, match=re.escape(what)):
+        store.log_lots([LotEntry("ctl", ["5"], {**tags, "line": bad}, lot="ok-1")])
+    with pytest.raises(BadInput, match=re.escape(what)):
+        store.add_characteristic(bad, unit="mm", resolution="1")
+    assert store.conn.execute("SELECT count(*) FROM measurements").fetchone()[0] == 0
