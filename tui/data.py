@@ -341,25 +341,6 @@ def load_overview(path: Path, read_only: bool, *, week: str | None = None,
                     review.window_label, version, window_kind)
 
 
-class _WindowKind:
-    """The store seen through one changed setting: ``review.window`` (for a chosen window kind).
-
-    Only reading goes through it; the store's own settings are never written.
-    """
-
-    def __init__(self, store: Store, window: str) -> None:
-        self._store = store
-        self._window = window
-
-    def get_setting(self, key: str, default: str | None = None) -> str | None:
-        if key == "review.window":
-            return self._window
-        return self._store.get_setting(key, default)
-
-    def __getattr__(self, name: str) -> Any:
-        return getattr(self._store, name)
-
-
 RECENT_LOTS = 3
 
 
@@ -391,10 +372,9 @@ def load_detail(path: Path, read_only: bool, request: DetailRequest) -> DetailVi
     from tui.review_engine import comparison_detail, review_settings
 
     with opened(path, read_only) as store:
-        view: Any = store if request.window is None else _WindowKind(store, request.window)
-        d = comparison_detail(view, request.characteristic, request.factor,
-                              week=request.week, alpha=request.alpha)
-        kind = review_settings(view).window
+        d = comparison_detail(store, request.characteristic, request.factor,
+                              week=request.week, alpha=request.alpha, window=request.window)
+        kind = review_settings(store, window=request.window).window
         recent = recent_lots(store, request.characteristic, request.factor)
     trend = [
         TrendPoint(window_end=_day_text(r["window_end"]), level=str(r["level"]), n=int(r["n"]),

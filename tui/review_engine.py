@@ -178,11 +178,13 @@ def _f(x: Any) -> float | None:
 # inputs
 
 
-def review_settings(store, *, fdr_method: str | None = None,
-                    fdr_level: float | None = None) -> ReviewSettings:
+def review_settings(store, *, fdr_method: str | None = None, fdr_level: float | None = None,
+                    window: str | None = None) -> ReviewSettings:
     """The store's review settings, with per-run overrides; ``ValueError`` names a bad setting."""
     s = ReviewSettings.from_lookup(store.get_setting)
     changes: dict[str, Any] = {}
+    if window is not None:
+        changes["window"] = window
     if fdr_method is not None:
         changes["fdr_method"] = fdr_method.lower()
     if fdr_level is not None:
@@ -448,9 +450,7 @@ def trend(store, characteristic: str, factor: str, *, as_of: date | None = None,
 
     ``window`` overrides the kind (trailing | last_n | week), ``windows`` the count.
     """
-    settings = review_settings(store)
-    if window is not None:
-        settings = ReviewSettings(**{**settings.__dict__, "window": window}).validated()
+    settings = review_settings(store, window=window)
     day = resolve_as_of(as_of=as_of, week=week)
     plan = mon.window_plan(day, settings, windows or settings.trend_windows)
     comps, chars = comparisons_of(store, characteristic, factor)
@@ -497,14 +497,15 @@ def window_values(store, characteristic: str, factor: str, window: mon.Window,
 
 def comparison_detail(store, characteristic: str, factor: str, *, as_of: date | None = None,
                       week: str | None = None, alpha: float = 0.05,
-                      summary: ComparisonSummary | None = None) -> ComparisonDetail:
+                      summary: ComparisonSummary | None = None,
+                      window: str | None = None) -> ComparisonDetail:
     """The full battery (``stats.run_battery``) on the latest window's raw values, plus the
     trend of each group's mean per window."""
     from stats import run_battery
 
-    settings = review_settings(store)
+    settings = review_settings(store, window=window)
     day = resolve_as_of(as_of=as_of, week=week)
-    tr = trend(store, characteristic, factor, as_of=day)
+    tr = trend(store, characteristic, factor, as_of=day, window=window)
     latest = tr.windows[-1]
     ch = tr.characteristic
     firsts = None

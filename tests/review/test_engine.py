@@ -338,3 +338,33 @@ def test_detail_battery_sees_the_window_the_review_saw(tmp_path, kind):
     assert d.battery.anova.f == pytest.approx(c.f, rel=1e-9)
     assert d.window_label == c.window_label
     store.close()
+
+
+def test_window_kind_override_reads_other_lots_and_leaves_the_setting(demo_replay):
+    """comparison_detail(window=...) reads that window kind without changing the store's setting;
+    the battery on it agrees with scipy.stats.f_oneway on the same raw values (oracle)."""
+    import scipy.stats as sps
+
+    from store import Store
+    from tests.review.conftest import DEMO_END
+    from tui import review_engine as eng
+
+    with Store.open(demo_replay.pristine, read_only=True) as store:
+        trailing = eng.comparison_detail(store, "fill_volume", "line", as_of=DEMO_END)
+        last_n = eng.comparison_detail(store, "fill_volume", "line", as_of=DEMO_END,
+                                       window="last_n")
+        assert store.get_setting("review.window") is None
+        assert eng.review_settings(store).window == "trailing"
+        settings = eng.review_settings(store, window="last_n")
+        latest = eng.mon.window_plan(DEMO_END, settings, 1)[-1]
+        tr = eng.trend(store, "fill_volume", "line", as_of=DEMO_END, window="last_n")
+        firsts = dict(zip(tr.stats.sums.levels[0], tr.stats.sums.first_day[-1][0], strict=False))
+        # whole days from each line's first day that reaches its last 30 lots (bucket days)
+        values = eng.window_values(store, "fill_volume", "line", latest, settings, firsts)
+    assert trailing.window_label != last_n.window_label
+    n_by_group = {g.name: g.n for g in last_n.battery.groups}
+    # the last 30 lots of every line; a lot may carry replicate values, so n is at least 30
+    assert min(n_by_group.values()) >= settings.last_n
+    samples = [part["value"].to_numpy()
+               for _, part in sorted(values.partition_by("level", as_dict=True).items())]
+    assert last_n.battery.anova.f == pytest.approx(sps.f_oneway(*samples).statistic, rel=1e-9)
