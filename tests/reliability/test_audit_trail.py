@@ -26,7 +26,7 @@ def test_value_corrected_twice_then_voided(tmp_path: Path) -> None:
         out = s.log_lots([LotEntry(CHAR, ["500.1", "499.9"], dict(TAGS), lot="A-1",
                                    measured_at="2026-11-20T08:00:00Z", by="alice")])
         mid, other = out.measurement_ids
-        s.correct(mid, "500.4", reason="transcription: 500.4 on the sheet", by="bob")
+        s.correct(mid, "500.4", reason="copied wrongly: 500.4 on the sheet", by="bob")
         s.correct(mid, "500.3", reason="gauge re-read", by="carol")
         s.void(mid, reason="sample contaminated", by="dave")
         with pytest.raises(Conflict):
@@ -37,7 +37,7 @@ def test_value_corrected_twice_then_voided(tmp_path: Path) -> None:
         buckets = s.bucket_frame(factor="site")
     assert [(e.action, e.by, e.old_value, e.new_value, e.reason) for e in trail] == [
         ("log", "alice", None, "500.1", None),
-        ("correct", "bob", "500.1", "500.4", "transcription: 500.4 on the sheet"),
+        ("correct", "bob", "500.1", "500.4", "copied wrongly: 500.4 on the sheet"),
         ("correct", "carol", "500.4", "500.3", "gauge re-read"),
         ("void", "dave", "500.3", None, "sample contaminated"),
     ]
@@ -65,7 +65,7 @@ def test_value_corrected_twice_then_voided(tmp_path: Path) -> None:
     # and the command line shows all of it
     res = run_cli("history", mid, "--db", path)
     assert res.returncode == 0, res.stderr
-    for text in ("by alice", "500.1 -> 500.4", "by bob", "transcription", "500.4 -> 500.3",
+    for text in ("by alice", "500.1 -> 500.4", "by bob", "copied wrongly", "500.4 -> 500.3",
                  "by carol", "voided (was 500.3)", "by dave", "sample contaminated"):
         assert text in res.stdout, (text, res.stdout)
 

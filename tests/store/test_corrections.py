@@ -17,7 +17,7 @@ def _row(store: Store, mid: int) -> tuple:
 
 
 def test_correct_keeps_original_and_trail(fill: Store) -> None:
-    step = fill.correct(1, "500.4", reason="transcription error", by="kim")
+    step = fill.correct(1, "500.4", reason="typing error", by="kim")
     assert (step.action, step.old_value, step.new_value, step.by) == (
         "correct", "500.1", "500.4", "kim")
     assert _row(fill, 1) == (5001, 5004, 0)
@@ -25,7 +25,7 @@ def test_correct_keeps_original_and_trail(fill: Store) -> None:
     trail = fill.history(1)
     assert [(a.action, a.old_value, a.new_value, a.reason) for a in trail] == [
         ("log", None, "500.1", None),
-        ("correct", "500.1", "500.4", "transcription error"),
+        ("correct", "500.1", "500.4", "typing error"),
         ("correct", "500.4", "500.3", "second look"),
     ]
     assert trail[2].by == fill.user

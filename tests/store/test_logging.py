@@ -347,7 +347,7 @@ def test_bucket_frame_schema_and_filters(fill: Store) -> None:
 
 
 def test_measurements_frame(fill: Store) -> None:
-    fill.correct(1, "500.4", reason="transcription")
+    fill.correct(1, "500.4", reason="typing error")
     m = fill.measurements_frame()
     assert m.columns[:9] == ["id", "lot", "characteristic", "value", "value_text", "unit",
                              "site", "line", "shift"]
