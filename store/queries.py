@@ -28,6 +28,7 @@ VALUES_SCHEMA = {
     "measured_at": pl.String, "units": pl.Int64,
 }
 _TS = "%Y-%m-%dT%H:%M:%SZ"
+_INDEXED_DAYS = 7  # spans up to this many days read buckets through the day index
 
 
 def _bounds(since: date | None, until: date | None) -> tuple[str | None, str | None]:
@@ -82,11 +83,17 @@ def bucket_frame(store: Store, *, characteristic: str | None = None, factor: str
     if factor is not None:
         where.append("b.factor = ?")
         params.append(factor)
+    # The buckets_day index serves short spans (the review's one-day refresh). For a long span a
+    # scan in primary-key order is far quicker than index lookups plus a sort, so the unary "+"
+    # keeps SQLite's planner off the index there.
+    short = (lo is not None and hi is not None
+             and (date.fromisoformat(hi) - date.fromisoformat(lo)).days <= _INDEXED_DAYS)
+    day = "b.day" if short else "+b.day"
     if lo is not None:
-        where.append("b.day >= ?")
+        where.append(f"{day} >= ?")
         params.append(lo)
     if hi is not None:
-        where.append("b.day <= ?")
+        where.append(f"{day} <= ?")
         params.append(hi)
     sql = ("SELECT c.name, b.factor, b.level, b.day, b.n, b.sum_d, b.sum_d2 FROM buckets b "
            "JOIN characteristics c ON c.id = b.characteristic_id"
