@@ -98,10 +98,16 @@ def bucket_frame(store: Store, *, characteristic: str | None = None, factor: str
     sql = ("SELECT c.name, b.factor, b.level, b.day, b.n, b.sum_d, b.sum_d2 FROM buckets b "
            "JOIN characteristics c ON c.id = b.characteristic_id"
            + (" WHERE " + " AND ".join(where) if where else "")
-           + " ORDER BY c.name, b.factor, b.level, b.day")
+           # primary-key order needs no sort in SQLite; names sort the same way unless the
+           # characteristics were created out of alphabetical order (then polars sorts)
+           + " ORDER BY b.characteristic_id, b.factor, b.level, b.day")
     rows = store.conn.execute(sql, params).fetchall()
     frame = pl.DataFrame(rows, schema=BUCKET_SCHEMA, orient="row")
-    return frame.with_columns(pl.col("day").str.to_date("%Y-%m-%d"))
+    frame = frame.with_columns(pl.col("day").str.to_date("%Y-%m-%d"))
+    by_id = sorted(store.characteristics(), key=lambda c: c.id)
+    if [c.name for c in by_id] != sorted(c.name for c in by_id):
+        frame = frame.sort("characteristic", "factor", "level", "day", maintain_order=True)
+    return frame
 
 
 def _float_values(units: pl.Series, resolution: str, name: str) -> pl.Series:

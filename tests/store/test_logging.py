@@ -449,3 +449,21 @@ def test_identifiers_with_display_controls_are_refused(store, bad: str, what: st
     with pytest.raises(BadInput, match=re.escape(what)):
         store.add_characteristic(bad, unit="mm", resolution="1")
     assert store.conn.execute("SELECT count(*) FROM measurements").fetchone()[0] == 0
+
+
+def test_bucket_frame_is_sorted_by_name_whatever_the_creation_order(store) -> None:
+    """The frame's order is characteristic name, factor, level, day (the documented contract),
+    also when characteristics were created out of alphabetical order."""
+    import polars as pl
+
+    for name in ("zeta", "alpha"):
+        store.add_characteristic(name, unit="mm", resolution="1")
+    for i, name in enumerate(("zeta", "alpha", "zeta")):
+        store.log_lots([LotEntry(name, [str(5 + i)], {"site": "B" if i else "A", "line": "1",
+                                                      "shift": "x"}, lot=f"L{i}",
+                                 measured_at=f"2026-11-2{i}T08:00:00Z")])
+    frame = store.bucket_frame()
+    assert frame.height > 0
+    assert frame.equals(frame.sort("characteristic", "factor", "level", "day"))
+    assert frame["characteristic"][0] == "alpha"
+    assert frame.schema["day"] == pl.Date
