@@ -146,6 +146,19 @@ def test_characteristic_edit_and_resolution_refused_once_data_exists(cli, db):
     assert r.exit_code == 2 and "nothing to change" in r.output
 
 
+def test_characteristic_rename_keeps_values_and_aggregates(cli, db):
+    assert cli("log", "fill_volume", "500.1", *TAGS, "--lot", "R1", "--db", db).exit_code == 0
+    r = cli("characteristic", "edit", "fill_volume", "--rename", "fill_vol", "--db", db)
+    assert r.exit_code == 0, r.output
+    assert "Updated characteristic fill_vol" in r.output
+    shown = cli("characteristic", "show", "fill_vol", "--db", db)
+    assert shown.exit_code == 0, shown.output
+    assert cli("log", "fill_vol", "500.2", *TAGS, "--lot", "R2", "--db", db).exit_code == 0
+    assert cli("check", "--db", db).exit_code == 0
+    gone = cli("log", "fill_volume", "500.2", *TAGS, "--db", db)
+    assert gone.exit_code == 2 and "fill_volume" in gone.output
+
+
 def test_factor_add_and_list(cli, db):
     r = cli("factor", "add", "filler_head", "--required", "--db", db)
     assert r.exit_code == 0 and "(required)" in r.output

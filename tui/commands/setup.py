@@ -148,6 +148,8 @@ def characteristic_show(name: str, db_path: Path) -> None:
 
 @characteristic_group.command("edit")
 @click.argument("name")
+@click.option("--rename", "new_name", default=None, metavar="NEW_NAME",
+              help="New name (stored values, aggregates and alerts follow it).")
 @click.option("--unit", default=None, help="New unit.")
 @click.option("--resolution", default=None,
               help="New resolution (refused once values are stored: they were read to the old one).")
@@ -157,14 +159,14 @@ def characteristic_show(name: str, db_path: Path) -> None:
               help="Remove a limit (repeatable).")
 @db_option
 @store_errors
-def characteristic_edit(name: str, unit, resolution, lsl, target, usl, min_shift, plausible,
-                        clear: tuple[str, ...], db_path: Path) -> None:
-    """Change a characteristic's unit, resolution or limits.
+def characteristic_edit(name: str, new_name, unit, resolution, lsl, target, usl, min_shift,
+                        plausible, clear: tuple[str, ...], db_path: Path) -> None:
+    """Change a characteristic's name, unit, resolution or limits.
 
     The resolution can change only while NAME has no stored values.
     """
     changes: dict[str, object] = {}
-    for key, value in (("unit", unit), ("resolution", resolution), ("lsl", lsl),
+    for key, value in (("name", new_name), ("unit", unit), ("resolution", resolution), ("lsl", lsl),
                        ("target", target), ("usl", usl), ("min_shift", min_shift)):
         if value is not None:
             changes[key] = value
