@@ -6,7 +6,6 @@ with a clear message (bad input or store error), 1 for `lotwatch check` finding 
 
 from __future__ import annotations
 
-import os
 import sqlite3
 import subprocess
 import sys
@@ -16,32 +15,9 @@ from pathlib import Path
 import polars as pl
 import pytest
 
-ROOT = Path(__file__).resolve().parents[2]
-
-
-def subprocess_env() -> dict[str, str]:
-    """Environment for ``python -m tui`` from the repository in a subprocess."""
-    e = dict(os.environ)
-    e["PYTHONPATH"] = str(ROOT) + (os.pathsep + e["PYTHONPATH"] if e.get("PYTHONPATH") else "")
-    return e
+from tests.cli.helpers import count, dump, subprocess_env
 
 TAGS = ["--tag", "site=Hill", "--tag", "line=H1", "--tag", "shift=early"]
-
-
-def count(output: str, label: str) -> str:
-    """The number after ``label:`` in an import summary."""
-    for line in output.splitlines():
-        if line.strip().startswith(label + ":"):
-            return line.split(":", 1)[1].strip()
-    raise AssertionError(f"no {label!r} in {output!r}")
-
-
-def dump(path: Path) -> list[str]:
-    conn = sqlite3.connect(path)
-    try:
-        return list(conn.iterdump())
-    finally:
-        conn.close()
 
 
 def no_traceback(result) -> None:

@@ -10,9 +10,7 @@ same ``iterdump`` as before, and ``lotwatch check`` passes.
 
 from __future__ import annotations
 
-import os
 import signal
-import sqlite3
 import subprocess
 import sys
 import time
@@ -22,36 +20,16 @@ import numpy as np
 import polars as pl
 import pytest
 
-ROOT = Path(__file__).resolve().parents[2]
+from tests.cli.helpers import count, dump
+from tests.cli.helpers import subprocess_env as env
+
 ROWS = 200_000
 WAL_BYTES_BEFORE_KILL = 4_000_000
-
-
-def env() -> dict[str, str]:
-    e = dict(os.environ)
-    e["PYTHONPATH"] = str(ROOT) + (os.pathsep + e["PYTHONPATH"] if e.get("PYTHONPATH") else "")
-    return e
 
 
 def lotwatch(*args: object, **kw) -> subprocess.CompletedProcess:
     return subprocess.run([sys.executable, "-m", "tui", *map(str, args)], env=env(),
                           capture_output=True, text=True, timeout=120, **kw)
-
-
-def count(output: str, label: str) -> str:
-    """The number after ``label:`` in an import summary."""
-    for line in output.splitlines():
-        if line.strip().startswith(label + ":"):
-            return line.split(":", 1)[1].strip()
-    raise AssertionError(f"no {label!r} in {output!r}")
-
-
-def dump(path: Path) -> list[str]:
-    conn = sqlite3.connect(path)
-    try:
-        return list(conn.iterdump())
-    finally:
-        conn.close()
 
 
 def big_csv(path: Path, rows: int) -> Path:
