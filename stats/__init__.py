@@ -4,11 +4,11 @@ Nothing here knows SQLite or Textual. Every function returns a dataclass from ``
 degenerate input returns a result whose ``status`` says what happened instead of raising.
 """
 
-from stats.anom import analysis_of_means
-from stats.anova import anova_batch, anova_from_sums, one_way_anova
-from stats.battery import run_battery
-from stats.capability import capability
-from stats.checks import (
+from lotwatch.stats.anom import analysis_of_means
+from lotwatch.stats.anova import anova_batch, anova_from_sums, one_way_anova
+from lotwatch.stats.battery import run_battery
+from lotwatch.stats.capability import capability
+from lotwatch.stats.checks import (
     bartlett_test,
     brown_forsythe,
     kruskal_wallis,
@@ -16,14 +16,14 @@ from stats.checks import (
     residual_normality,
     resolution_check,
 )
-from stats.distributions import ptukey, qtukey
-from stats.effect import effect_sizes, variance_components
-from stats.letters import compact_letters
-from stats.multiple import AdjustedPValues, adjust_pvalues
-from stats.posthoc import dunn, dunnett, games_howell, tukey_kramer
-from stats.power import power_analysis
-from stats.results import BatteryResult
-from stats.welch import welch_anova, welch_batch, welch_from_moments
+from lotwatch.stats.distributions import ptukey, qtukey
+from lotwatch.stats.effect import effect_sizes, variance_components
+from lotwatch.stats.letters import compact_letters
+from lotwatch.stats.multiple import AdjustedPValues, adjust_pvalues
+from lotwatch.stats.posthoc import dunn, dunnett, games_howell, tukey_kramer
+from lotwatch.stats.power import power_analysis
+from lotwatch.stats.results import BatteryResult
+from lotwatch.stats.welch import welch_anova, welch_batch, welch_from_moments
 
 __all__ = [
     "AdjustedPValues", "BatteryResult", "adjust_pvalues", "analysis_of_means", "anova_batch",

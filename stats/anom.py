@@ -21,9 +21,8 @@ import math
 from collections.abc import Sequence
 
 import numpy as np
-
-from stats.distributions import qanom
-from stats.results import OK, AnomGroup, AnomResult
+from lotwatch.stats.distributions import qanom
+from lotwatch.stats.results import OK, AnomGroup, AnomResult
 
 
 def _problem(arrays: list[np.ndarray], names: Sequence[str]) -> str | None:

@@ -46,10 +46,7 @@ from fractions import Fraction
 from typing import Any
 
 import numpy as np
-from scipy import special
-from scipy import stats as sps
-
-from stats._numeric import (
+from lotwatch.stats._numeric import (
     careful_mean,
     careful_ss,
     fmt_num,
@@ -59,7 +56,9 @@ from stats._numeric import (
     sqrt_fraction,
     to_units,
 )
-from stats.results import OK, AnovaTable
+from lotwatch.stats.results import OK, AnovaTable
+from scipy import special
+from scipy import stats as sps
 
 Number = Fraction | float
 

@@ -19,14 +19,12 @@ from collections.abc import Callable, Sequence
 from typing import Any, TypeVar
 
 import numpy as np
-from scipy import special
-
-from stats import anom as _anom
-from stats import letters as _letters
-from stats import posthoc as _posthoc
-from stats.anova import one_way_anova
-from stats.capability import capability
-from stats.checks import (
+from lotwatch.stats import anom as _anom
+from lotwatch.stats import letters as _letters
+from lotwatch.stats import posthoc as _posthoc
+from lotwatch.stats.anova import one_way_anova
+from lotwatch.stats.capability import capability
+from lotwatch.stats.checks import (
     bartlett_test,
     brown_forsythe,
     kruskal_wallis,
@@ -34,9 +32,9 @@ from stats.checks import (
     residual_normality,
     resolution_check,
 )
-from stats.effect import effect_sizes, variance_components
-from stats.power import power_analysis
-from stats.results import (
+from lotwatch.stats.effect import effect_sizes, variance_components
+from lotwatch.stats.power import power_analysis
+from lotwatch.stats.results import (
     OK,
     AnomResult,
     BatteryResult,
@@ -45,7 +43,8 @@ from stats.results import (
     PairComparison,
     Recommendation,
 )
-from stats.welch import welch_anova
+from lotwatch.stats.welch import welch_anova
+from scipy import special
 
 T = TypeVar("T")
 DUNN_ADJUST = _posthoc.ADJUST_METHODS

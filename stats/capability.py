@@ -17,9 +17,8 @@ import math
 from collections.abc import Sequence
 
 import numpy as np
+from lotwatch.stats.results import Capability
 from scipy import stats as sps
-
-from stats.results import Capability
 
 
 def _index(mean: float, sd: float | None, lsl: float | None,

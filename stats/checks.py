@@ -11,11 +11,10 @@ from decimal import Decimal
 from typing import Any
 
 import numpy as np
+from lotwatch.stats._numeric import careful_mean, fmt_num, fmt_p, parse_resolution
+from lotwatch.stats.anova import one_way_anova
+from lotwatch.stats.results import OK, Recommendation, TestResult
 from scipy import stats as sps
-
-from stats._numeric import careful_mean, fmt_num, fmt_p, parse_resolution
-from stats.anova import one_way_anova
-from stats.results import OK, Recommendation, TestResult
 
 SHAPIRO_MAX_N = 5000
 

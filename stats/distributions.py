@@ -27,11 +27,10 @@ from collections import OrderedDict
 from functools import lru_cache
 
 import numpy as np
+from lotwatch.stats import _mvt
 from numpy.polynomial import chebyshev as cheb
 from scipy import optimize, special
 from scipy import stats as sps
-
-from stats import _mvt
 
 _QT_CACHE_SIZE = 4096
 

@@ -28,10 +28,9 @@ from __future__ import annotations
 
 import math
 
+from lotwatch.stats.results import OK, AnovaTable, EffectSize, VarianceComponents
 from scipy import optimize
 from scipy import stats as sps
-
-from stats.results import OK, AnovaTable, EffectSize, VarianceComponents
 
 Parts = tuple[float, float, int, int]  # ss_between, ss_within, df_between, df_within
 

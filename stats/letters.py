@@ -22,7 +22,7 @@ from __future__ import annotations
 import string
 from collections.abc import Mapping, Sequence
 
-from stats.results import PairComparison
+from lotwatch.stats.results import PairComparison
 
 _ALPHABET = string.ascii_lowercase + string.ascii_uppercase
 

@@ -652,7 +652,7 @@ def anom_critical_value(ns: Sequence[int], df: float, alpha: float = 0.05) -> fl
     """Two-sided ANOM critical value h (Nelson 1982) for group sizes ``ns`` and ``df`` degrees of
     freedom of s, from ``stats.distributions.qanom`` (cached on the group fractions). None for
     fewer than two groups or no degrees of freedom."""
-    from stats.distributions import qanom
+    from lotwatch.stats.distributions import qanom
 
     sizes = [int(x) for x in ns if x > 0]
     if len(sizes) < 2 or not df > 0:

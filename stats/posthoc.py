@@ -26,11 +26,10 @@ import math
 from collections.abc import Sequence
 
 import numpy as np
+from lotwatch.stats.distributions import pdunnett, ptukey, qdunnett, qtukey
+from lotwatch.stats.results import DunnettComparison, PairComparison
 from scipy import special
 from scipy import stats as sps
-
-from stats.distributions import pdunnett, ptukey, qdunnett, qtukey
-from stats.results import DunnettComparison, PairComparison
 
 ADJUST_METHODS = ("holm", "bh", "by", "bonferroni", "none")
 

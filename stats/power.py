@@ -16,9 +16,8 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 
+from lotwatch.stats.results import OK, PowerResult
 from scipy import optimize, special
-
-from stats.results import OK, PowerResult
 
 MAX_N = 1_000_000
 

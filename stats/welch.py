@@ -19,10 +19,9 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
+from lotwatch.stats._numeric import careful_mean, careful_ss
+from lotwatch.stats.results import OK, WelchResult
 from scipy import special
-
-from stats._numeric import careful_mean, careful_ss
-from stats.results import OK, WelchResult
 
 
 def welch_from_moments(n: Sequence[int], mean: Sequence[float],

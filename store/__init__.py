@@ -13,8 +13,8 @@ Knows SQLite and nothing of the UI or statistics (see DEVELOPERS.md for the cont
 - Errors are ``StoreError`` subclasses whose ``str()`` is a message for the user.
 """
 
-from store.connection import Store
-from store.errors import (
+from lotwatch.store.connection import Store
+from lotwatch.store.errors import (
     BadInput,
     Conflict,
     NotFound,
@@ -28,7 +28,14 @@ from store.errors import (
     StoreReadOnly,
     StoreTooNew,
 )
-from store.model import AuditEntry, Characteristic, CheckReport, Factor, LogOutcome, LotEntry
+from lotwatch.store.model import (
+    AuditEntry,
+    Characteristic,
+    CheckReport,
+    Factor,
+    LogOutcome,
+    LotEntry,
+)
 
 __all__ = [
     "AuditEntry",

@@ -15,10 +15,10 @@ from collections import defaultdict
 from collections.abc import Iterable
 from typing import TYPE_CHECKING
 
-from store.model import CheckReport
+from lotwatch.store.model import CheckReport
 
 if TYPE_CHECKING:
-    from store.connection import Store
+    from lotwatch.store.connection import Store
 
 BucketKey = tuple[int, str, str, str]  # characteristic_id, factor, level, day
 

@@ -14,8 +14,8 @@ import json
 from dataclasses import dataclass, field
 from typing import Any
 
-from store.errors import Conflict, NotFound
-from store.timeutil import format_stored, now_utc
+from lotwatch.store.errors import Conflict, NotFound
+from lotwatch.store.timeutil import format_stored, now_utc
 
 EVENTS = ("opened", "held", "acknowledged", "cleared", "reopened")
 STATES = ("open", "acknowledged", "cleared")

@@ -20,8 +20,8 @@ from datetime import date
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from store import schema
-from store.errors import (
+from lotwatch.store import schema
+from lotwatch.store.errors import (
     BadInput,
     Conflict,
     NotFound,
@@ -35,10 +35,17 @@ from store.errors import (
     StoreReadOnly,
     StoreTooNew,
 )
-from store.model import AuditEntry, Characteristic, CheckReport, Factor, LogOutcome, LotEntry
-from store.text import unsafe_character
-from store.timeutil import format_stored, now_utc
-from store.values import BadValue, canonical_resolution, choose_origin, scale_of
+from lotwatch.store.model import (
+    AuditEntry,
+    Characteristic,
+    CheckReport,
+    Factor,
+    LogOutcome,
+    LotEntry,
+)
+from lotwatch.store.text import unsafe_character
+from lotwatch.store.timeutil import format_stored, now_utc
+from lotwatch.store.values import BadValue, canonical_resolution, choose_origin, scale_of
 
 if TYPE_CHECKING:
     import polars as pl
@@ -540,7 +547,7 @@ class Store:
     def add_factor(self, name: str, required: bool = False) -> Factor:
         """Make a tag key a grouping factor; buckets for it are built from the tags of every
         stored lot in the same transaction."""
-        from store.aggregates import backfill_factor
+        from lotwatch.store.aggregates import backfill_factor
 
         key = _clean_name(name, "factor")
         with self.write():
@@ -555,14 +562,14 @@ class Store:
 
     def tag_keys(self) -> list[str]:
         """Every tag key used by a stored lot, plus every factor."""
-        from store.queries import used_tag_keys
+        from lotwatch.store.queries import used_tag_keys
 
         with self._mapped():
             used = set(used_tag_keys(self))
         return sorted(used | {f.name for f in self.factors()})
 
     def tag_values(self, key: str) -> list[str]:
-        from store.queries import tag_values
+        from lotwatch.store.queries import tag_values
 
         with self._mapped():
             return tag_values(self, key)
@@ -572,7 +579,7 @@ class Store:
     def log_lots(self, entries: Sequence[LotEntry], *, round_values: bool = False,
                  skip_bad: bool = False,
                  progress: Callable[[int], None] | None = None) -> LogOutcome:
-        from store.lots import log_lots
+        from lotwatch.store.lots import log_lots
 
         return log_lots(self, entries, round_values=round_values, skip_bad=skip_bad,
                         progress=progress)
@@ -584,37 +591,37 @@ class Store:
     def import_file(self, path: str | Path, options: Any = None, *,
                     progress: Callable[[int], None] | None = None) -> Any:
         """Read one lab file and log it (``store.importer.import_file``; returns its summary)."""
-        from store.importer import import_file
+        from lotwatch.store.importer import import_file
 
         return import_file(self, path, options, progress=progress)
 
     def correct(self, measurement_id: int, new_value: str, *, reason: str,
                 by: str | None = None, round_value: bool = False) -> AuditEntry:
-        from store.corrections import correct
+        from lotwatch.store.corrections import correct
 
         return correct(self, measurement_id, new_value, reason=reason, by=by,
                        round_value=round_value)
 
     def void(self, measurement_id: int, *, reason: str, by: str | None = None) -> AuditEntry:
-        from store.corrections import void
+        from lotwatch.store.corrections import void
 
         return void(self, measurement_id, reason=reason, by=by)
 
     def history(self, measurement_id: int) -> list[AuditEntry]:
-        from store.corrections import history
+        from lotwatch.store.corrections import history
 
         with self._mapped():
             return history(self, measurement_id)
 
     def check(self) -> CheckReport:
-        from store.aggregates import check
+        from lotwatch.store.aggregates import check
 
         with self._mapped():
             return check(self)
 
     def bucket_frame(self, *, characteristic: str | None = None, factor: str | None = None,
                      since: date | None = None, until: date | None = None) -> pl.DataFrame:
-        from store.queries import bucket_frame
+        from lotwatch.store.queries import bucket_frame
 
         with self._mapped():
             return bucket_frame(self, characteristic=characteristic, factor=factor,
@@ -622,7 +629,7 @@ class Store:
 
     def values_frame(self, characteristic: str, factor: str, *, since: date | None = None,
                      until: date | None = None, last_n: int | None = None) -> pl.DataFrame:
-        from store.queries import values_frame
+        from lotwatch.store.queries import values_frame
 
         with self._mapped():
             return values_frame(self, characteristic, factor, since=since, until=until,
@@ -630,7 +637,7 @@ class Store:
 
     def measurements_frame(self, *, characteristic: str | None = None,
                            since: date | None = None, until: date | None = None) -> pl.DataFrame:
-        from store.queries import measurements_frame
+        from lotwatch.store.queries import measurements_frame
 
         with self._mapped():
             return measurements_frame(self, characteristic=characteristic, since=since,

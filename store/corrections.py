@@ -9,15 +9,15 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING
 
-from store.aggregates import Deltas, lot_factor_levels
-from store.errors import BadInput, Conflict, NotFound, RowProblem
-from store.lots import _range_problem
-from store.model import AuditEntry
-from store.timeutil import format_stored, now_utc
-from store.values import BadValue, FinerThanResolution, format_units, text_to_units
+from lotwatch.store.aggregates import Deltas, lot_factor_levels
+from lotwatch.store.errors import BadInput, Conflict, NotFound, RowProblem
+from lotwatch.store.lots import _range_problem
+from lotwatch.store.model import AuditEntry
+from lotwatch.store.timeutil import format_stored, now_utc
+from lotwatch.store.values import BadValue, FinerThanResolution, format_units, text_to_units
 
 if TYPE_CHECKING:
-    from store.connection import Store
+    from lotwatch.store.connection import Store
 
 
 def _load(store: Store, measurement_id: int) -> tuple:

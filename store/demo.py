@@ -209,8 +209,7 @@ def _texts(units_row, spec: DemoCharacteristic) -> list[str]:
 def _entries(seed: int, end: date):
     """The demo's ``LotEntry`` list plus the positions of the corrected and voided values."""
     import numpy as np
-
-    from store import LotEntry
+    from lotwatch.store import LotEntry
 
     rng = np.random.default_rng(seed)
     lots = _lots(rng, end)
@@ -294,7 +293,7 @@ def build_demo_store(
     built under a temporary name and moved into place, so an interrupted build leaves nothing
     half-made at ``path``.
     """
-    from store import Store
+    from lotwatch.store import Store
 
     target = Path(path) if path is not None else demo_store_path()
     if target.exists() and not fresh:

@@ -24,7 +24,7 @@ from datetime import date
 from pathlib import Path
 from typing import IO
 
-from store.errors import StoreError
+from lotwatch.store.errors import StoreError
 
 FORMATS = ("csv", "parquet")
 FORMULA_START = ("=", "+", "-", "@", "\t", "\r")

@@ -42,7 +42,7 @@ from datetime import datetime
 from pathlib import Path
 from typing import Any
 
-from store.errors import BadInput, RowProblem, StoreError
+from lotwatch.store.errors import BadInput, RowProblem, StoreError
 
 FORMATS = ("auto", "csv", "parquet")
 LAYOUTS = ("auto", "long", "wide")
@@ -287,7 +287,7 @@ def parse_timestamp(text: str) -> datetime:
 
     ``YYYY/MM/DD`` dates are accepted too. Raises ValueError with a short reason.
     """
-    from store.timeutil import to_utc
+    from lotwatch.store.timeutil import to_utc
 
     t = text.strip()
     m = _SLASH_DATE.match(t)
@@ -351,8 +351,7 @@ def parse_import(
     tag columns and, in the wide layout, the default characteristic columns).
     """
     import polars as pl
-
-    from store import LotEntry
+    from lotwatch.store import LotEntry
 
     path = Path(path)
     notes: list[str] = []

@@ -21,12 +21,12 @@ from dataclasses import dataclass, field
 from datetime import datetime
 from typing import TYPE_CHECKING
 
-from store.aggregates import Deltas
-from store.errors import BadInput, RowProblem
-from store.model import Characteristic, LogOutcome, LotEntry
-from store.text import unsafe_character
-from store.timeutil import BadTime, format_stored, now_utc
-from store.values import (
+from lotwatch.store.aggregates import Deltas
+from lotwatch.store.errors import BadInput, RowProblem
+from lotwatch.store.model import Characteristic, LogOutcome, LotEntry
+from lotwatch.store.text import unsafe_character
+from lotwatch.store.timeutil import BadTime, format_stored, now_utc
+from lotwatch.store.values import (
     MAX_ABS_D,
     BadValue,
     FinerThanResolution,
@@ -37,7 +37,7 @@ from store.values import (
 )
 
 if TYPE_CHECKING:
-    from store.connection import Store
+    from lotwatch.store.connection import Store
 
 PROGRESS_EVERY = 10_000
 _CHUNK = 500  # parameters per IN (...) lookup, below SQLite's default limit

@@ -5,7 +5,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from datetime import datetime
 
-from store.errors import RowProblem
+from lotwatch.store.errors import RowProblem
 
 
 @dataclass(frozen=True)
@@ -35,7 +35,7 @@ class Characteristic:
     @property
     def origin_value(self) -> float:
         """The origin as a value in the characteristic's unit (``origin_units * resolution``)."""
-        from store.values import units_to_float
+        from lotwatch.store.values import units_to_float
 
         return units_to_float(self.origin_units, self.resolution)
 

@@ -11,13 +11,12 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 import polars as pl
-
-from store.errors import BadInput, NotFound, RowProblem
-from store.timeutil import BadTime, date_text
-from store.values import scale_of
+from lotwatch.store.errors import BadInput, NotFound, RowProblem
+from lotwatch.store.timeutil import BadTime, date_text
+from lotwatch.store.values import scale_of
 
 if TYPE_CHECKING:
-    from store.connection import Store
+    from lotwatch.store.connection import Store
 
 BUCKET_SCHEMA = {
     "characteristic": pl.String, "factor": pl.String, "level": pl.String, "day": pl.String,

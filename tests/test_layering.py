@@ -1,6 +1,11 @@
-"""The one direction of imports: ``store`` and ``stats`` never pull in the interface.
+"""The one direction of imports, checked in a fresh interpreter so that nothing imported by other
+tests can hide a violation:
 
-Checked in a fresh interpreter so that nothing imported by other tests can hide a violation.
+    lotwatch.tui.app ──► lotwatch.tui.services ──► lotwatch.store
+    lotwatch.tui.cli ──► lotwatch.tui.render         lotwatch.stats
+
+``store`` and ``stats`` never import each other or the interface; the headless services and the
+renderers never import Textual or click.
 """
 
 from __future__ import annotations
@@ -8,13 +13,10 @@ from __future__ import annotations
 import json
 import subprocess
 import sys
-from pathlib import Path
 
 import pytest
 
-ROOT = Path(__file__).resolve().parent.parent
-
-FORBIDDEN_FOR_ALL = ("textual", "plotext", "textual_plotext", "tui")
+UI = ("textual", "textual_plotext", "plotext", "click")
 
 
 def _modules_after_import(package: str) -> set[str]:
@@ -23,16 +25,25 @@ def _modules_after_import(package: str) -> set[str]:
         f"pkg = importlib.import_module({package!r})\n"
         "for m in pkgutil.walk_packages(pkg.__path__, pkg.__name__ + '.'):\n"
         "    importlib.import_module(m.name)\n"
-        "print(json.dumps(sorted({n.split('.')[0] for n in sys.modules})))\n"
+        "print(json.dumps(sorted(sys.modules)))\n"
     )
-    out = subprocess.run(
-        [sys.executable, "-c", code], cwd=ROOT, capture_output=True, text=True, check=True
-    )
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     return set(json.loads(out.stdout.strip().splitlines()[-1]))
 
 
-@pytest.mark.parametrize("package, also_forbidden", [("store", ("stats",)), ("stats", ("store", "sqlite3", "sqlite_utils"))])
-def test_headless_packages_do_not_import_the_interface(package: str, also_forbidden: tuple[str, ...]) -> None:
+def _hits(loaded: set[str], forbidden: tuple[str, ...]) -> list[str]:
+    return sorted(f for f in forbidden if any(m == f or m.startswith(f + ".") for m in loaded))
+
+
+@pytest.mark.parametrize(
+    "package, forbidden",
+    [
+        ("lotwatch.store", UI + ("lotwatch.tui", "lotwatch.stats")),
+        ("lotwatch.stats", UI + ("lotwatch.tui", "lotwatch.store", "sqlite3", "sqlite_utils")),
+        ("lotwatch.tui.services", UI + ("lotwatch.tui.app", "lotwatch.tui.cli")),
+        ("lotwatch.tui.render", UI + ("lotwatch.tui.app", "lotwatch.tui.cli")),
+    ],
+)
+def test_layers_import_only_downwards(package: str, forbidden: tuple[str, ...]) -> None:
     loaded = _modules_after_import(package)
-    bad = sorted(loaded & set(FORBIDDEN_FOR_ALL + also_forbidden))
-    assert bad == [], f"{package} (and its submodules) imported {bad}"
+    assert _hits(loaded, forbidden) == [], f"{package} (and its submodules) imported these"

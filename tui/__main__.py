@@ -1,6 +1,6 @@
-"""``python -m tui`` runs the lotwatch command line."""
+"""``python -m lotwatch.tui`` runs the lotwatch command line."""
 
-from tui.cli import main
+from lotwatch.tui.cli import main
 
 if __name__ == "__main__":
     main()

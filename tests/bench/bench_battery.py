@@ -24,9 +24,9 @@ from scipy import stats as sps
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
-from stats.anova import anova_batch  # noqa: E402
-from stats.battery import run_battery  # noqa: E402
-from stats.welch import welch_batch  # noqa: E402
+from lotwatch.stats.anova import anova_batch  # noqa: E402
+from lotwatch.stats.battery import run_battery  # noqa: E402
+from lotwatch.stats.welch import welch_batch  # noqa: E402
 
 
 def timed(fn, repeats: int) -> float:

@@ -23,10 +23,9 @@ sys.path.insert(0, str(ROOT))
 
 import numpy as np  # noqa: E402
 import polars as pl  # noqa: E402
-
-from store import Store  # noqa: E402
-from store.demo import build_demo_store  # noqa: E402
-from store.importer import ImportOptions, parse_import, store_import  # noqa: E402
+from lotwatch.store import Store  # noqa: E402
+from lotwatch.store.demo import build_demo_store  # noqa: E402
+from lotwatch.store.importer import ImportOptions, parse_import, store_import  # noqa: E402
 
 
 def make_csv(path: Path, rows: int) -> None:

@@ -27,11 +27,11 @@ from scipy import stats as sps
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
-from stats import _mvt, distributions  # noqa: E402
-from stats.anom import analysis_of_means  # noqa: E402
-from stats.distributions import ptukey  # noqa: E402
-from stats.letters import compact_letters  # noqa: E402
-from stats.posthoc import dunn, dunnett, games_howell, tukey_kramer  # noqa: E402
+from lotwatch.stats import _mvt, distributions  # noqa: E402
+from lotwatch.stats.anom import analysis_of_means  # noqa: E402
+from lotwatch.stats.distributions import ptukey  # noqa: E402
+from lotwatch.stats.letters import compact_letters  # noqa: E402
+from lotwatch.stats.posthoc import dunn, dunnett, games_howell, tukey_kramer  # noqa: E402
 
 
 def clear_caches(*, everything: bool = False) -> None:

@@ -52,10 +52,9 @@ sys.path.insert(0, str(ROOT))
 
 import numpy as np  # noqa: E402
 import polars as pl  # noqa: E402
-
-from stats import monitor as mon  # noqa: E402
-from store import LotEntry, Store  # noqa: E402
-from tui import review_engine as eng  # noqa: E402
+from lotwatch.stats import monitor as mon  # noqa: E402
+from lotwatch.store import LotEntry, Store  # noqa: E402
+from lotwatch.tui.services import review_engine as eng  # noqa: E402
 
 END = date(2026, 11, 29)
 DAYS = 730
@@ -254,7 +253,7 @@ def hwm():
         if line.startswith("VmHWM:"):
             return int(line.split()[1])
 import bench_review as b
-from store import Store
+from lotwatch.store import Store
 store = Store.open({path!r}, read_only=True)
 before = hwm()
 b.full_review(store)

@@ -19,10 +19,9 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT))
 
+import lotwatch.store.queries  # noqa: E402, F401 - also up front (it imports numpy)
 import polars  # noqa: E402, F401 - imported up front so no timing includes it
-
-import store.queries  # noqa: E402, F401 - also up front (it imports numpy)
-from store import LotEntry, Store  # noqa: E402
+from lotwatch.store import LotEntry, Store  # noqa: E402
 
 
 def _entries(n: int, start: int, rng: random.Random) -> list[LotEntry]:

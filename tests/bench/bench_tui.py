@@ -3,7 +3,7 @@
 Run: ``cd /work/main && /work/venv/bin/python tests/bench/bench_tui.py``. Builds the demo store in
 a temporary data directory, then in fresh processes (imports included):
 
-* first paint, in a real terminal (tmux, 80×24, private socket): from launching ``python -m tui
+* first paint, in a real terminal (tmux, 80×24, private socket): from launching ``python -m lotwatch.tui
   demo`` until the main view's tabs are on screen, against a bare Textual app showing one Static
   launched the same way in the same run (ratio printed); goal: under 1.5 s on the demo store;
 * first data: until the selected comparison's group table is on screen;
@@ -24,7 +24,7 @@ ROOT = Path(__file__).resolve().parents[2]
 LOTWATCH = r"""
 import sys, time, asyncio
 sys.path.insert(0, ROOT)
-from tui.app import LotwatchApp
+from lotwatch.tui.app.application import LotwatchApp
 async def main():
     app = LotwatchApp(DB)
     async with app.run_test(size=(80, 24)) as pilot:
@@ -100,7 +100,7 @@ def main(repeats: int = 3) -> None:
         env = {**os.environ, "XDG_DATA_HOME": home}
         sys.path.insert(0, str(ROOT))
         os.environ["XDG_DATA_HOME"] = home
-        from store.demo import build_demo_store, demo_store_path
+        from lotwatch.store.demo import build_demo_store, demo_store_path
 
         db = build_demo_store(demo_store_path())
         code = LOTWATCH.replace("ROOT", repr(str(ROOT))).replace("DB", repr(str(db)))
@@ -109,7 +109,7 @@ def main(repeats: int = 3) -> None:
         for _ in range(repeats):
             base.append(tmux_paint([sys.executable, "-c", BARE_APP], xdg, "bare app",
                                    "bare app")[0])
-            p, d = tmux_paint([sys.executable, "-m", "tui", "demo"], xdg, "1 Groups", "Hillside ")
+            p, d = tmux_paint([sys.executable, "-m", "lotwatch.tui", "demo"], xdg, "1 Groups", "Hillside ")
             paints.append(p)
             datas.append(d)
             saves.append(run(code, env)["save"])

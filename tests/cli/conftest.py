@@ -23,7 +23,7 @@ def env(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> dict[str, str]:
 @pytest.fixture
 def cli(env):
     """``cli(*args)`` runs ``lotwatch args`` in-process and returns the click Result."""
-    from tui.cli import main
+    from lotwatch.tui.cli import main
 
     runner = CliRunner()
 

@@ -11,7 +11,7 @@ ROOT = Path(__file__).resolve().parents[2]
 
 
 def subprocess_env() -> dict[str, str]:
-    """The environment for ``python -m tui`` in a subprocess, with the repo importable."""
+    """The environment for ``python -m lotwatch.tui`` in a subprocess, with the repo importable."""
     e = dict(os.environ)
     e["PYTHONPATH"] = str(ROOT) + (os.pathsep + e["PYTHONPATH"] if e.get("PYTHONPATH") else "")
     return e

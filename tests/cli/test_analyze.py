@@ -8,9 +8,8 @@ from pathlib import Path
 import polars as pl
 import pytest
 from click.testing import CliRunner
+from lotwatch.tui.cli import main
 from scipy import stats as sps
-
-from tui.cli import main
 
 # NIST/SEMATECH e-Handbook §7.4.3.3 one-way example (from memory; cross-checked with scipy)
 HANDBOOK = {"L1": [6.9, 5.4, 5.8, 4.6, 4.0], "L2": [8.3, 6.8, 7.8, 9.2, 6.5],

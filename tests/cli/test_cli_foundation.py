@@ -1,6 +1,6 @@
 """End-to-end tests of the foundation commands on temporary stores (click.testing.CliRunner).
 
-Exit statuses follow the project's convention (tui/commands/common.py): 0 success, 2 a refusal
+Exit statuses follow the project's convention (tui/cli/common.py): 0 success, 2 a refusal
 with a clear message (bad input or store error), 1 for `lotwatch check` finding a mismatch.
 """
 
@@ -358,14 +358,14 @@ def test_export_stdout_file_overwrite_and_parquet(cli, db, tmp_path):
 @pytest.mark.parametrize("args", [("--help",), ("init", "--help"), ("import", "--help")])
 def test_runs_as_a_program(args, tmp_path):
     # the real entry point, in a fresh interpreter (no CliRunner)
-    p = subprocess.run([sys.executable, "-m", "tui", *args], cwd=tmp_path, env=subprocess_env(),
+    p = subprocess.run([sys.executable, "-m", "lotwatch.tui", *args], cwd=tmp_path, env=subprocess_env(),
                        capture_output=True, text=True, timeout=60)
     assert p.returncode == 0, p.stderr
     assert "Usage:" in p.stdout
 
 
 def test_program_error_exit_status_and_no_traceback(tmp_path, db):
-    p = subprocess.run([sys.executable, "-m", "tui", "log", "fill_volume", "5000", "--tag", "site=S",
+    p = subprocess.run([sys.executable, "-m", "lotwatch.tui", "log", "fill_volume", "5000", "--tag", "site=S",
                         "--tag", "line=L", "--tag", "shift=e", "--db", str(db)],
                        cwd=tmp_path, env=subprocess_env(), capture_output=True, text=True,
                        timeout=60)

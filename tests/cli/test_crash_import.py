@@ -28,7 +28,7 @@ WAL_BYTES_BEFORE_KILL = 4_000_000
 
 
 def lotwatch(*args: object, **kw) -> subprocess.CompletedProcess:
-    return subprocess.run([sys.executable, "-m", "tui", *map(str, args)], env=env(),
+    return subprocess.run([sys.executable, "-m", "lotwatch.tui", *map(str, args)], env=env(),
                           capture_output=True, text=True, timeout=120, **kw)
 
 
@@ -59,7 +59,7 @@ def test_sigkill_mid_import_leaves_store_unchanged(tmp_path):
     csv_path = big_csv(tmp_path / "big.csv", ROWS)
     wal = Path(f"{db}-wal")
 
-    proc = subprocess.Popen([sys.executable, "-m", "tui", "import", str(csv_path), "--db",
+    proc = subprocess.Popen([sys.executable, "-m", "lotwatch.tui", "import", str(csv_path), "--db",
                              str(db)], env=env(), stdout=subprocess.PIPE,
                             stderr=subprocess.PIPE)
     killed = False

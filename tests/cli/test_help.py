@@ -5,8 +5,7 @@ from __future__ import annotations
 
 import click
 import pytest
-
-from tui.cli import main
+from lotwatch.tui.cli import main
 
 
 def walk(group: click.Group, path: tuple[str, ...] = ()):

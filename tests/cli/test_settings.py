@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from store import Store
+from lotwatch.store import Store
 
 
 def test_settings_set_list_reset_round_trip(cli, db):

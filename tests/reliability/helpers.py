@@ -23,7 +23,7 @@ TRACEBACK_MARKERS = ("Traceback (most recent call last)", "sqlite3.", "Operation
 
 def make_store(path: Path, *, extra_chars: bool = False) -> Path:
     """A store with fill_volume (mL, resolution 0.1, target 500, plausible 400..600)."""
-    from store import Store
+    from lotwatch.store import Store
 
     with Store.create(path) as s:
         s.add_characteristic(CHAR, unit="mL", resolution="0.1", lsl=495, target=500, usl=505,
@@ -35,7 +35,7 @@ def make_store(path: Path, *, extra_chars: bool = False) -> Path:
 
 
 def subprocess_env(extra: dict[str, str] | None = None) -> dict[str, str]:
-    """Environment for ``python -m tui`` from the repository (no user data touched)."""
+    """Environment for ``python -m lotwatch.tui`` from the repository (no user data touched)."""
     env = dict(os.environ)
     env["PYTHONPATH"] = str(ROOT) + (os.pathsep + env["PYTHONPATH"] if env.get("PYTHONPATH") else "")
     env.setdefault("XDG_DATA_HOME", "/nonexistent-lotwatch-test-home")
@@ -46,7 +46,7 @@ def subprocess_env(extra: dict[str, str] | None = None) -> dict[str, str]:
 
 
 def cli_cmd(*args: object) -> list[str]:
-    return [PYTHON, "-m", "tui", *(str(a) for a in args)]
+    return [PYTHON, "-m", "lotwatch.tui", *(str(a) for a in args)]
 
 
 def run_cli(*args: object, timeout: float = 120, env: dict[str, str] | None = None,

@@ -42,6 +42,22 @@ def public_dir() -> Iterator[Path]:
         shutil.rmtree(d, ignore_errors=True)
 
 
+def _public_source_tree() -> Path:
+    """A folder under /tmp holding ``lotwatch/{store,stats,tui}`` as links to this checkout, so
+    another account's Python imports the code under test whether lotwatch is installed editable
+    (a path hook other accounts' interpreters do not load) or not."""
+    d = Path(tempfile.gettempdir()) / f"lotwatch-src-{os.getuid()}"
+    pkg = d / "lotwatch"
+    pkg.mkdir(parents=True, exist_ok=True)
+    for name in ("store", "stats", "tui"):
+        link = pkg / name
+        if not link.is_symlink():
+            link.symlink_to(ROOT / name)
+    for p in (d, pkg):
+        p.chmod(0o755)
+    return d
+
+
 class Accounts:
     """Unix accounts and groups made for one test (removed afterwards)."""
 
@@ -77,7 +93,7 @@ class Accounts:
         if self.python is not None:
             return self.python
         env = subprocess_env()
-        probe = "import polars, click, textual, scipy"
+        probe = "import polars, click, textual, scipy, lotwatch.tui.cli"
         if _as(user, [sys.executable, "-c", probe], env).returncode == 0:
             self.python = [sys.executable]
             return self.python
@@ -85,9 +101,10 @@ class Accounts:
         system = shutil.which(version, path="/usr/bin:/usr/local/bin:/bin")
         site = sysconfig.get_paths()["purelib"]
         if system:
-            env2 = dict(env, PYTHONPATH=f"{ROOT}{os.pathsep}{site}")
+            path = os.pathsep.join([str(_public_source_tree()), str(ROOT), site])
+            env2 = dict(env, PYTHONPATH=path)
             if _as(user, [system, "-c", probe], env2).returncode == 0:
-                self.python = ["env", f"PYTHONPATH={ROOT}{os.pathsep}{site}", system]
+                self.python = ["env", f"PYTHONPATH={path}", system]
                 return self.python
         pytest.skip("no Python interpreter that another account may run has lotwatch's "
                     f"packages (this one, {sys.executable}, is not reachable by them)")
@@ -98,7 +115,7 @@ class Accounts:
         """Run ``lotwatch ARGS`` as ``user`` with the given umask."""
         py = self.interpreter(user)
         env = subprocess_env(env_extra)
-        cmd = ["sh", "-c", f'umask {umask} && exec "$@"', "sh", *py, "-m", "tui",
+        cmd = ["sh", "-c", f'umask {umask} && exec "$@"', "sh", *py, "-m", "lotwatch.tui",
                *(str(a) for a in args)]
         return _as(user, cmd, env, timeout=timeout)
 

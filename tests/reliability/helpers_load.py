@@ -45,7 +45,7 @@ def _lot_fields(rng: random.Random, writer: int, k: int) -> tuple[str, dict[str,
 
 def api_writer(path: str, writer: int, n_lots: int, shared: int, barrier, results) -> None:
     """Log ``n_lots`` own lots (one per call), then ``shared`` lots every writer also logs."""
-    from store import LotEntry, Store
+    from lotwatch.store import LotEntry, Store
 
     res = WorkerResult("api-writer", writer)
     rng = random.Random(1000 + writer)
@@ -82,10 +82,9 @@ def import_writer(path: str, writer: int, n_files: int, lots_per_file: int, work
                   subprocess_every: int, barrier, results) -> None:
     """Import ``n_files`` small long-layout CSV files through ``lotwatch import``; each file is
     imported twice (the second time must store nothing). Every ``subprocess_every``-th file goes
-    through a real ``python -m tui import`` process, the rest through click in this process."""
+    through a real ``python -m lotwatch.tui import`` process, the rest through click in this process."""
     from click.testing import CliRunner
-
-    from tui.cli import main
+    from lotwatch.tui.cli import main
 
     res = WorkerResult("import-writer", writer)
     rng = random.Random(2000 + writer)
@@ -131,8 +130,8 @@ def import_writer(path: str, writer: int, n_files: int, lots_per_file: int, work
 def reader(path: str, index: int, mode: str, stop, barrier, results) -> None:
     """Until ``stop`` is set: ``run_review(persist=False)`` (mode "review") or bucket and value
     frame reads with a consistency check of each frame (mode "frames")."""
-    from store import Store
-    from tui.review_engine import run_review
+    from lotwatch.store import Store
+    from lotwatch.tui.services.review_engine import run_review
 
     res = WorkerResult(f"reader-{mode}", index)
     try:

@@ -8,9 +8,15 @@ from datetime import datetime
 from pathlib import Path
 
 import pytest
+from lotwatch.store import Conflict, LotEntry, Store
+from lotwatch.store.alerts import (
+    Transition,
+    acknowledge,
+    alert_history,
+    get_alert,
+    record_transitions,
+)
 
-from store import Conflict, LotEntry, Store
-from store.alerts import Transition, acknowledge, alert_history, get_alert, record_transitions
 from tests.reliability.helpers import CHAR, TAGS, make_store, ro_connect, run_cli
 
 

@@ -16,9 +16,9 @@ import subprocess
 from pathlib import Path
 
 import pytest
+from lotwatch.store import LotEntry, Store, StoreError
+from lotwatch.store.alerts import Transition, acknowledge, record_transitions
 
-from store import LotEntry, Store, StoreError
-from store.alerts import Transition, acknowledge, record_transitions
 from tests.reliability.helpers import CHAR, cli_cmd, make_store, subprocess_env
 
 MARKUP = "[bold red]boom[/] [@click=app.quit]x[/]"
@@ -175,10 +175,10 @@ def test_export_to_a_pipe_keeps_the_exact_text(hostile) -> None:
 
 
 async def test_interface_shows_hostile_text_literally_and_cut(hostile) -> None:
+    from lotwatch.tui.app.application import LotwatchApp
     from textual.widgets import DataTable
 
     from tests.tui.tui_helpers import screen_text, wait_until
-    from tui.app import LotwatchApp
 
     path, _ = hostile
     app = LotwatchApp(path)

@@ -11,8 +11,8 @@ import subprocess
 from pathlib import Path
 
 import pytest
+from lotwatch.store import LotEntry, Store, StoreError, StoreMissing, StoreTooNew
 
-from store import LotEntry, Store, StoreError, StoreMissing, StoreTooNew
 from tests.reliability.helpers import (
     CHAR,
     TAGS,
@@ -170,7 +170,7 @@ def test_read_only_file_and_folder(accounts) -> None:  # noqa: F811 - fixture
 _APP_READ_ONLY = """
 import asyncio, sys, time
 from tests.tui.tui_helpers import notifications, screen_text
-from tui.app import LotwatchApp
+from lotwatch.tui.app.application import LotwatchApp
 
 async def wait(pilot, cond, timeout=30):
     end = time.monotonic() + timeout
@@ -251,8 +251,9 @@ def test_store_from_a_newer_version(tmp_path: Path) -> None:
 async def test_app_on_a_store_replaced_then_made_too_new(tmp_path: Path) -> None:
     """The interface keeps running and says what happened when its store is replaced by a
     file from a newer lotwatch, and when it is deleted; saving then fails with a message."""
+    from lotwatch.tui.app.application import LotwatchApp
+
     from tests.tui.tui_helpers import notifications, settle
-    from tui.app import LotwatchApp
 
     path = make_store(tmp_path / "store.sqlite")
     _seed(path, 20)

@@ -9,8 +9,8 @@ import io
 from pathlib import Path
 
 import polars as pl
+from lotwatch.store import LotEntry, Store
 
-from store import LotEntry, Store
 from tests.reliability.helpers import assert_clean_refusal, run_cli
 
 FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
@@ -101,7 +101,7 @@ def test_export_never_overwrites_unless_asked(tmp_path: Path) -> None:
 def test_tab_and_carriage_return_at_cell_start_are_neutralised() -> None:
     """The store strips them from tags and notes; the export guards them anyway (OWASP lists
     both as formula starters)."""
-    from store.export import neutralise_text
+    from lotwatch.store.export import neutralise_text
 
     frame = pl.DataFrame({"t": ["\t=1+1", "\r=1+1", "=x", "ok", "-", None],
                           "n": [-1.5, 2.0, -0.0, 1e300, -3.0, 0.0]})

@@ -24,8 +24,8 @@ from collections import Counter
 from pathlib import Path
 
 import pytest
+from lotwatch.store import LotEntry, Store
 
-from store import LotEntry, Store
 from tests.reliability.helpers import (
     CHAR,
     PYTHON,
@@ -44,7 +44,7 @@ BATCH = len(PAIRS)
 
 _DRIVER_CORRECT = """
 import sys
-from store import Store
+from lotwatch.store import Store
 path, tag, start = sys.argv[1], sys.argv[2], int(sys.argv[3])
 with Store.open(path) as s:
     ids = [r[0] for r in s.conn.execute(
@@ -62,7 +62,7 @@ with Store.open(path) as s:
 
 _DRIVER_VOID = """
 import sys
-from store import LotEntry, Store
+from lotwatch.store import LotEntry, Store
 path, tag = sys.argv[1], sys.argv[2]
 with Store.open(path) as s:
     k = 0
@@ -77,8 +77,8 @@ with Store.open(path) as s:
 
 _DRIVER_ALERTS = """
 import sys
-from store import Store
-from store.alerts import Transition, acknowledge, latest_alert, record_transitions
+from lotwatch.store import Store
+from lotwatch.store.alerts import Transition, acknowledge, latest_alert, record_transitions
 path, tag = sys.argv[1], sys.argv[2]
 pairs = [tuple(p.split(":")) for p in sys.argv[3].split(",")]
 with Store.open(path) as s:

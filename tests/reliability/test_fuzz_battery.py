@@ -21,12 +21,13 @@ import numpy as np
 import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
-
-from stats import run_battery
-from tui.battery_text import render_battery
+from lotwatch.stats import run_battery
+from lotwatch.tui.render.battery_text import render_battery
 
 COUNTS: Counter[str] = Counter()
-STATS_DIR = (Path(__file__).resolve().parents[2] / "stats").resolve()
+import lotwatch.stats  # noqa: E402
+
+STATS_DIR = Path(lotwatch.stats.__file__).resolve().parent
 
 FINITE = st.floats(allow_nan=False, allow_infinity=False)
 ANY_FLOAT = st.floats(allow_nan=True, allow_infinity=True)

@@ -20,9 +20,9 @@ import pytest
 from click.testing import CliRunner
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
+from lotwatch.store import Store, StoreError
+from lotwatch.store.importer import ImportOptions, import_file
 
-from store import Store, StoreError
-from store.importer import ImportOptions, import_file
 from tests.reliability.helpers import CHAR, make_store
 
 COUNTS: Counter[str] = Counter()
@@ -241,7 +241,7 @@ def test_importer_fuzz_10k(fuzz_store, tmp_path_factory) -> None:
 
 
 def _cli_property(tmp_path_factory, n: int) -> int:
-    from tui.cli import main
+    from lotwatch.tui.cli import main
 
     folder = tmp_path_factory.mktemp("cli-fuzz")
     db = make_store(folder / "cli.sqlite")

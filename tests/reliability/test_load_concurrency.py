@@ -11,8 +11,8 @@ from collections import Counter
 from pathlib import Path
 
 import pytest
+from lotwatch.store import Store
 
-from store import Store
 from tests.reliability.helpers import check_ok, lot_value_counts, make_store
 from tests.reliability.helpers_load import run_load
 

@@ -21,7 +21,7 @@ LOG = ["log", CHAR, "500.1", "--tag", "site=north", "--tag", "line=1", "--tag", 
 
 _HOLD_OPEN = """
 import os, stat, sys
-from store import LotEntry, Store
+from lotwatch.store import LotEntry, Store
 path = sys.argv[1]
 with Store.open(path) as s:
     s.log_lots([LotEntry("fill_volume", ["500.0"], {"site": "south", "line": "2", "shift": "day"},

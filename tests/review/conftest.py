@@ -24,9 +24,9 @@ class DemoReplay:
 @pytest.fixture(scope="session")
 def demo_replay(tmp_path_factory) -> DemoReplay:
     """The demo store (store.demo.build_demo_store) reviewed every Sunday from week 4 to the end."""
-    from store import Store
-    from store.demo import DAYS, DRIFT_START_DAY, build_demo_store
-    from tui import review_engine as eng
+    from lotwatch.store import Store
+    from lotwatch.store.demo import DAYS, DRIFT_START_DAY, build_demo_store
+    from lotwatch.tui.services import review_engine as eng
 
     base = tmp_path_factory.mktemp("demo")
     pristine = build_demo_store(base / "pristine.sqlite", fresh=True, end=DEMO_END)

@@ -10,10 +10,9 @@ from datetime import timedelta
 
 import pytest
 from click.testing import CliRunner
-
-from stats.monitor import CAUTION
-from store import LotEntry, Store
-from tui.cli import main
+from lotwatch.stats.monitor import CAUTION
+from lotwatch.store import LotEntry, Store
+from lotwatch.tui.cli import main
 
 
 def run(db, *args):

@@ -13,11 +13,10 @@ import pytest
 import scipy.stats as ss
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
-
-from stats import monitor as mon
-from store import LotEntry, Store
-from store import alerts as store_alerts
-from tui import review_engine as eng
+from lotwatch.stats import monitor as mon
+from lotwatch.store import LotEntry, Store
+from lotwatch.store import alerts as store_alerts
+from lotwatch.tui.services import review_engine as eng
 
 MONDAY = date(2026, 3, 2)
 
@@ -53,7 +52,7 @@ def test_store_windows_equal_raw_value_oracles(case):
     """For random small stores and windows, the bucket-sum results of every window equal
     scipy.stats.f_oneway (classical and Welch) and stats.run_battery's ANOVA table on the raw
     values that window holds (store.values_frame)."""
-    from stats import run_battery
+    from lotwatch.stats import run_battery
 
     k, n, seed, kind, days, last_n, as_of = case
     rng = np.random.default_rng(seed)
@@ -264,7 +263,7 @@ def test_demo_review_finds_the_drifting_line_and_nothing_else(demo_replay):
     characteristic × factor has no mean difference. The review opens exactly one alert,
     fill_volume by line naming RB-2 (higher), after the onset; no signal before the onset; the
     implied site effect (Riverbend) is the only other comparison allowed a signal."""
-    from store.demo import DEMO_EFFECTS
+    from lotwatch.store.demo import DEMO_EFFECTS
 
     drift = {(e.characteristic, e.factor): e.level for e in DEMO_EFFECTS if e.kind == "mean_drift"}
     assert drift == {("fill_volume", "line"): "RB-2", ("fill_volume", "site"): "Riverbend"}
@@ -344,10 +343,10 @@ def test_window_kind_override_reads_other_lots_and_leaves_the_setting(demo_repla
     """comparison_detail(window=...) reads that window kind without changing the store's setting;
     the battery on it agrees with scipy.stats.f_oneway on the same raw values (oracle)."""
     import scipy.stats as sps
+    from lotwatch.store import Store
+    from lotwatch.tui.services import review_engine as eng
 
-    from store import Store
     from tests.review.conftest import DEMO_END
-    from tui import review_engine as eng
 
     with Store.open(demo_replay.pristine, read_only=True) as store:
         trailing = eng.comparison_detail(store, "fill_volume", "line", as_of=DEMO_END)

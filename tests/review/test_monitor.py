@@ -11,8 +11,7 @@ import pytest
 import scipy.stats as ss
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
-
-from stats import monitor as mon
+from lotwatch.stats import monitor as mon
 
 DAY0 = date(2026, 1, 5)  # a Monday
 
@@ -188,7 +187,7 @@ def test_family_fdr_rows_are_separate_families():
 def test_detectable_shift_matches_power_analysis():
     """The vectorised 80%-power detectable shift equals stats.power_analysis's (brentq on the
     noncentral F) for the same group sizes and SD."""
-    from stats.power import power_analysis
+    from lotwatch.stats.power import power_analysis
 
     rng = np.random.default_rng(3)
     rows = []

@@ -11,10 +11,9 @@ import math
 
 import numpy as np
 import pytest
+from lotwatch.stats.anom import analysis_of_means
+from lotwatch.stats.distributions import qanom
 from scipy import stats
-
-from stats.anom import analysis_of_means
-from stats.distributions import qanom
 
 
 def test_limits_and_flags_by_formula():

@@ -13,8 +13,7 @@ from fractions import Fraction
 from importlib import resources
 
 import pytest
-
-from stats.anova import anova_from_sums, one_way_anova
+from lotwatch.stats.anova import anova_from_sums, one_way_anova
 
 DATASETS = ["SiRstv", "SmLs01", "SmLs02", "SmLs03", "AtmWtAg", "SmLs04", "SmLs05", "SmLs06",
             "SmLs07", "SmLs08", "SmLs09"]

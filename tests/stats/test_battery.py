@@ -9,10 +9,9 @@ import numpy as np
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
+from lotwatch.stats.battery import run_battery
+from lotwatch.tui.render.battery_text import CAUTION, render_battery
 from scipy import stats as sps
-
-from stats.battery import run_battery
-from tui.battery_text import CAUTION, render_battery
 
 HANDBOOK = [[6.9, 5.4, 5.8, 4.6, 4.0], [8.3, 6.8, 7.8, 9.2, 6.5], [8.0, 10.5, 8.1, 6.9, 9.3]]
 

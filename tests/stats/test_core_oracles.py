@@ -14,17 +14,16 @@ import numpy as np
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
+from lotwatch.stats.anova import anova_batch, anova_from_sums, one_way_anova
+from lotwatch.stats.checks import bartlett_test, brown_forsythe, kruskal_wallis, residual_normality
+from lotwatch.stats.effect import effect_sizes, variance_components
+from lotwatch.stats.multiple import adjust_pvalues
+from lotwatch.stats.power import power_analysis
+from lotwatch.stats.welch import welch_anova, welch_batch, welch_from_moments
 from scipy import stats as sps
 from statsmodels.stats.multitest import multipletests
 from statsmodels.stats.oneway import anova_oneway, confint_effectsize_oneway
 from statsmodels.stats.power import FTestAnovaPower
-
-from stats.anova import anova_batch, anova_from_sums, one_way_anova
-from stats.checks import bartlett_test, brown_forsythe, kruskal_wallis, residual_normality
-from stats.effect import effect_sizes, variance_components
-from stats.multiple import adjust_pvalues
-from stats.power import power_analysis
-from stats.welch import welch_anova, welch_batch, welch_from_moments
 
 REL = 1e-9
 SETTINGS = settings(max_examples=40, deadline=None)
@@ -242,7 +241,7 @@ def test_unit_conversion_matches_python_decimal(res_text, ints, extra) -> None:
     """The vectorised float-to-units shortcut agrees with Python's decimal module (the oracle)."""
     from decimal import Decimal
 
-    from stats._numeric import parse_resolution, to_units
+    from lotwatch.stats._numeric import parse_resolution, to_units
 
     res = parse_resolution(res_text)
     values = [float(Decimal(i) * res) for i in ints] + extra

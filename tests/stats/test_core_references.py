@@ -6,11 +6,9 @@ import math
 
 import numpy as np
 import pytest
-from scipy import stats as sps
-
-from stats.anova import anova_batch, anova_from_sums, one_way_anova
-from stats.capability import capability
-from stats.checks import (
+from lotwatch.stats.anova import anova_batch, anova_from_sums, one_way_anova
+from lotwatch.stats.capability import capability
+from lotwatch.stats.checks import (
     bartlett_test,
     brown_forsythe,
     kruskal_wallis,
@@ -18,11 +16,12 @@ from stats.checks import (
     residual_normality,
     resolution_check,
 )
-from stats.effect import effect_sizes, variance_components
-from stats.multiple import adjust_pvalues
-from stats.power import power_analysis
-from stats.results import TestResult as Check  # alias: pytest would collect Test*
-from stats.welch import welch_anova, welch_batch, welch_from_moments
+from lotwatch.stats.effect import effect_sizes, variance_components
+from lotwatch.stats.multiple import adjust_pvalues
+from lotwatch.stats.power import power_analysis
+from lotwatch.stats.results import TestResult as Check  # alias: pytest would collect Test*
+from lotwatch.stats.welch import welch_anova, welch_batch, welch_from_moments
+from scipy import stats as sps
 
 # NIST/SEMATECH e-Handbook of Statistical Methods §7.4.3.3, one-way ANOVA example (3 levels of 5;
 # data and results quoted from memory, cross-checked below with scipy.stats.f_oneway).

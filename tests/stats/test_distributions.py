@@ -11,10 +11,8 @@ import math
 
 import numpy as np
 import pytest
-from scipy import stats
-
-from stats import _mvt, distributions
-from stats.distributions import (
+from lotwatch.stats import _mvt, distributions
+from lotwatch.stats.distributions import (
     panom,
     pdunnett,
     ptukey,
@@ -22,6 +20,7 @@ from stats.distributions import (
     qdunnett,
     qtukey,
 )
+from scipy import stats
 
 # ------------------------------------------------------------------------- studentized range
 

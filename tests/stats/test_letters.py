@@ -11,9 +11,8 @@ import re
 
 from hypothesis import given, settings
 from hypothesis import strategies as st
-
-from stats.letters import compact_letters, letter_columns
-from stats.results import PairComparison
+from lotwatch.stats.letters import compact_letters, letter_columns
+from lotwatch.stats.results import PairComparison
 
 
 def _pairs(names, significant):

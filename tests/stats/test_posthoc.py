@@ -14,11 +14,8 @@ import numpy as np
 import pandas as pd
 import pingouin as pg
 import pytest
-from scipy import stats
-from statsmodels.stats.multitest import multipletests
-
-from stats import _mvt, distributions
-from stats.posthoc import (
+from lotwatch.stats import _mvt, distributions
+from lotwatch.stats.posthoc import (
     ADJUST_METHODS,
     adjust_p,
     dunn,
@@ -27,6 +24,8 @@ from stats.posthoc import (
     posthoc_problem,
     tukey_kramer,
 )
+from scipy import stats
+from statsmodels.stats.multitest import multipletests
 
 
 def _data(seed: int, sizes, shifts=None, sds=None):

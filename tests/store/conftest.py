@@ -6,8 +6,7 @@ from collections.abc import Iterator
 from pathlib import Path
 
 import pytest
-
-from store import LotEntry, Store
+from lotwatch.store import LotEntry, Store
 
 TAGS = {"site": "north", "line": "1", "shift": "day"}
 

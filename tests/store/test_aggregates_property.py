@@ -10,9 +10,8 @@ from pathlib import Path
 
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
-
-from store import BadInput, Conflict, LotEntry, Store
-from store.values import format_units
+from lotwatch.store import BadInput, Conflict, LotEntry, Store
+from lotwatch.store.values import format_units
 
 CHARS = [("fill_volume", "0.1", 100.0), ("cap_torque", "0.05", None)]
 

@@ -7,7 +7,7 @@ import multiprocessing as mp
 import traceback
 from pathlib import Path
 
-from store import LotEntry, Store
+from lotwatch.store import LotEntry, Store
 
 TAGS = {"site": "north", "line": "1", "shift": "day"}
 

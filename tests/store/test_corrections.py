@@ -6,8 +6,7 @@ import re
 from datetime import date
 
 import pytest
-
-from store import BadInput, Conflict, NotFound, Store
+from lotwatch.store import BadInput, Conflict, NotFound, Store
 
 
 def _row(store: Store, mid: int) -> tuple:

@@ -13,9 +13,8 @@ from datetime import UTC, date, datetime, timedelta
 import numpy as np
 import polars as pl
 import pytest
-
-from store import Store
-from store.demo import (
+from lotwatch.store import Store
+from lotwatch.store.demo import (
     DEMO_CHARACTERISTICS,
     DEMO_EFFECTS,
     DEMO_SEED,

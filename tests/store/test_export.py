@@ -14,10 +14,9 @@ from pathlib import Path
 
 import polars as pl
 import pytest
-
-from store import LotEntry, Store
-from store.export import ExportRefused, neutralise_text, write_export
-from store.importer import import_file
+from lotwatch.store import LotEntry, Store
+from lotwatch.store.export import ExportRefused, neutralise_text, write_export
+from lotwatch.store.importer import import_file
 
 
 @pytest.fixture

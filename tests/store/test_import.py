@@ -15,9 +15,8 @@ from pathlib import Path
 
 import polars as pl
 import pytest
-
-from store import BadInput, LotEntry, Store
-from store.importer import FileRefused, ImportOptions, import_file, rejected_path
+from lotwatch.store import BadInput, LotEntry, Store
+from lotwatch.store.importer import FileRefused, ImportOptions, import_file, rejected_path
 
 HEADER = "lot,characteristic,value,measured_at,site,line,shift"
 

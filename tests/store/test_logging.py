@@ -12,10 +12,9 @@ import polars as pl
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
-
-from store import BadInput, Conflict, LotEntry, NotFound, Store
-from store.timeutil import BadTime, format_local, format_stored, to_utc
-from store.values import (
+from lotwatch.store import BadInput, Conflict, LotEntry, NotFound, Store
+from lotwatch.store.timeutil import BadTime, format_local, format_stored, to_utc
+from lotwatch.store.values import (
     BadValue,
     choose_origin,
     format_units,
@@ -360,7 +359,7 @@ def test_measurements_frame(fill: Store) -> None:
 
 def test_generated_id_never_reuses_a_stored_one(fill: Store, entry,
                                                 monkeypatch: pytest.MonkeyPatch) -> None:
-    import store.lots as lots
+    import lotwatch.store.lots as lots
 
     fixed = datetime(2026, 11, 30, 14, 5, tzinfo=UTC)
     monkeypatch.setattr(lots, "now_utc", lambda: fixed)
@@ -422,7 +421,7 @@ def test_add_factor_backfills_from_stored_tags(fill: Store, entry) -> None:
 
 
 def test_disk_full_during_logging_stores_nothing(fill: Store, dump, entry) -> None:
-    from store import StoreFull
+    from lotwatch.store import StoreFull
 
     pages = fill.conn.execute("PRAGMA page_count").fetchone()[0]
     fill.conn.execute(f"PRAGMA max_page_count = {pages + 2}")  # SQLITE_FULL, as for a full disk

@@ -9,9 +9,9 @@ import subprocess
 import tempfile
 from pathlib import Path
 
+import lotwatch.store
 import pytest
-
-from store import (
+from lotwatch.store import (
     BadInput,
     Store,
     StoreCorrupt,
@@ -193,7 +193,7 @@ def test_read_only_in_unwritable_folder_as_other_user() -> None:
 
 def _run_as_nobody(python: str, tmp_path: Path) -> None:
     code = tmp_path / "code"
-    shutil.copytree(Path(__file__).resolve().parents[2] / "store", code / "store",
+    shutil.copytree(Path(lotwatch.store.__file__).resolve().parent, code / "lotwatch" / "store",
                     ignore=shutil.ignore_patterns("__pycache__"))
     folder = tmp_path / "ro"
     folder.mkdir()
@@ -203,7 +203,7 @@ def _run_as_nobody(python: str, tmp_path: Path) -> None:
     (folder / "s.sqlite").chmod(0o644)
     script = (
         "import sys; sys.path.insert(0, sys.argv[1])\n"
-        "from store import Store, StoreReadOnly\n"
+        "from lotwatch.store import Store, StoreReadOnly\n"
         "with Store.open(sys.argv[2], read_only=True) as s:\n"
         "    print(len(s.factors()), s.immutable)\n"
         "try:\n"
@@ -361,7 +361,7 @@ def test_an_older_store_is_upgraded_on_open_and_keeps_its_data(store_path: Path)
     for writing, with its measurements intact (versioned migrations: common practice)."""
     import sqlite3
 
-    from store import LotEntry
+    from lotwatch.store import LotEntry
 
     with Store.create(store_path) as s:
         s.add_characteristic("fill", unit="mL", resolution="0.1")

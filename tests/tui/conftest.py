@@ -28,7 +28,7 @@ def make_store(path: Path) -> dict[str, dict[str, list[float]]]:
 
     bore (mm, 0.01) runs 0.15 mm high at site East; weight (g, 0.1) 1 g heavy on line L2.
     """
-    from store import LotEntry, Store
+    from lotwatch.store import LotEntry, Store
 
     rng = np.random.default_rng(20261201)
     store = Store.create(path)
@@ -62,8 +62,8 @@ def small_store(tmp_path: Path) -> tuple[Path, dict[str, dict[str, list[float]]]
 @pytest.fixture
 def alert_store(small_store):
     """The small store with one open alert on bore by site (recorded through store.alerts)."""
-    from store import Store
-    from store.alerts import Transition, record_transitions
+    from lotwatch.store import Store
+    from lotwatch.store.alerts import Transition, record_transitions
 
     path, values = small_store
     with Store.open(path) as store:
@@ -82,7 +82,7 @@ def demo_data_home(tmp_path_factory) -> Path:
     old = os.environ.get("XDG_DATA_HOME")
     os.environ["XDG_DATA_HOME"] = str(home)
     try:
-        from store.demo import build_demo_store, demo_store_path
+        from lotwatch.store.demo import build_demo_store, demo_store_path
 
         build_demo_store(demo_store_path())
     finally:

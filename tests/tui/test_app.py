@@ -3,22 +3,21 @@
 from __future__ import annotations
 
 import pytest
+from lotwatch.tui.app.application import LotwatchApp
+from lotwatch.tui.app.screens.acknowledge import AcknowledgeScreen
+from lotwatch.tui.app.screens.alerts import AlertsScreen
+from lotwatch.tui.app.screens.entry import LotEntryScreen
+from lotwatch.tui.app.screens.main import MainScreen
+from lotwatch.tui.services.data import login_name
 from scipy import stats as sps
 from textual.widgets import Input
 from tui_helpers import notifications, screen_text, settle, wait_until
-
-from tui.app import LotwatchApp
-from tui.data import login_name
-from tui.screens.acknowledge import AcknowledgeScreen
-from tui.screens.alerts import AlertsScreen
-from tui.screens.entry import LotEntryScreen
-from tui.screens.main import MainScreen
 
 SIZE = (80, 24)
 
 
 def _store_lot(path, lot: str):
-    from store import Store
+    from lotwatch.store import Store
 
     with Store.open(path, read_only=True) as store:
         frame = store.values_frame("bore", "site")
@@ -143,8 +142,8 @@ async def test_switching_characteristic_and_factor_changes_the_anova(small_store
 
 
 async def test_acknowledging_an_alert_records_who_and_the_note(alert_store):
-    from store import Store
-    from store.alerts import alert_history, get_alert
+    from lotwatch.store import Store
+    from lotwatch.store.alerts import alert_history, get_alert
 
     path, alert_id = alert_store
     app = LotwatchApp(path)
@@ -169,8 +168,8 @@ async def test_acknowledging_an_alert_records_who_and_the_note(alert_store):
 
 
 async def test_read_only_refuses_entry_and_acknowledgement(alert_store):
-    from store import Store
-    from store.alerts import get_alert
+    from lotwatch.store import Store
+    from lotwatch.store.alerts import get_alert
 
     path, alert_id = alert_store
     app = LotwatchApp(path, read_only=True)
@@ -197,8 +196,8 @@ MARKUP_NOTE = "[bold red]boom[/] [@click=app.quit]x[/] \x1b]0;title\x07\u202eevi
 
 async def test_markup_and_control_characters_are_shown_literally(alert_store):
     path, alert_id = alert_store
-    from store import Store
-    from store.alerts import acknowledge
+    from lotwatch.store import Store
+    from lotwatch.store.alerts import acknowledge
 
     with Store.open(path) as store:
         acknowledge(store, alert_id, by="[i]someone[/i]", note=MARKUP_NOTE)
@@ -310,8 +309,8 @@ async def test_store_deleted_underneath_is_reported_and_the_app_keeps_running(sm
 
 
 async def test_a_failed_save_keeps_the_form_and_its_contents(small_store, monkeypatch):
-    from store import StoreLocked
-    from tui import data
+    from lotwatch.store import StoreLocked
+    from lotwatch.tui.services import data
 
     def locked(*args, **kwargs):
         raise StoreLocked("the store is locked by another writer")
@@ -336,8 +335,8 @@ async def test_a_failed_save_keeps_the_form_and_its_contents(small_store, monkey
 
 
 async def test_recording_the_review_opens_alerts_and_read_only_refuses(small_store):
-    from store import Store
-    from store.alerts import list_alerts
+    from lotwatch.store import Store
+    from lotwatch.store.alerts import list_alerts
 
     path, _ = small_store
     ro = LotwatchApp(path, read_only=True)
@@ -370,7 +369,7 @@ async def test_a_slow_recompute_never_repaints_over_a_newer_one(small_store, mon
     import threading
     import time
 
-    from tui import data
+    from lotwatch.tui.services import data
 
     real = data.load_detail
     slow_done = threading.Event()
@@ -400,8 +399,8 @@ async def test_a_slow_recompute_never_repaints_over_a_newer_one(small_store, mon
 
 
 async def test_acknowledging_from_the_weekly_review(alert_store):
-    from store import Store
-    from store.alerts import alert_history
+    from lotwatch.store import Store
+    from lotwatch.store.alerts import alert_history
 
     path, alert_id = alert_store
     app = LotwatchApp(path)

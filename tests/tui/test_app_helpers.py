@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import sqlite3
 
-from store import BadInput, RowProblem, StoreFull, StoreLocked, StoreMissing, StoreReadOnly
-from tui.app import describe_error, parse_week, shift_week
+from lotwatch.store import BadInput, RowProblem, StoreFull, StoreLocked, StoreMissing, StoreReadOnly
+from lotwatch.tui.app.application import describe_error, parse_week, shift_week
 
 
 def test_iso_weeks_across_a_year_end():

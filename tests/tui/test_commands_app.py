@@ -3,13 +3,12 @@
 from __future__ import annotations
 
 from click.testing import CliRunner
-
-from tui.cli import main
+from lotwatch.tui.cli import main
 
 
 def test_demo_no_open_builds_records_reviews_and_prints_summary(tmp_path):
-    from store import Store
-    from store.alerts import alert_history, list_alerts
+    from lotwatch.store import Store
+    from lotwatch.store.alerts import alert_history, list_alerts
 
     env = {"XDG_DATA_HOME": str(tmp_path)}
     result = CliRunner().invoke(main, ["demo", "--no-open"], env=env)

@@ -5,9 +5,8 @@ from __future__ import annotations
 from datetime import UTC, datetime, timedelta
 
 import pytest
-
-from tui.data import CharacteristicInfo
-from tui.entry_checks import split_values, time_problem, value_problems
+from lotwatch.tui.app.entry_checks import split_values, time_problem, value_problems
+from lotwatch.tui.services.data import CharacteristicInfo
 
 BORE = CharacteristicInfo(name="bore", unit="mm", resolution="0.05", lsl=None, target=10.0,
                           usl=None, min_shift=None, plausible_low=9.0, plausible_high=11.0)
@@ -33,7 +32,7 @@ def test_value_problems_in_words(text, expected):
 
 def test_the_store_refuses_what_the_form_refuses(tmp_path):
     """Oracle: the store's own validation (log_lots is all-or-nothing, BadInput per row)."""
-    from store import BadInput, LotEntry, Store
+    from lotwatch.store import BadInput, LotEntry, Store
 
     with Store.create(tmp_path / "s.sqlite") as store:
         store.add_characteristic("bore", unit="mm", resolution="0.05", target=10.0,

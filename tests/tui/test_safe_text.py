@@ -2,11 +2,10 @@
 
 from __future__ import annotations
 
+from lotwatch.tui.render.safe_text import ELLIPSIS, clean, literal, markup_safe, truncate
 from rich.cells import cell_len
 from rich.console import Console
 from textual.widgets import Static
-
-from tui.safe_text import ELLIPSIS, clean, literal, markup_safe, truncate
 
 
 def test_csi_osc_and_c1_sequences_are_removed():

@@ -1,4 +1,4 @@
-"""A person at an 80×24 terminal: run ``python -m tui demo`` in tmux, log a lot, read the screen.
+"""A person at an 80×24 terminal: run ``python -m lotwatch.tui demo`` in tmux, log a lot, read the screen.
 
 Skipped where tmux is not installed. The tmux server runs on a private socket and is killed at
 the end, so nothing else running tmux is touched.
@@ -69,7 +69,7 @@ def tmux():
 
 
 def test_log_a_lot_in_the_demo_at_80x24(tmux, demo_data_home):
-    from store import Store
+    from lotwatch.store import Store
 
     db = demo_data_home / "lotwatch" / "demo.sqlite"
     env = (f"XDG_DATA_HOME={shlex.quote(str(demo_data_home))} "

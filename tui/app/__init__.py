@@ -1,0 +1,1 @@
+"""The Textual terminal interface: application, screens, widgets and messages."""

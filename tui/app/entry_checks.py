@@ -1,0 +1,116 @@
+"""Checks the entry form runs as the person types (Textual validators with worded failures).
+
+Values must be numbers, on the characteristic's resolution (a whole number of steps) and inside its
+plausible range; required tags must be present; the time must be understood. The store applies
+the same rules again when saving (one transaction, all or nothing); these checks only make the
+problem visible before Enter.
+"""
+
+from __future__ import annotations
+
+import re
+from collections.abc import Callable
+from datetime import UTC, datetime, timedelta
+
+from lotwatch.tui.render.safe_text import clean
+from lotwatch.tui.services.data import CharacteristicInfo
+from textual.validation import Function, ValidationResult, Validator
+
+_SPLIT = re.compile(r"[\s;]+")
+
+# Accept a timestamp up to this far ahead of the clock (clock skew between lab and terminal).
+FUTURE_SLACK = timedelta(minutes=10)
+
+
+def split_values(text: str) -> list[str]:
+    """Values as typed, separated by spaces or semicolons (a comma is not a separator)."""
+    return [v for v in _SPLIT.split(text.strip()) if v]
+
+
+def value_problems(text: str, ch: CharacteristicInfo | None) -> list[str]:
+    """Every problem of the values field, in words (empty when the values can be stored)."""
+    from lotwatch.store.values import BadValue, FinerThanResolution, parse_decimal, to_units
+
+    if ch is None:
+        return ["choose a characteristic first"]
+    values = split_values(text)
+    if not values:
+        return ["type at least one value (several values of one lot: separate with spaces)"]
+    problems: list[str] = []
+    unit = clean(ch.unit, 12)
+    for v in values:
+        shown = clean(v, 20)
+        try:
+            d = parse_decimal(v)
+        except BadValue:
+            hint = " (use a decimal point, not a comma)" if "," in v else ""
+            problems.append(f"{shown!r} is not a number{hint}")
+            continue
+        try:
+            to_units(d, ch.resolution)
+        except FinerThanResolution:
+            problems.append(f"{shown} is finer than the resolution {ch.resolution} {unit}")
+            continue
+        except BadValue as exc:
+            problems.append(f"{shown}: {exc}")
+            continue
+        lo, hi = ch.plausible_low, ch.plausible_high
+        x = float(d)
+        if (lo is not None and x < lo) or (hi is not None and x > hi):
+            problems.append(f"{shown} is outside the plausible range "
+                            f"{_bound(lo)}..{_bound(hi)} {unit}")
+    return problems
+
+
+def _bound(x: float | None) -> str:
+    return "-inf" if x is None else f"{x:g}"
+
+
+def time_problem(text: str, now: datetime | None = None) -> str | None:
+    """None when the time is empty ("now"), or a readable local/ISO time not in the future."""
+    from lotwatch.store.timeutil import BadTime, to_utc
+
+    s = text.strip()
+    if not s or s.lower() == "now":
+        return None
+    try:
+        t = to_utc(s)
+    except BadTime:
+        return (f"{clean(s, 20)!r} is not a time; type e.g. 2026-11-30 14:05 (local time) "
+                "or leave it empty for now")
+    now = now or datetime.now(UTC)
+    if t > now + FUTURE_SLACK:
+        return f"{clean(s, 20)} is in the future"
+    return None
+
+
+class ValuesCheck(Validator):
+    """The values field: numbers on the resolution within the plausible range."""
+
+    def __init__(self, characteristic: Callable[[], CharacteristicInfo | None]) -> None:
+        super().__init__()
+        self._characteristic = characteristic
+
+    def validate(self, value: str) -> ValidationResult:
+        problems = value_problems(value, self._characteristic())
+        if not problems:
+            return self.success()
+        return self.failure("; ".join(problems), value)
+
+
+class TimeCheck(Validator):
+    """The time field: empty (now) or a time that can be read and is not in the future."""
+
+    def validate(self, value: str) -> ValidationResult:
+        problem = time_problem(value)
+        return self.success() if problem is None else self.failure(problem, value)
+
+
+def required(name: str) -> Function:
+    """A required tag must not be blank."""
+    return Function(lambda v: bool(v.strip()), f"{clean(name, 20)} is required")
+
+
+def one_line(name: str) -> Function:
+    """Tags and lot IDs are single words or phrases: no control characters."""
+    return Function(lambda v: clean(v) == v, f"{clean(name, 20)} contains control characters")

@@ -1,0 +1,92 @@
+"""Acknowledge an alert: who (the login name) and a note saying what was checked or done."""
+
+from __future__ import annotations
+
+from typing import TYPE_CHECKING
+
+from lotwatch.tui.app.widgets.caution import Caution
+from lotwatch.tui.render.numbers import num, pval
+from lotwatch.tui.render.safe_text import clean
+from lotwatch.tui.services.data import AlertRow
+from rich.text import Text
+from textual import on
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import Vertical
+from textual.screen import ModalScreen
+from textual.validation import Function
+from textual.widgets import Input, Static
+
+if TYPE_CHECKING:
+    from lotwatch.tui.app.application import LotwatchApp
+
+
+class AcknowledgeScreen(ModalScreen[None]):
+    """Type a note, Enter records the acknowledgement; the form stays open if it fails."""
+
+    BINDINGS = [Binding("escape", "cancel", "Cancel")]
+
+    DEFAULT_CSS = """
+    AcknowledgeScreen { align: center middle; }
+    AcknowledgeScreen Vertical { width: 74; height: auto; border: round $warning;
+        background: $surface; padding: 0 1; }
+    AcknowledgeScreen Input { height: 1; margin: 1 0 0 0; }
+    AcknowledgeScreen #ack-problem { height: auto; }
+    """
+
+    def __init__(self, alert: AlertRow) -> None:
+        super().__init__()
+        self.alert = alert
+        self._saving = False
+
+    @property
+    def lw(self) -> LotwatchApp:
+        return self.app  # type: ignore[return-value]
+
+    def compose(self) -> ComposeResult:
+        a = self.alert
+        head = Text(f"Acknowledge alert #{a.id}: ", style="bold")
+        head.append(f"{clean(a.characteristic, 24)} by {clean(a.factor, 12)}")
+        body = Text(f"groups {clean(a.groups or '-', 24)}, shift {num(a.size, 3)}, "
+                    f"q {pval(a.q)}, state {clean(a.state)}")
+        with Vertical():
+            yield Static(head)
+            yield Static(body)
+            yield Static(Text(f"Recorded as acknowledged by {clean(self.lw.user, 24)}."))
+            yield Caution()
+            yield Input(placeholder="note: what you checked or did (required)", compact=True,
+                        validators=[Function(lambda v: bool(v.strip()),
+                                             "a note is required: say what you checked or did")],
+                        id="ack-note", max_length=500)
+            yield Static("", id="ack-problem")
+            yield Static("Enter record · Esc cancel", markup=False)
+
+    def on_mount(self) -> None:
+        self.query_one(Input).focus()
+
+    @on(Input.Submitted)
+    def _submitted(self, event: Input.Submitted) -> None:
+        event.stop()
+        if self._saving:
+            return
+        if self.lw.read_only:
+            self.lw.refuse_read_only("acknowledging alerts")
+            return
+        result = event.input.validate(event.value)
+        if result is not None and not result.is_valid:
+            self.show_problem("; ".join(result.failure_descriptions))
+            return
+        self._saving = True
+        self.show_problem("recording…")
+        self.lw.acknowledge(self.alert.id, event.value.strip())
+
+    def show_problem(self, message: str) -> None:
+        self.query_one("#ack-problem", Static).update(Text(clean(message, 300)))
+
+    def save_failed(self, message: str) -> None:
+        self._saving = False
+        self.show_problem(message)
+
+    def action_cancel(self) -> None:
+        if not self._saving:
+            self.dismiss(None)

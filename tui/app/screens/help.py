@@ -1,0 +1,122 @@
+"""Help: every key binding, what each number means, and the caution."""
+
+from __future__ import annotations
+
+from lotwatch.tui.app.widgets.caution import CAUTION
+from rich.text import Text
+from textual.app import ComposeResult
+from textual.binding import Binding, BindingType
+from textual.containers import VerticalScroll
+from textual.screen import ModalScreen
+from textual.widgets import Static
+
+MEANINGS = [
+    ("Group table",
+     "n = lots of the group in the window; mean and SD (sample, n-1) of its values; CI = "
+     "two-sided t confidence interval of the mean at 1 - alpha; 'vs rest' = group mean minus the "
+     "mean of all other lots; ANOM = analysis of means: 'high'/'low' when the group mean lies "
+     "outside the decision limits around the grand mean; Cpk = min(USL - mean, mean - LSL) / "
+     "(3 x within SD), shown when limits exist."),
+    ("ANOVA table",
+     "Between = variation of group means around the grand mean, Within = variation of lots "
+     "around their own group mean, Total = both. df = degrees of freedom (k-1, N-k, N-1); SS = "
+     "sum of squares; MS = SS/df; F = MS Between / MS Within; p = chance of an F this large if "
+     "all groups had the same mean. F crit = the F that p = alpha would need; F > F crit means "
+     "the group means differ at that alpha."),
+    ("Companion tests",
+     "Welch = ANOVA that does not assume equal spread; Kruskal-Wallis = rank test that does not "
+     "assume normal data; variance check = Brown-Forsythe test of equal spread; residual check "
+     "= normality of values around their group means. 'Read' names the test the checks point "
+     "to and the matching post-hoc comparison (Tukey-Kramer, Games-Howell or Dunn)."),
+    ("Effect sizes",
+     "eta² = SS Between / SS Total (share of variation explained by the factor, biased up); "
+     "omega² = the less biased version (0 = none); Cohen's f = sqrt(eta² / (1 - eta²)), about "
+     "0.1 small, 0.25 medium, 0.4 large (Cohen 1988). A tiny p with a tiny effect is real but "
+     "may not matter."),
+    ("q-values",
+     "Each week many comparisons (characteristic x factor) are tested. q = p adjusted for that "
+     "family by Benjamini-Hochberg: among comparisons with q below 0.05, about 5% or fewer are "
+     "expected to be false alarms. An alert opens on q, not p, and only when the largest shift "
+     "also reaches a practical size (the characteristic's min shift, else a share of the "
+     "tolerance) in k of the last m windows (review settings; 2 of 3 unless changed). It clears "
+     "after m windows without a signal."),
+    ("Detectable shift",
+     "When nothing is significant: the smallest shift of one group from the others that the F "
+     "test would detect with 80% power at these group sizes and this within-group SD. "
+     "'Nothing significant' with a large detectable shift means 'not enough data to tell'."),
+    ("States",
+     "alerting (!) = an alert on some factor that has not cleared (open or acknowledged); "
+     "watching = enough data and no open alert; "
+     "not enough data (·) = no comparison could be computed in the window."),
+]
+
+
+KEY_NAMES = {"escape": "Esc", "enter": "Enter", "pagedown": "PgDn", "pageup": "PgUp",
+             "down": "↓", "up": "↑", "question_mark": "?", "slash": "/", "tab": "Tab",
+             "left_square_bracket": "[", "right_square_bracket": "]"}
+
+
+def binding_lines(title: str, bindings: list[BindingType]) -> Text:
+    """One line per binding: keys and description."""
+    text = Text()
+    text.append(f"{title}\n", style="bold underline")
+    for b in bindings:
+        if not isinstance(b, Binding) or not b.description:
+            continue
+        keys = b.key_display or ", ".join(KEY_NAMES.get(k.strip(), k.strip())
+                                          for k in b.key.split(","))
+        text.append(f"  {keys:<12}", style="bold")
+        text.append(f"{b.description}")
+        if b.tooltip:
+            text.append(f" - {b.tooltip}", style="italic")
+        text.append("\n")
+    return text
+
+
+class HelpScreen(ModalScreen[None]):
+    """Scrollable help; Escape, q or ? closes it."""
+
+    BINDINGS = [Binding("escape,q,question_mark", "close", "Close help")]
+
+    DEFAULT_CSS = """
+    HelpScreen { align: center middle; }
+    HelpScreen VerticalScroll { width: 78; height: 22; border: round $accent;
+        background: $surface; padding: 0 1; }
+    """
+
+    def compose(self) -> ComposeResult:
+        from lotwatch.tui.app.application import LotwatchApp
+        from lotwatch.tui.app.screens.acknowledge import AcknowledgeScreen
+        from lotwatch.tui.app.screens.alerts import AlertsScreen
+        from lotwatch.tui.app.screens.entry import LotEntryScreen
+        from lotwatch.tui.app.screens.main import MainScreen
+        from lotwatch.tui.app.screens.review import ReviewScreen
+        from lotwatch.tui.app.widgets.tag_input import TagInput
+
+        text = Text()
+        text.append("lotwatch help (↑/↓ scroll, Esc close)\n\n", style="bold")
+        text.append(CAUTION + "\n\n", style="bold")
+        for title, bindings in [
+            ("Everywhere", LotwatchApp.BINDINGS),
+            ("Main view", MainScreen.BINDINGS),
+            ("Weekly review", ReviewScreen.BINDINGS),
+            ("Alerts", AlertsScreen.BINDINGS),
+            ("Lot entry form", LotEntryScreen.BINDINGS),
+            ("Tag fields of the form", TagInput.BINDINGS),
+            ("Acknowledge", AcknowledgeScreen.BINDINGS),
+        ]:
+            text.append_text(binding_lines(title, bindings))
+            text.append("\n")
+        text.append("  ctrl+p      command palette: every main action by name\n\n")
+        text.append("What the numbers mean\n", style="bold underline")
+        for title, body in MEANINGS:
+            text.append(f"{title}: ", style="bold")
+            text.append(body + "\n\n")
+        with VerticalScroll():
+            yield Static(text)
+
+    def on_mount(self) -> None:
+        self.query_one(VerticalScroll).focus()
+
+    def action_close(self) -> None:
+        self.dismiss(None)

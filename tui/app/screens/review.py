@@ -1,0 +1,126 @@
+"""The weekly review: every comparison of one week, sorted by q, with effect size and alert state.
+
+Enter drills into the main view for the highlighted comparison; k acknowledges its alert.
+"""
+
+from __future__ import annotations
+
+from typing import TYPE_CHECKING
+
+from lotwatch.tui.app.widgets.caution import Caution
+from lotwatch.tui.app.widgets.compact import fill
+from lotwatch.tui.render.numbers import num, pval
+from lotwatch.tui.render.safe_text import clean
+from lotwatch.tui.services.data import ComparisonRow, ReviewView
+from rich.text import Text
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.screen import Screen
+from textual.widgets import DataTable, Footer, Static
+
+if TYPE_CHECKING:
+    from lotwatch.tui.app.application import LotwatchApp
+
+
+class ReviewScreen(Screen[None]):
+    """One week's family of comparisons with false-discovery control."""
+
+    BINDINGS = [
+        Binding("enter", "drill", "Open", tooltip="Show this comparison in the main view"),
+        Binding("k", "acknowledge", "Ack", tooltip="Acknowledge the comparison's alert"),
+        Binding("p", "record", "Record",
+                tooltip="Record this review: open, hold or clear alerts as it decides"),
+        Binding("left_square_bracket", "week(-1)", "Earlier", key_display="["),
+        Binding("right_square_bracket", "week(1)", "Later", key_display="]"),
+        Binding("escape", "back", "Back"),
+    ]
+
+    DEFAULT_CSS = """
+    ReviewScreen #review-head { height: auto; background: $panel; padding: 0 1; }
+    ReviewScreen DataTable { height: 1fr; }
+    """
+
+    def __init__(self) -> None:
+        super().__init__()
+        self.rows: list[ComparisonRow] = []
+
+    @property
+    def lw(self) -> LotwatchApp:
+        return self.app  # type: ignore[return-value]
+
+    def compose(self) -> ComposeResult:
+        yield Static("Weekly review: computing…", id="review-head")
+        yield Caution()
+        yield DataTable(id="review-table", cursor_type="row", zebra_stripes=True)
+        yield Footer(compact=True)
+
+    def on_mount(self) -> None:
+        t = self.query_one(DataTable)
+        t.focus()
+        if self.lw.review is not None:
+            self.show_review(self.lw.review)
+
+    def on_screen_resume(self) -> None:
+        self.lw.request_review()
+
+    def show_review(self, review: ReviewView) -> None:
+        head = Text(no_wrap=False)
+        head.append(f"Weekly review {clean(review.window_label, 44)}", style="bold")
+        head.append(f": {review.family_size} comparisons, q = {review.fdr_method.upper()} "
+                    f"false-discovery-adjusted p (level {review.fdr_level:g}). "
+                    "[ ] week · Enter open · p record (opens/clears alerts) · k acknowledge")
+        self.query_one("#review-head", Static).update(head)
+        t = self.query_one(DataTable)
+        keep = t.cursor_row
+        self.rows = list(review.rows)
+        # p is left to the drill-in (Enter): at 80 columns the alert state needs the room.
+        headers = ["characteristic", "factor", "k", "n", "F", "q", "ω²", "shift", "alert"]
+        right = [False, False, True, True, True, True, True, True, False]
+        rows, styles = [], []
+        for r in self.rows:
+            alert = r.alert_state or ("–" if r.status == "ok" else r.status)
+            rows.append([clean(r.characteristic, 16), clean(r.factor, 8), str(r.k),
+                         str(r.n_total), num(r.f, 3), pval(r.q),
+                         num(r.omega_squared, 2), num(r.largest_shift, 3), clean(alert, 15)])
+            hot = r.alert_state == "open"
+            styles.append(["bold" if hot else ""] * 8 + ["bold reverse" if hot else ""])
+        fill(t, headers, right, rows, keys=[str(i) for i in range(len(rows))], styles=styles)
+        if self.rows:
+            t.move_cursor(row=min(keep, len(self.rows) - 1))
+
+    def show_problem(self, message: str) -> None:
+        self.query_one("#review-head", Static).update(
+            Text("Weekly review not computed: ", style="bold") + Text(clean(message, 300)))
+
+    def _current(self) -> ComparisonRow | None:
+        t = self.query_one(DataTable)
+        if not self.rows or t.cursor_row < 0 or t.cursor_row >= len(self.rows):
+            return None
+        return self.rows[t.cursor_row]
+
+    def on_data_table_row_selected(self, event: DataTable.RowSelected) -> None:
+        event.stop()
+        self.action_drill()
+
+    def action_drill(self) -> None:
+        row = self._current()
+        if row is not None:
+            self.lw.drill_into(row.characteristic, row.factor, self.lw.review_week)
+
+    def action_acknowledge(self) -> None:
+        row = self._current()
+        if row is None:
+            return
+        if row.alert_id is None or row.alert_state not in ("open", "acknowledged"):
+            self.app.notify("This comparison has no open alert to acknowledge.", markup=False)
+            return
+        self.lw.open_acknowledge(row.alert_id)
+
+    def action_record(self) -> None:
+        self.lw.record_review()
+
+    def action_week(self, step: int) -> None:
+        self.lw.shift_review_week(step)
+
+    def action_back(self) -> None:
+        self.lw.switch_mode("main")

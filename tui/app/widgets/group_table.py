@@ -1,0 +1,54 @@
+"""The group table: n, mean, SD, confidence interval, difference from the others, ANOM, Cpk."""
+
+from __future__ import annotations
+
+from lotwatch.tui.app.widgets.compact import fill
+from lotwatch.tui.render.numbers import MISSING, decimals_of, fixed, num
+from lotwatch.tui.render.safe_text import clean
+from lotwatch.tui.services.data import DetailView
+from textual.widgets import DataTable
+
+ANOM_MARK = {"above": "high", "below": "low", "within": "–"}
+GROUP_WIDTH = 10
+
+
+class GroupTable(DataTable):
+    """One row per group of the latest window (excluded groups are listed on the Tests tab)."""
+
+    DEFAULT_CSS = """
+    GroupTable { height: auto; max-height: 1fr; }
+    """
+
+    def on_mount(self) -> None:
+        self.cursor_type = "row"
+        self.zebra_stripes = True
+
+    def show(self, detail: DetailView) -> None:
+        b = detail.battery
+        dec = decimals_of(detail.characteristic.resolution)
+        anom = {g.group: g.flag for g in b.anom.groups}
+        cpk = {c.group: c.cpk for c in (b.capability or [])}
+        conf = round((1 - b.alpha) * 100)
+        headers = ["group", "n", "mean", "SD", f"{conf}% CI", "vs rest", "ANOM"]
+        right = [False, True, True, True, False, True, False]
+        if b.capability:
+            headers.append("Cpk")
+            right.append(True)
+        rows: list[list[str]] = []
+        styles: list[list[str]] = []
+        for g in b.groups:
+            ci = (f"{fixed(g.ci_low, dec)}..{fixed(g.ci_high, dec)}"
+                  if g.ci_low is not None and g.ci_high is not None else MISSING)
+            diff = g.diff_from_others
+            flag = anom.get(g.name, "")
+            row = [clean(g.name, GROUP_WIDTH - 1), str(g.n), fixed(g.mean, dec),
+                   fixed(g.sd, dec), ci, MISSING if diff is None else f"{diff:+.{dec}f}",
+                   ANOM_MARK.get(flag, MISSING)]
+            if b.capability:
+                row.append(num(cpk.get(g.name), 3))
+            rows.append(row)
+            st = [""] * len(row)
+            if flag in ("above", "below"):
+                st[6] = "bold"
+            styles.append(st)
+        fill(self, headers, right, rows, keys=[g.name for g in b.groups], styles=styles)

@@ -1,0 +1,283 @@
+"""``lotwatch review``, ``report``, ``trend`` and ``alerts``: the rolling review from the command line.
+
+Exit status of ``review``: 0 when it ran (with ``--fail-on-alert``: 0 only when no alert is open
+and unacknowledged), 1 with ``--fail-on-alert`` when one is, 2 on bad input or a store error.
+"""
+
+from __future__ import annotations
+
+import json
+from datetime import date
+from pathlib import Path
+
+import click
+from lotwatch.tui.cli.common import UserError, db_option, store_errors
+from lotwatch.tui.cli.common import open_store as _open_store
+
+
+def open_store(db_path: Path, *, read_only: bool = False):  # -> store.Store
+    """``common.open_store`` with its refusal (no store, unreadable store) as exit status 2."""
+    try:
+        return _open_store(db_path, read_only=read_only)
+    except click.ClickException as exc:
+        raise UserError(exc.message) from None
+
+
+def _as_of(value: str | None) -> date | None:
+    if value is None:
+        return None
+    try:
+        return date.fromisoformat(value.strip())
+    except ValueError:
+        raise UserError(f"--as-of {value!r}: expected a date such as 2026-11-29") from None
+
+
+def _check_week(value: str | None) -> str | None:
+    if value is None:
+        return None
+    from lotwatch.stats.monitor import parse_iso_week
+
+    try:
+        parse_iso_week(value)
+    except ValueError as exc:
+        raise UserError(f"--week: {exc}") from None
+    return value.strip().upper()
+
+
+_when_options = [
+    click.option("--week", default=None, metavar="YYYY-Www",
+                 help="Review the ISO week ending on its Sunday, e.g. 2026-W48."),
+    click.option("--as-of", "as_of", default=None, metavar="DATE",
+                 help="Review windows ending on this day (default: today, UTC)."),
+]
+
+
+def _when(f):
+    for opt in reversed(_when_options):
+        f = opt(f)
+    return f
+
+
+def _run(fn, *args, **kwargs):
+    try:
+        return fn(*args, **kwargs)
+    except ValueError as exc:
+        raise UserError(str(exc)) from None
+
+
+@click.command("review")
+@_when
+@click.option("--format", "fmt", type=click.Choice(["text", "json", "md"]), default="text",
+              show_default=True, help="80-column table, the JSON contract, or Markdown.")
+@click.option("--fail-on-alert", is_flag=True,
+              help="Exit with status 1 when an alert is open (not yet acknowledged).")
+@click.option("--fdr", "fdr", type=click.Choice(["bh", "by"]), default=None,
+              help="False-discovery control: bh (Benjamini-Hochberg, default) or by "
+                   "(Benjamini-Yekutieli, valid under any dependence between the tests).")
+@click.option("--dry-run", is_flag=True, help="Compute only; record no alert changes.")
+@db_option
+@store_errors
+def review_command(week: str | None, as_of: str | None, fmt: str, fail_on_alert: bool,
+                   fdr: str | None, dry_run: bool, db_path: Path) -> None:
+    """Review every characteristic by every factor over rolling windows and update alerts.
+
+    Example: lotwatch review --week 2026-W48 --fail-on-alert
+    """
+    from lotwatch.tui.render.report import render_review_md, render_review_text
+    from lotwatch.tui.services import review_engine as eng
+
+    day = _as_of(as_of)
+    wk = _check_week(week)
+    if day is not None and wk is not None:
+        raise UserError("give either --week or --as-of, not both")
+    with open_store(db_path, read_only=dry_run) as store:
+        result = _run(eng.run_review, store, as_of=day, week=wk, fdr_method=fdr,
+                      persist=not dry_run)
+    if fmt == "json":
+        click.echo(json.dumps(result.to_dict(), indent=2, allow_nan=False))
+    elif fmt == "md":
+        click.echo(render_review_md(result), nl=False)
+    else:
+        click.echo(render_review_text(result), nl=False)
+    if fail_on_alert and any(c.alert_state == "open" for c in result.comparisons):
+        raise SystemExit(1)
+
+
+@click.command("report")
+@_when
+@click.option("--out", "out", required=True, type=click.Path(dir_okay=False, path_type=Path),
+              help="Report file: .md for Markdown, .html for a self-contained web page.")
+@click.option("--fdr", "fdr", type=click.Choice(["bh", "by"]), default=None,
+              help="False-discovery control (default: the store's setting, bh).")
+@click.option("--dry-run", is_flag=True,
+              help="Do not record the review's alert changes (the report shows them as they stand).")
+@db_option
+@store_errors
+def report_command(week: str | None, as_of: str | None, out: Path, fdr: str | None,
+                   dry_run: bool, db_path: Path) -> None:
+    """Write the weekly review report: alerts, the family table, each alert's battery and trend.
+
+    The review is recorded as by `lotwatch review` (re-running it changes nothing).
+
+    Example: lotwatch report --week 2026-W48 --out w48.html
+    """
+    from lotwatch.tui.render.report import build_weekly_report, report_html, report_markdown
+
+    suffix = out.suffix.lower()
+    if suffix not in (".md", ".html", ".htm"):
+        raise UserError(f"--out {out}: the file name must end in .md or .html")
+    if out.parent and not out.parent.exists():
+        raise UserError(f"--out {out}: the folder {out.parent} does not exist")
+    day = _as_of(as_of)
+    wk = _check_week(week)
+    if day is not None and wk is not None:
+        raise UserError("give either --week or --as-of, not both")
+    with open_store(db_path, read_only=dry_run) as store:
+        rep = _run(build_weekly_report, store, week=wk, as_of=day, fdr_method=fdr,
+                   persist=not dry_run)
+    text = report_markdown(rep) if suffix == ".md" else report_html(rep)
+    tmp = out.with_name(out.name + ".part")
+    try:
+        tmp.write_text(text, encoding="utf-8")
+        tmp.replace(out)
+    except OSError as exc:
+        tmp.unlink(missing_ok=True)
+        raise UserError(f"--out {out}: cannot write ({exc.strerror or exc})") from None
+    click.echo(f"wrote {out} ({len(rep.sections)} alert(s), "
+               f"{rep.result.family_size} comparison(s) in the family)")
+
+
+@click.command("trend")
+@click.argument("characteristic")
+@click.option("--by", "factor", required=True, metavar="FACTOR",
+              help="Grouping factor (site, line, shift ...).")
+@click.option("--window", "window", type=click.Choice(["trailing", "last_n", "week"]),
+              default=None, help="Window kind (default: the store's review.window setting).")
+@click.option("--windows", "count", type=click.IntRange(1, 520), default=None,
+              help="How many windows back (default: review.trend_windows, 12).")
+@_when
+@click.option("--format", "fmt", type=click.Choice(["text", "json"]), default="text",
+              show_default=True, help="Table and chart, or JSON of the means per window.")
+@click.option("--no-chart", is_flag=True, help="Only the table.")
+@db_option
+@store_errors
+def trend_command(characteristic: str, factor: str, window: str | None, count: int | None,
+                  week: str | None, as_of: str | None, fmt: str, no_chart: bool,
+                  db_path: Path) -> None:
+    """Each group's mean per window for one characteristic, as a table and a terminal chart.
+
+    Example: lotwatch trend fill_volume --by line --windows 20
+    """
+    from lotwatch.tui.render.battery_text import clean_text
+    from lotwatch.tui.render.report import trend_chart_text, trend_frame_for_json, trend_table_text
+    from lotwatch.tui.services import review_engine as eng
+
+    day = _as_of(as_of)
+    wk = _check_week(week)
+    with open_store(db_path, read_only=True) as store:
+        tr = _run(eng.trend, store, characteristic, factor, as_of=day, week=wk, windows=count,
+                  window=window)
+    if fmt == "json":
+        click.echo(json.dumps({"characteristic": tr.characteristic.name, "factor": factor,
+                               "lsl": tr.lsl, "target": tr.target, "usl": tr.usl,
+                               "rows": trend_frame_for_json(tr)}, indent=2, default=str))
+        return
+    click.echo(clean_text(f"{tr.characteristic.name} by {factor}: mean per window "
+                          f"({tr.windows[-1].label})", 80))
+    click.echo(trend_table_text(tr), nl=False)
+    if not no_chart and tr.frame.height:
+        click.echo(trend_chart_text(tr))
+
+
+@click.group("alerts")
+def alerts_group() -> None:
+    """List, show and acknowledge alerts (nothing is ever deleted)."""
+
+
+@alerts_group.command("list")
+@click.option("--state", type=click.Choice(["open", "acknowledged", "cleared", "active"]),
+              default=None, help="Only alerts in this state (active = open or acknowledged).")
+@click.option("--format", "fmt", type=click.Choice(["text", "json"]), default="text",
+              show_default=True, help="A line per alert, or JSON.")
+@db_option
+@store_errors
+def alerts_list(state: str | None, fmt: str, db_path: Path) -> None:
+    """Alerts, most recently changed first."""
+    from dataclasses import asdict
+
+    from lotwatch.stats.monitor import CAUTION
+    from lotwatch.store import alerts as store_alerts
+    from lotwatch.tui.render.battery_text import clean_text
+    from lotwatch.tui.render.report import fit
+
+    with open_store(db_path, read_only=True) as store:
+        rows = store_alerts.list_alerts(store, state=state)
+    if fmt == "json":
+        click.echo(json.dumps({"alerts": [asdict(a) for a in rows], "caution": CAUTION},
+                              indent=2))
+        return
+    if not rows:
+        click.echo("No alerts" + (f" in state {state}." if state else "."))
+        return
+    click.echo(f"{'id':>4} {'state':<12} {'characteristic':<16} {'factor':<8} {'groups':<12} "
+               f"{'size':>7} {'q':>7} last window")
+    for a in rows:
+        size = ("+" if a.direction == "higher" else "-") + fit(a.size, 6) if a.size else "-"
+        click.echo(f"{a.id:>4} {a.state:<12} {clean_text(a.characteristic, 16):<16} "
+                   f"{clean_text(a.factor, 8):<8} {clean_text(','.join(a.groups), 12):<12} "
+                   f"{size:>7} {fit(a.q, 7):>7} {clean_text(a.last_window or '', 22)}")
+    click.echo(CAUTION)
+
+
+@alerts_group.command("show")
+@click.argument("alert_id", type=int)
+@db_option
+@store_errors
+def alerts_show(alert_id: int, db_path: Path) -> None:
+    """One alert and its whole event trail."""
+    from lotwatch.stats.monitor import CAUTION
+    from lotwatch.store import alerts as store_alerts
+    from lotwatch.tui.render.battery_text import clean_text
+
+    with open_store(db_path, read_only=True) as store:
+        a = store_alerts.get_alert(store, alert_id)
+        events = store_alerts.alert_history(store, alert_id)
+    frac = f" ({a.size_fraction:.0%} of the tolerance)" if a.size_fraction else ""
+    size = f"{a.size:.4g}" if a.size is not None else "?"
+    click.echo(clean_text(f"Alert {a.id}: {a.characteristic} by {a.factor}, {a.state}"))
+    q = f"; q = {a.q:.3g}" if a.q is not None else ""
+    click.echo(clean_text(f"  groups: {', '.join(a.groups) or '-'}; {a.direction or 'differs'} "
+                          f"by {size}{frac}{q}"))
+    click.echo(clean_text(f"  opened {a.opened_at} in {a.opened_window}; last window "
+                          f"{a.last_window}"))
+    click.echo("Events:")
+    for e in events:
+        line = f"  {e.at} {e.event}"
+        if e.by:
+            line += f" by {e.by}"
+        if e.window:
+            line += f" in {e.window}"
+        if e.note:
+            line += f": {e.note}"
+        click.echo(clean_text(line))
+    click.echo(CAUTION)
+
+
+@alerts_group.command("ack")
+@click.argument("alert_id", type=int)
+@click.option("--by", "by", default=None, help="Who acknowledges (default: your login name).")
+@click.option("--note", default="", help="What was looked at or decided.")
+@db_option
+@store_errors
+def alerts_ack(alert_id: int, by: str | None, note: str, db_path: Path) -> None:
+    """Acknowledge an open alert (who, when, note); it stays until the signal clears."""
+    from lotwatch.store import alerts as store_alerts
+
+    with open_store(db_path) as store:
+        a = store_alerts.acknowledge(store, alert_id, by=by or store.user, note=note)
+    click.echo(f"alert {a.id} acknowledged ({a.characteristic} by {a.factor})")
+
+
+def register(main: click.Group) -> None:
+    for cmd in (review_command, report_command, trend_command, alerts_group):
+        main.add_command(cmd)

@@ -1,1 +1,0 @@
-"""One module per group of command-line commands; each exposes ``register(main)``."""

@@ -1,0 +1,234 @@
+"""Plain-text report of a ``BatteryResult`` for an 80-column terminal (``lotwatch analyze``).
+
+No markup, no colour: group names and units are printed literally, with control and other
+non-printable characters shown as ``\\xNN`` escapes so they cannot move the cursor or restyle the
+terminal, and long names shortened with ``~``.
+"""
+
+from __future__ import annotations
+
+import math
+import textwrap
+from collections.abc import Iterable
+
+from lotwatch.stats.results import BatteryResult, PairComparison, TestResult
+
+WIDTH = 80
+CAUTION = ("A statistical signal is a reason to investigate, not a disposition of product; "
+           "follow your site's quality procedures.")
+
+
+def clean_text(s: str, limit: int | None = None) -> str:
+    """``s`` with non-printable characters escaped and, past ``limit`` characters, cut with ``~``."""
+    out = "".join(c if c.isprintable() else
+                  (f"\\x{ord(c):02x}" if ord(c) < 256 else f"\\u{ord(c):04x}") for c in str(s))
+    if limit is not None and len(out) > limit:
+        out = out[: limit - 1] + "~"
+    return out
+
+
+def num(x: float | None, width: int = 10, digits: int = 6) -> str:
+    """Right-aligned number in at most ``width`` characters (fewer digits if it must)."""
+    if x is None or (isinstance(x, float) and math.isnan(x)):
+        return "-".rjust(width)
+    if isinstance(x, float) and math.isinf(x):
+        return ("inf" if x > 0 else "-inf").rjust(width)
+    if width <= 0:
+        return f"{x:.{digits}g}"
+    for d in range(digits, 0, -1):
+        s = f"{x:.{d}g}"
+        if len(s) <= width:
+            return s.rjust(width)
+    return f"{x:.0e}".rjust(width)
+
+
+def pval(p: float | None, width: int = 8) -> str:
+    if p is None or math.isnan(p):
+        return "-".rjust(width)
+    return ("<0.0001" if p < 1e-4 else f"{p:.4f}").rjust(width)
+
+
+def _p_words(p: float | None) -> str:
+    if p is None or math.isnan(p):
+        return "n/a"
+    return "< 0.0001" if p < 1e-4 else f"= {p:.4f}"
+
+
+def _wrap(text: str, indent: str = "  ") -> list[str]:
+    return textwrap.wrap(clean_text(text), WIDTH - 1, initial_indent=indent,
+                         subsequent_indent=indent + "  ") or [indent]
+
+
+def _heading(title: str) -> list[str]:
+    return ["", title, "-" * len(title)]
+
+
+def _anova(r: BatteryResult) -> list[str]:
+    a = r.anova
+    route = "exact integer arithmetic" if a.exact else "floating point"
+    lines = _heading(f"One-way ANOVA (k = {a.k} groups, N = {a.n_total}, alpha {a.alpha:g}, "
+                     f"{route})")
+    lines.append(f"{'Source':<16}{'df':>5} {'SS':>12} {'MS':>12} {'F':>10} {'p-value':>9}")
+    lines.append(f"{'Between groups':<16}{a.df_between:>5} {num(a.ss_between, 12)} "
+                 f"{num(a.ms_between, 12)} {num(a.f, 10)} {pval(a.p, 9)}")
+    lines.append(f"{'Within groups':<16}{a.df_within:>5} {num(a.ss_within, 12)} "
+                 f"{num(a.ms_within, 12)}")
+    lines.append(f"{'Total':<16}{a.df_between + a.df_within:>5} {num(a.ss_total, 12)}")
+    if a.f_crit is not None:
+        lines.append(f"Critical F ({1 - a.alpha:g}; {a.df_between}, {a.df_within}) = "
+                     f"{num(a.f_crit, 0).strip()}    R-squared = {num(a.r_squared, 0).strip()}"
+                     f"    residual SD = {num(a.resid_sd, 0).strip()}")
+    lines.extend(_wrap(a.decision, ""))
+    if a.status != "ok":
+        lines.append(f"Status: {a.status}")
+    return lines
+
+
+def _checks(r: BatteryResult) -> list[str]:
+    lines = _heading("Companion tests and checks")
+    w = r.welch
+    if w.status == "ok":
+        lines.extend(_wrap(f"Welch ANOVA F = {num(w.f, 0).strip()} on {num(w.df_between, 0).strip()}"
+                           f" and {num(w.df_within, 0, 4).strip()} df (p {_p_words(w.p)})."))
+    else:
+        lines.extend(_wrap(f"Welch ANOVA: not computed ({w.status})."))
+    tests: Iterable[TestResult] = (r.kruskal, r.brown_forsythe, r.bartlett, r.normality)
+    for t in tests:
+        lines.extend(_wrap(t.sentence))
+    if r.resolution_warning:
+        lines.extend(_wrap("Resolution: " + r.resolution_warning))
+    lines.append("")
+    rec = r.recommendation
+    if rec.test == "none":
+        lines.extend(_wrap(f"Recommended: nothing to read. {rec.reason}", ""))
+    else:
+        lines.extend(_wrap(f"Recommended: {rec.test} with {rec.posthoc}. {rec.reason}", ""))
+    return lines
+
+
+def _groups(r: BatteryResult, unit: str) -> list[str]:
+    u = f" ({clean_text(unit, 10)})" if unit else ""
+    lines = _heading(f"Groups{u}, {1 - r.alpha:g} confidence intervals of the mean")
+    lines.append(f"{'group':<14}{'n':>5} {'mean':>10} {'sd':>9} {'CI low':>10} {'CI high':>10} "
+                 f"{'vs others':>10} {'let':<4}")
+    for g in r.groups:
+        lines.append(f"{clean_text(g.name, 14):<14}{g.n:>5} {num(g.mean)} {num(g.sd, 9)} "
+                     f"{num(g.ci_low)} {num(g.ci_high)} {num(g.diff_from_others)} "
+                     f"{clean_text(r.letters.get(g.name, ''), 4):<4}".rstrip())
+    for e in r.excluded:
+        lines.append(f"{clean_text(e.name, 14):<14}{e.n:>5}  excluded: {clean_text(e.reason)}")
+    if r.letters:
+        lines.extend(_wrap(f"Groups sharing a letter do not differ ({r.recommendation.posthoc}, "
+                           f"alpha {r.alpha:g}).", ""))
+    return lines
+
+
+def _pairs(title: str, pairs: list[PairComparison], ranks: bool = False) -> list[str]:
+    if not pairs:
+        return []
+    lines = _heading(title)
+    diff = "rank diff" if ranks else "diff"
+    lines.append(f"{'pair':<29}{diff:>10} {'lower':>10} {'upper':>10} {'p adj':>9} sig")
+    for p in pairs:
+        label = f"{clean_text(p.a, 13)} - {clean_text(p.b, 13)}"
+        lines.append(f"{label:<29}{num(p.diff)} {num(p.lower)} {num(p.upper)} {pval(p.p, 9)} "
+                     f"{'yes' if p.significant else 'no'}")
+    return lines
+
+
+def _dunnett(r: BatteryResult) -> list[str]:
+    if r.dunnett is None:
+        return []
+    lines = _heading(f"Dunnett: each group against {clean_text(r.reference or '', 30)}")
+    lines.append(f"{'group':<29}{'diff':>10} {'lower':>10} {'upper':>10} {'p adj':>9} sig")
+    for c in r.dunnett:
+        lines.append(f"{clean_text(c.group, 29):<29}{num(c.diff)} {num(c.lower)} {num(c.upper)} "
+                     f"{pval(c.p, 9)} {'yes' if c.significant else 'no'}")
+    return lines
+
+
+def _anom(r: BatteryResult) -> list[str]:
+    a = r.anom
+    if not a.groups:
+        return []
+    lines = _heading(f"Analysis of means (alpha {a.alpha:g}, grand mean "
+                     f"{num(a.grand_mean, 0).strip()}, h = {num(a.critical_value, 0, 4).strip()})")
+    lines.append(f"{'group':<29}{'mean':>10} {'lower':>10} {'upper':>10}  flag")
+    for g in a.groups:
+        lines.append(f"{clean_text(g.group, 29):<29}{num(g.mean)} {num(g.lower)} {num(g.upper)}"
+                     f"  {clean_text(g.flag)}")
+    return lines
+
+
+def _ci(ci: tuple[float, float] | None) -> str:
+    if ci is None:
+        return ""
+    return f" [{num(ci[0], 0, 3).strip()}, {num(ci[1], 0, 3).strip()}]"
+
+
+def _effect_power(r: BatteryResult, unit: str) -> list[str]:
+    e, v, p = r.effect, r.variance_components, r.power
+    lines = _heading("Effect size, variance components, power")
+    level = f"{1 - r.alpha:g}"
+    lines.extend(_wrap(f"eta-squared {num(e.eta_squared, 0, 4).strip()}{_ci(e.eta_squared_ci)},"
+                       f" omega-squared {num(e.omega_squared, 0, 4).strip()}, "
+                       f"Cohen's f {num(e.cohen_f, 0, 4).strip()}{_ci(e.cohen_f_ci)}"
+                       + (f" ({level} intervals)." if e.eta_squared_ci else ".")))
+    if v.status == "ok":
+        lines.extend(_wrap(f"Random-effects view: between-group variance "
+                           f"{num(v.var_between, 0, 4).strip()}, within-group variance "
+                           f"{num(v.var_within, 0, 4).strip()}, intraclass correlation "
+                           f"{num(v.icc, 0, 3).strip()}{_ci(v.icc_ci)}."))
+    u = f" {clean_text(unit, 10)}" if unit else ""
+    if p.detectable_shift_80 is not None:
+        lines.extend(_wrap(f"Smallest shift of one group detectable with 80% power now: "
+                           f"{num(p.detectable_shift_80, 0, 4).strip()}{u}."))
+    if p.shift is not None and p.power_at_shift is not None:
+        lines.extend(_wrap(
+            f"Power to detect a shift of {num(p.shift, 0, 4).strip()}{u}: "
+            f"{100 * p.power_at_shift:.0f}%; lots per group for 80% power: "
+            f"{p.n_per_group_80 if p.n_per_group_80 is not None else 'over a million'}, "
+            f"for 90%: {p.n_per_group_90 if p.n_per_group_90 is not None else 'over a million'}."))
+    if p.status != "ok":
+        lines.extend(_wrap(f"Power: not computed ({p.status})."))
+    return lines
+
+
+def _capability(r: BatteryResult) -> list[str]:
+    if not r.capability:
+        return []
+    lines = _heading("Capability (Cp, Cpk from pooled within SD; Pp, Ppk from group SD)")
+    lines.append(f"{'group':<20}{'Cp':>8}{'Cpk':>8}{'Cpk CI low':>12}{'Cpk CI high':>12}"
+                 f"{'Pp':>8}{'Ppk':>8}")
+    for c in r.capability:
+        lo, hi = c.cpk_ci if c.cpk_ci else (None, None)
+        lines.append(f"{clean_text(c.group, 20):<20}{num(c.cp, 8, 3)}{num(c.cpk, 8, 3)}"
+                     f"{num(lo, 12, 3)}{num(hi, 12, 3)}{num(c.pp, 8, 3)}{num(c.ppk, 8, 3)}")
+    return lines
+
+
+def render_battery(result: BatteryResult, *, unit: str = "") -> str:
+    """The whole battery as plain text, no line longer than 80 characters."""
+    r = result
+    lines: list[str] = []
+    if r.status != "ok":
+        lines.extend(_wrap(f"Status: {r.status}", ""))
+    lines.extend(_anova(r))
+    lines.extend(_checks(r))
+    lines.extend(_groups(r, unit))
+    for title, pairs, ranks in (("Tukey-Kramer comparisons", r.tukey, False),
+                                ("Games-Howell comparisons", r.games_howell, False),
+                                (f"Dunn comparisons (mean ranks, {r.dunn_adjust} adjusted)",
+                                 r.dunn, True)):
+        lines.extend(_pairs(title, pairs, ranks))
+    lines.extend(_dunnett(r))
+    lines.extend(_anom(r))
+    lines.extend(_effect_power(r, unit))
+    lines.extend(_capability(r))
+    if r.notes:
+        lines.extend(_heading("Notes"))
+        for n in r.notes:
+            lines.extend(_wrap(n))
+    lines.append("")
+    lines.extend(textwrap.wrap(CAUTION, WIDTH - 1))
+    return "\n".join(line[:WIDTH] if len(line) > WIDTH else line for line in lines) + "\n"
