@@ -132,13 +132,6 @@ _CORRECTED = (10, "HS-1", "early")  # its first fill_volume value is keyed 10 mL
 _VOIDED = (33, "LS-2", "late")  # its cap_torque value is entered twice; the copy is voided
 
 
-def demo_store_path() -> Path:
-    """Where ``lotwatch demo`` keeps its store: ``demo.sqlite`` in the user's data directory."""
-    from platformdirs import user_data_path
-
-    return user_data_path("lotwatch", appauthor=False) / "demo.sqlite"
-
-
 def _decimals(resolution: str) -> int:
     return len(resolution.split(".", 1)[1]) if "." in resolution else 0
 
@@ -281,13 +274,14 @@ def _remove(path: Path) -> None:
 
 
 def build_demo_store(
-    path: str | os.PathLike[str] | None = None,
+    path: str | os.PathLike[str],
     *,
     fresh: bool = False,
     seed: int = DEMO_SEED,
     end: date | None = None,
 ) -> Path:
-    """Build the demo store at ``path`` (default ``demo_store_path()``) and return the path.
+    """Build the demo store at ``path`` and return the path (``lotwatch demo`` keeps it in the
+    user's data directory: ``lotwatch.tui.services.paths.demo_store_path``).
 
     An existing file is reused as it is unless ``fresh`` is set, which rebuilds it. The store is
     built under a temporary name and moved into place, so an interrupted build leaves nothing
@@ -295,7 +289,7 @@ def build_demo_store(
     """
     from lotwatch.store import Store
 
-    target = Path(path) if path is not None else demo_store_path()
+    target = Path(path)
     if target.exists() and not fresh:
         return target
     target.parent.mkdir(parents=True, exist_ok=True)

@@ -41,35 +41,6 @@ def _ts(col: str) -> pl.Expr:
     return pl.col(col).str.to_datetime(_TS, time_zone="UTC", time_unit="us")
 
 
-# Distinct keys / values by hopping along the (key, value) index: one index seek per distinct
-# entry instead of a scan of every lot's tags (the "loose index scan" recursive CTE).
-_HOP_KEYS = """
-WITH RECURSIVE k(key) AS (
-    SELECT min(key) FROM lot_tags
-    UNION ALL
-    SELECT (SELECT min(key) FROM lot_tags WHERE key > k.key) FROM k WHERE k.key IS NOT NULL
-) SELECT key FROM k WHERE key IS NOT NULL
-"""
-_HOP_VALUES = """
-WITH RECURSIVE v(value) AS (
-    SELECT min(value) FROM lot_tags WHERE key = :key
-    UNION ALL
-    SELECT (SELECT min(value) FROM lot_tags WHERE key = :key AND value > v.value)
-    FROM v WHERE v.value IS NOT NULL
-) SELECT value FROM v WHERE value IS NOT NULL
-"""
-
-
-def used_tag_keys(store: Store) -> list[str]:
-    """Every tag key used by some lot, sorted."""
-    return [r[0] for r in store.conn.execute(_HOP_KEYS)]
-
-
-def tag_values(store: Store, key: str) -> list[str]:
-    """Known values of a tag key, sorted (empty if the key is unused)."""
-    return [r[0] for r in store.conn.execute(_HOP_VALUES, {"key": key})]
-
-
 def bucket_frame(store: Store, *, characteristic: str | None = None, factor: str | None = None,
                  since: date | None = None, until: date | None = None) -> pl.DataFrame:
     """Bucket rows: characteristic:str, factor:str, level:str, day:date, n, sum_d, sum_d2 (i64),
@@ -238,7 +209,7 @@ def _last_lots_walk(store: Store, characteristic_id: int, key: str, day_where: l
            + "".join(" AND " + w for w in day_where)
            + " ORDER BY m.measured_at DESC, m.id DESC")
     picked: list[int] = []
-    for level in tag_values(store, key):
+    for level in store.tag_values(key):
         picked.extend(_distinct_first(
             store.conn.execute(sql, [key, level, characteristic_id, *day_params]), n))
     return picked

@@ -38,7 +38,7 @@ def _hits(loaded: set[str], forbidden: tuple[str, ...]) -> list[str]:
 @pytest.mark.parametrize(
     "package, forbidden",
     [
-        ("lotwatch.store", UI + ("lotwatch.tui", "lotwatch.stats")),
+        ("lotwatch.store", UI + ("lotwatch.tui", "lotwatch.stats", "platformdirs")),
         ("lotwatch.stats", UI + ("lotwatch.tui", "lotwatch.store", "sqlite3", "sqlite_utils")),
         ("lotwatch.tui.services", UI + ("lotwatch.tui.app", "lotwatch.tui.cli")),
         ("lotwatch.tui.render", UI + ("lotwatch.tui.app", "lotwatch.tui.cli")),

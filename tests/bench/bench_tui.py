@@ -100,7 +100,8 @@ def main(repeats: int = 3) -> None:
         env = {**os.environ, "XDG_DATA_HOME": home}
         sys.path.insert(0, str(ROOT))
         os.environ["XDG_DATA_HOME"] = home
-        from lotwatch.store.demo import build_demo_store, demo_store_path
+        from lotwatch.store.demo import build_demo_store
+        from lotwatch.tui.services.paths import demo_store_path
 
         db = build_demo_store(demo_store_path())
         code = LOTWATCH.replace("ROOT", repr(str(ROOT))).replace("DB", repr(str(db)))

@@ -22,7 +22,6 @@ from lotwatch.store.demo import (
     DRIFT_START_DAY,
     build_demo_store,
     default_end,
-    demo_store_path,
     demo_summary,
 )
 
@@ -94,6 +93,8 @@ def test_default_end_puts_nothing_in_the_future(now):
 
 
 def test_default_path_is_in_user_data_dir():
+    from lotwatch.tui.services.paths import demo_store_path
+
     p = demo_store_path()
     assert p.name == "demo.sqlite" and p.parent.name == "lotwatch"
 

@@ -82,7 +82,8 @@ def demo_data_home(tmp_path_factory) -> Path:
     old = os.environ.get("XDG_DATA_HOME")
     os.environ["XDG_DATA_HOME"] = str(home)
     try:
-        from lotwatch.store.demo import build_demo_store, demo_store_path
+        from lotwatch.store.demo import build_demo_store
+        from lotwatch.tui.services.paths import demo_store_path
 
         build_demo_store(demo_store_path())
     finally:

@@ -9,17 +9,11 @@ from pathlib import Path
 from typing import Any, TypeVar
 
 import click
+from lotwatch.tui.services.paths import default_store_path
 
 F = TypeVar("F", bound=Callable[..., Any])
 
 ENV_VAR = "LOTWATCH_DB"
-
-
-def default_store_path() -> Path:
-    """The default store: ``lotwatch.sqlite`` in the user's data directory (XDG on Linux)."""
-    from platformdirs import user_data_path
-
-    return user_data_path("lotwatch", appauthor=False) / "lotwatch.sqlite"
 
 
 def resolve_db_path(db: str | os.PathLike[str] | None) -> Path:

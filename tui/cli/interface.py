@@ -67,7 +67,8 @@ def demo(fresh: bool, no_open: bool, read_only: bool) -> None:
     product and number in it is invented. A new demo store gets its last 8 weekly reviews
     recorded (oldest first), so its alerts have a history to look at.
     """
-    from lotwatch.store.demo import build_demo_store, demo_store_path, demo_summary
+    from lotwatch.store.demo import build_demo_store, demo_summary
+    from lotwatch.tui.services.paths import demo_store_path
 
     path = demo_store_path()
     existed = path.exists()

@@ -8,7 +8,6 @@ painted before those heavy modules load.
 
 from __future__ import annotations
 
-import getpass
 import os
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
@@ -16,6 +15,10 @@ from dataclasses import dataclass, field
 from datetime import date
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
+
+# The one login-name and file-identity helpers, re-exported for the app.
+from lotwatch.store.identity import file_identity as file_identity
+from lotwatch.store.identity import login_name as login_name
 
 if TYPE_CHECKING:
     from lotwatch.stats.results import BatteryResult
@@ -201,14 +204,6 @@ class EntryDraft:
 # --- opening the store -------------------------------------------------------------------------
 
 
-def login_name() -> str:
-    """The person's login name, recorded as who logged or acknowledged."""
-    try:
-        return getpass.getuser()
-    except (KeyError, OSError):  # no passwd entry (containers)
-        return os.environ.get("USER") or os.environ.get("USERNAME") or "unknown"
-
-
 @contextmanager
 def opened(path: Path, read_only: bool) -> Iterator[Store]:
     """A Store on ``path`` for this thread, closed afterwards."""
@@ -219,15 +214,6 @@ def opened(path: Path, read_only: bool) -> Iterator[Store]:
         yield store
     finally:
         store.close()
-
-
-def file_identity(path: Path) -> tuple[int, int] | None:
-    """(device, inode) of the store file, or None when it is gone: detects deletion/replacement."""
-    try:
-        st = os.stat(path)
-    except FileNotFoundError:
-        return None
-    return (st.st_dev, st.st_ino)
 
 
 def file_stamp(path: Path) -> tuple[int, ...]:
