@@ -2,34 +2,41 @@
 
 Nothing here knows SQLite or Textual. Every function returns a dataclass from ``stats.results``;
 degenerate input returns a result whose ``status`` says what happened instead of raising.
+
+The names below are loaded on first use (PEP 562 module ``__getattr__``), so importing one light
+module such as ``lotwatch.stats.monitor`` for its settings does not load scipy for every other.
 """
 
-from lotwatch.stats.anom import analysis_of_means
-from lotwatch.stats.anova import anova_batch, anova_from_sums, one_way_anova
-from lotwatch.stats.battery import run_battery
-from lotwatch.stats.capability import capability
-from lotwatch.stats.checks import (
-    bartlett_test,
-    brown_forsythe,
-    kruskal_wallis,
-    recommend,
-    residual_normality,
-    resolution_check,
-)
-from lotwatch.stats.distributions import ptukey, qtukey
-from lotwatch.stats.effect import effect_sizes, variance_components
-from lotwatch.stats.letters import compact_letters
-from lotwatch.stats.multiple import AdjustedPValues, adjust_pvalues
-from lotwatch.stats.posthoc import dunn, dunnett, games_howell, tukey_kramer
-from lotwatch.stats.power import power_analysis
-from lotwatch.stats.results import BatteryResult
-from lotwatch.stats.welch import welch_anova, welch_batch, welch_from_moments
+from __future__ import annotations
 
-__all__ = [
-    "AdjustedPValues", "BatteryResult", "adjust_pvalues", "analysis_of_means", "anova_batch",
-    "anova_from_sums", "bartlett_test", "brown_forsythe", "capability", "compact_letters", "dunn",
-    "dunnett", "effect_sizes", "games_howell", "kruskal_wallis", "one_way_anova",
-    "power_analysis", "ptukey", "qtukey", "recommend", "residual_normality", "resolution_check",
-    "run_battery", "tukey_kramer", "variance_components", "welch_anova", "welch_batch",
-    "welch_from_moments",
-]
+import importlib
+from typing import Any
+
+_HOME = {
+    "analysis_of_means": "anom",
+    "anova_batch": "anova", "anova_from_sums": "anova", "one_way_anova": "anova",
+    "run_battery": "battery",
+    "capability": "capability",
+    "bartlett_test": "checks", "brown_forsythe": "checks", "kruskal_wallis": "checks",
+    "recommend": "checks", "residual_normality": "checks", "resolution_check": "checks",
+    "ptukey": "distributions", "qtukey": "distributions",
+    "effect_sizes": "effect", "variance_components": "effect",
+    "compact_letters": "letters",
+    "AdjustedPValues": "multiple", "adjust_pvalues": "multiple",
+    "dunn": "posthoc", "dunnett": "posthoc", "games_howell": "posthoc", "tukey_kramer": "posthoc",
+    "power_analysis": "power",
+    "BatteryResult": "results",
+    "welch_anova": "welch", "welch_batch": "welch", "welch_from_moments": "welch",
+}
+
+__all__ = sorted(_HOME)
+
+
+def __getattr__(name: str) -> Any:
+    home = _HOME.get(name)
+    if home is None:
+        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+    value = getattr(importlib.import_module(f"{__name__}.{home}"), name)
+    globals()[name] = value
+    return value
+

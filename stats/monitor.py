@@ -57,10 +57,12 @@ import math
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 from datetime import date, timedelta
+from typing import TYPE_CHECKING
 
 import numpy as np
-import polars as pl
-from scipy import special
+
+if TYPE_CHECKING:
+    import polars as pl
 
 CAUTION = "A statistical signal is a reason to investigate, not a disposition of product."
 
@@ -285,6 +287,8 @@ def bucket_cube(buckets: pl.DataFrame, comparisons: Sequence[Comparison], *, fir
     The frame holds at most one row per characteristic, factor, level and day (the store's
     primary key). Rows of other comparisons or outside the day range are ignored.
     """
+    import polars as pl
+
     comps = list(comparisons)
     index = {(c.characteristic, c.factor): i for i, c in enumerate(comps)}
     ndays = (last_day - first_day).days + 1
@@ -431,6 +435,8 @@ def _within_numerator(n: np.ndarray, s1: np.ndarray, s2: np.ndarray) -> np.ndarr
 def window_statistics(sums: GroupSums, *, min_n: int, alpha: float = 0.05) -> WindowStats:
     """ANOVA, Welch, Bartlett, effect sizes and the largest shift for every window × comparison
     at once; ``alpha`` is the level of the Bartlett check that routes a comparison to Welch."""
+    from scipy import special  # imported here: commands that only read settings stay quick
+
     n_all = sums.n
     usable = n_all >= max(min_n, 1)
     n = np.where(usable, n_all, 0)
@@ -523,6 +529,8 @@ def detectable_shift(stats: WindowStats, *, alpha: float = 0.05, power: float = 
 
     Returns an array (len(rows), C) in the characteristic's unit; NaN where undefined.
     """
+    from scipy import special  # imported here: commands that only read settings stay quick
+
     idx = list(range(stats.k.shape[0])) if rows is None else list(rows)
     k = stats.k[idx].astype(np.float64)
     N = stats.n_total[idx].astype(np.float64)

@@ -18,7 +18,6 @@ import textwrap
 from dataclasses import dataclass
 from typing import Any
 
-import polars as pl
 from lotwatch.stats.monitor import CAUTION
 from lotwatch.tui.render.battery_text import clean_text
 
@@ -536,5 +535,7 @@ def report_html(rep: WeeklyReport) -> str:
 
 
 def trend_frame_for_json(tr: Any) -> list[dict[str, Any]]:
+    import polars as pl
+
     return [dict(zip(("window_end", "window", "level", "n", "mean"), row, strict=True))
             for row in tr.frame.with_columns(pl.col("window_end").cast(pl.String)).iter_rows()]
