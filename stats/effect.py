@@ -82,12 +82,16 @@ def effect_sizes(table: AnovaTable | Parts, alpha: float = 0.05) -> EffectSize:
     msw = ssw / dfw
     eta = ssb / sst
     omega = (ssb - dfb * msw) / (sst + msw)
-    if ssw <= 0:
+    # ssw == 0, or so small (a subnormal sum) that ssw / dfw underflows to 0: no finite F.
+    if msw <= 0:
         return EffectSize(eta_squared=eta, omega_squared=omega, cohen_f=math.inf,
                           status="zero within-group variance")
     cohen = math.sqrt(ssb / ssw)  # = sqrt(eta² / (1 - eta²)); no 0/0 when eta² rounds to 1
     n_total = dfb + dfw + 1
     f_obs = (ssb / dfb) / msw
+    if not math.isfinite(f_obs):  # overflows for a huge between / tiny within ratio
+        return EffectSize(eta_squared=eta, omega_squared=omega, cohen_f=cohen,
+                          status="F too large for an interval")
     lo, hi = noncentrality_interval(f_obs, dfb, dfw, alpha)
     eta_ci = (lo / (lo + n_total), hi / (hi + n_total) if math.isfinite(hi) else 1.0)
     f_ci = (math.sqrt(lo / n_total), math.sqrt(hi / n_total))
@@ -114,6 +118,9 @@ def variance_components(table: AnovaTable | Parts, ns: list[int] | tuple[int, ..
         return VarianceComponents(var_b, 0.0, 1.0, status="zero within-group variance")
     icc = var_b / (var_b + msw)
     f_obs = msb / msw
+    if not math.isfinite(f_obs) or not math.isfinite(n0):
+        # F overflows (huge between, tiny within): no interval from the F distribution
+        return VarianceComponents(var_between=var_b, var_within=msw, icc=icc, status=OK)
     f_l = f_obs / float(sps.f.isf(alpha / 2, dfb, dfw))
     f_u = f_obs * float(sps.f.isf(alpha / 2, dfw, dfb))
 

@@ -172,6 +172,27 @@ def test_zero_within_variance() -> None:
     assert power_analysis([2, 2], 0.0).status == "zero within-group variance"
 
 
+def test_subnormal_within_sum() -> None:
+    """Found by fuzzing: SS_within = 5e-324 (the smallest subnormal double, IEEE 754) over 3 df
+    makes MS_within = SS_within / df underflow to exactly 0; F = MS_b / MS_w is then undefined
+    and was a ZeroDivisionError. It is reported as zero within-group variance."""
+    assert 5e-324 / 3 == 0.0  # IEEE 754 round-to-nearest underflow (the cause)
+    e = effect_sizes((1.0, 5e-324, 1, 3))
+    assert e.status == "zero within-group variance" and e.cohen_f == math.inf
+    assert e.eta_squared == 1.0 and e.eta_squared_ci is None
+    vc = variance_components((1.0, 5e-324, 1, 3), [2, 3])
+    assert vc.status == "zero within-group variance" and vc.icc == 1.0
+
+
+def test_f_overflows() -> None:
+    """MS_b / MS_w overflows to inf for 1e300 against 1e-301 (IEEE 754): no interval can come
+    from the F distribution, and none is given (before, the ICC interval read (0, 0))."""
+    e = effect_sizes((1e300, 1e-300, 2, 3))
+    assert e.status == "F too large for an interval" and e.eta_squared_ci is None
+    vc = variance_components((1e300, 1e-300, 2, 3), [2, 3])
+    assert vc.icc == 1.0 and vc.icc_ci is None
+
+
 def test_all_values_equal() -> None:
     t = one_way_anova([[3.0, 3.0], [3.0, 3.0, 3.0]], resolution="0.5")
     assert t.status == "all values equal" and t.f is None and t.p is None

@@ -366,34 +366,51 @@ async def test_recording_the_review_opens_alerts_and_read_only_refuses(small_sto
 
 
 async def test_a_slow_recompute_never_repaints_over_a_newer_one(small_store, monkeypatch):
+    import asyncio
+    import sys
     import threading
-    import time
 
     from lotwatch.tui.services import data
 
     real = data.load_detail
-    slow_done = threading.Event()
+    release = threading.Event()  # the site comparison finishes only after the line one shows
+    slow_thread: list[int] = []
 
     def slow_for_site(path, read_only, request):
         if request.factor != "site":
             return real(path, read_only, request)
-        time.sleep(1.0)
-        try:
-            return real(path, read_only, request)
-        finally:
-            slow_done.set()
+        slow_thread.append(threading.get_ident())
+        assert release.wait(30)
+        return real(path, read_only, request)
+
+    def slow_worker_done() -> bool:
+        """The site worker's thread has left the worker (it computed, and posted its result
+        unless the app dropped it there): none of its frames is in textual's worker runner."""
+        frame = sys._current_frames().get(slow_thread[0])
+        while frame is not None:
+            if frame.f_code.co_filename.endswith("worker.py") and "textual" in \
+                    frame.f_code.co_filename:
+                return False
+            frame = frame.f_back
+        return True
 
     monkeypatch.setattr(data, "load_detail", slow_for_site)
     path, _ = small_store
     app = LotwatchApp(path)
     async with app.run_test(size=SIZE) as pilot:
         await wait_until(pilot, lambda: app.overview is not None and not app.overview.partial)
+        await wait_until(pilot, lambda: bool(slow_thread))
         assert app.detail is None  # the site comparison is still computing
         await pilot.press("f")  # line: fast
         await wait_until(pilot, lambda: app.detail is not None)
         assert app.detail.factor == "line"
-        await wait_until(pilot, slow_done.is_set)  # the slow site computation has finished
-        await pilot.pause(0.3)  # ... and had time to post its (stale) result
+        release.set()  # now the stale site result completes ...
+        await wait_until(pilot, slow_worker_done)
+        # ... and whatever it posted is ahead of this callback in the app's message queue.
+        handled = asyncio.Event()
+        app.call_later(handled.set)
+        await asyncio.wait_for(handled.wait(), 10)
+        await pilot.pause()
         assert app.detail.factor == "line"
         assert "bore by line" in screen_text(app)
 
