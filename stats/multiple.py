@@ -51,7 +51,9 @@ def adjust_pvalues(p: Any, method: str = "bh", *, level: float = 0.05) -> Adjust
         ps = flat[idx][order]
         ranks = np.arange(1, m + 1, dtype=float)
         if method in ("bh", "by"):
-            adj = ps * m / ranks
+            # p / (i/m), not p·m/i: at i = m the divisor is exactly 1, so p_(m) = alpha stays
+            # alpha and is rejected (p·m/m can round up one ulp above it).
+            adj = ps / (ranks / m)
             if method == "by":
                 adj = adj * float(np.sum(1.0 / ranks))
             adj = np.minimum.accumulate(adj[::-1])[::-1]
