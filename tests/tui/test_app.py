@@ -6,9 +6,10 @@ import pytest
 from lotwatch.tui.app.application import LotwatchApp
 from lotwatch.tui.app.screens.acknowledge import AcknowledgeScreen
 from lotwatch.tui.app.screens.alerts import AlertsScreen
+from lotwatch.tui.app.screens.base import LotwatchScreen
+from lotwatch.tui.app.screens.board import BoardScreen
 from lotwatch.tui.app.screens.entry import LotEntryScreen
-from lotwatch.tui.app.screens.main import MainScreen
-from lotwatch.tui.services.data import login_name
+from lotwatch.tui.services.storefile import login_name
 from scipy import stats as sps
 from textual.widgets import Input
 from tui_helpers import notifications, screen_text, settle, wait_until
@@ -26,8 +27,24 @@ def _store_lot(path, lot: str):
 
 async def _started(pilot) -> LotwatchApp:
     app = pilot.app
-    await settle(pilot, lambda: app.detail is not None)
+    await settle(pilot, lambda: app.detail is not None and not app.computing)
     return app
+
+
+async def _show(pilot, characteristic: str, factor: str) -> None:
+    """Open the comparison view of one characteristic x factor, as Enter on the board does."""
+    app = pilot.app
+    app.switch_mode("board")
+    await pilot.pause()
+    board = app.screen.query_one("#board")
+    key = f"{characteristic}\x1f{factor}"
+    row = next(i for i in range(board.row_count)
+               if board.coordinate_to_cell_key((i, 0)).row_key.value == key)
+    board.move_cursor(row=row)
+    await pilot.press("enter")
+    await settle(pilot, lambda: app.current_mode == "comparison" and app.detail is not None
+                 and (app.detail.characteristic.name, app.detail.factor)
+                 == (characteristic, factor) and not app.computing)
 
 
 async def _type(pilot, widget_id: str, text: str) -> None:
@@ -40,7 +57,7 @@ async def test_log_a_lot_through_the_form(small_store):
     app = LotwatchApp(path, poll_seconds=0.1)
     async with app.run_test(size=SIZE) as pilot:
         await _started(pilot)
-        assert app.view.characteristic == "bore"
+        await _show(pilot, "bore", "site")
         await pilot.press("n")
         await pilot.pause()
         form = app.screen
@@ -52,13 +69,12 @@ async def test_log_a_lot_through_the_form(small_store):
         await _type(pilot, "values", "10.12 10.14")
         await _type(pilot, "lot", "NEW-7")
         await pilot.press("enter")
-        await settle(pilot, lambda: isinstance(app.screen, MainScreen)
+        await settle(pilot, lambda: isinstance(app.screen, LotwatchScreen)
                      and app.detail is not None
                      and any(r.lot == "NEW-7" for r in app.detail.recent))
         stored = _store_lot(path, "NEW-7")
         assert sorted(stored["value"].to_list()) == [10.12, 10.14]
         assert set(stored["level"].to_list()) == {"East"}
-        assert "NEW-7" in screen_text(app)
         assert any("Stored lot NEW-7" in m for m in notifications(app))
 
 
@@ -67,6 +83,7 @@ async def test_invalid_entry_says_why_and_stores_nothing(small_store):
     app = LotwatchApp(path)
     async with app.run_test(size=SIZE) as pilot:
         await _started(pilot)
+        await _show(pilot, "bore", "site")
         await pilot.press("n")
         await pilot.pause()
         form = app.screen
@@ -92,6 +109,7 @@ async def test_missing_required_tag_is_named(small_store):
     app = LotwatchApp(path)
     async with app.run_test(size=SIZE) as pilot:
         await _started(pilot)
+        await _show(pilot, "bore", "site")
         await pilot.press("n")
         await pilot.pause()
         await _type(pilot, "values", "10.10")
@@ -115,7 +133,8 @@ async def test_switching_characteristic_and_factor_changes_the_anova(small_store
     app = LotwatchApp(path)
     async with app.run_test(size=SIZE) as pilot:
         await _started(pilot)
-        await pilot.press("2")  # Tests tab
+        await _show(pilot, "bore", "site")
+        await pilot.press("5")  # Tests tab
         first = app.detail
         assert (first.characteristic.name, first.factor) == ("bore", "site")
         assert first.battery.anova.f == pytest.approx(_oracle_f(values["bore"], "site"),
@@ -129,9 +148,10 @@ async def test_switching_characteristic_and_factor_changes_the_anova(small_store
             _oracle_f(values["bore"], "line"), rel=1e-9)
         assert screen_text(app) != text_site
 
-        app.screen.query_one("#characteristics").focus()
-        await pilot.press("down")  # weight
-        await settle(pilot, lambda: app.detail.characteristic.name == "weight")
+        app.post_message(__import__("lotwatch.tui.app.messages", fromlist=["x"]).ChooseView(
+            app.view.but(characteristic="weight")))
+        await settle(pilot, lambda: app.detail.characteristic.name == "weight"
+                     and not app.computing)
         assert app.detail.factor == "line"
         assert app.detail.battery.anova.f == pytest.approx(
             _oracle_f(values["weight"], "line"), rel=1e-9)
@@ -178,7 +198,7 @@ async def test_read_only_refuses_entry_and_acknowledgement(alert_store):
         assert "READ-ONLY" in screen_text(app)
         await pilot.press("n")
         await pilot.pause()
-        assert isinstance(app.screen, MainScreen)
+        assert isinstance(app.screen, BoardScreen)
         assert any("read-only" in m and "logging lots is disabled" in m
                    for m in notifications(app))
         await pilot.press("a")
@@ -218,6 +238,7 @@ async def test_markup_in_a_lot_id_and_tag_is_literal(small_store):
     app = LotwatchApp(path)
     async with app.run_test(size=SIZE) as pilot:
         await _started(pilot)
+        await _show(pilot, "bore", "site")
         await pilot.press("n")
         await pilot.pause()
         form = app.screen
@@ -232,8 +253,15 @@ async def test_markup_in_a_lot_id_and_tag_is_literal(small_store):
         await pilot.press("y")  # confirm the new site value
         await settle(pilot, lambda: app.detail is not None
                      and any(r.lot == "[red]L-1[/red]" for r in app.detail.recent))
+        assert any("Stored lot [red]L-1[/red]" in m for m in notifications(app))
+        # One lot is below the minimum for the group table: open its lots directly.
+        from lotwatch.tui.app.screens.lots import LotsScreen
+        from lotwatch.tui.services.view_models import LotsRequest
+
+        app.push_screen(LotsScreen(LotsRequest("bore", "site", "[b]West[/b]")))
+        await settle(pilot, lambda: "[red]L-1[/red]" in screen_text(app))
         shown = screen_text(app)
-        assert "[red]L-1[/red] [b]West[/b] 10.05" in shown
+        assert "[red]L-1[/red]" in shown and "= [b]West[/b]" in shown
 
 
 async def test_a_lot_logged_in_one_app_appears_in_another(small_store):
@@ -243,6 +271,8 @@ async def test_a_lot_logged_in_one_app_appears_in_another(small_store):
     async with first.run_test(size=SIZE) as p1, second.run_test(size=SIZE) as p2:
         await _started(p1)
         await _started(p2)
+        await _show(p1, "bore", "site")
+        await _show(p2, "bore", "site")
         await p1.press("n")
         await p1.pause()
         form = first.screen
@@ -252,10 +282,9 @@ async def test_a_lot_logged_in_one_app_appears_in_another(small_store):
         form.query_one("#lot", Input).value = "SHARED-1"
         form.query_one("#values", Input).focus()
         await p1.press("enter")
-        await settle(p1, lambda: isinstance(first.screen, MainScreen))
+        await settle(p1, lambda: isinstance(first.screen, LotwatchScreen))
         await settle(p2, lambda: second.detail is not None
                      and any(r.lot == "SHARED-1" for r in second.detail.recent))
-        assert "SHARED-1" in screen_text(second)
 
 
 async def test_help_lists_bindings_and_the_caution(small_store):
@@ -266,13 +295,14 @@ async def test_help_lists_bindings_and_the_caution(small_store):
         await pilot.press("question_mark")
         await pilot.pause()
         shown = screen_text(app)
-        for text in ("Log lot", "Factor", "Acknowledge", "F crit", "q-values",
+        for text in ("Log lot", "Factor", "Acknowledge", "F crit", "q-values", "Board",
+                     "Lots", "Correct", "Void",
                      "Detectable shift", "not a disposition of product",
                      "qualified people"):
             assert text in shown
         await pilot.press("escape")
         await pilot.pause()
-        assert isinstance(app.screen, MainScreen)
+        assert isinstance(app.screen, BoardScreen)
 
 
 async def test_weekly_review_lists_comparisons_by_q_and_drills_in(small_store):
@@ -289,7 +319,7 @@ async def test_weekly_review_lists_comparisons_by_q_and_drills_in(small_store):
         assert "A statistical signal is a reason to investigate" in screen_text(app)
         top = rows[0]
         await pilot.press("enter")
-        await settle(pilot, lambda: isinstance(app.screen, MainScreen)
+        await settle(pilot, lambda: app.current_mode == "comparison"
                      and app.detail.characteristic.name == top.characteristic
                      and app.detail.factor == top.factor)
 
@@ -305,21 +335,22 @@ async def test_store_deleted_underneath_is_reported_and_the_app_keeps_running(sm
         await pilot.press("f")
         await settle(pilot)
         assert app.is_running
-        assert isinstance(app.screen, MainScreen)
+        assert isinstance(app.screen, BoardScreen)
 
 
 async def test_a_failed_save_keeps_the_form_and_its_contents(small_store, monkeypatch):
     from lotwatch.store import StoreLocked
-    from lotwatch.tui.services import data
+    from lotwatch.tui.services import writers
 
     def locked(*args, **kwargs):
         raise StoreLocked("the store is locked by another writer")
 
-    monkeypatch.setattr(data, "log_draft", locked)
+    monkeypatch.setattr(writers, "log_draft", locked)
     path, _ = small_store
     app = LotwatchApp(path)
     async with app.run_test(size=SIZE) as pilot:
         await _started(pilot)
+        await _show(pilot, "bore", "site")
         await pilot.press("n")
         await pilot.pause()
         form = app.screen
@@ -370,21 +401,25 @@ async def test_a_slow_recompute_never_repaints_over_a_newer_one(small_store, mon
     import sys
     import threading
 
-    from lotwatch.tui.services import data
+    from lotwatch.tui.app.messages import ChooseView
+    from lotwatch.tui.services import loaders
 
-    real = data.load_detail
-    release = threading.Event()  # the site comparison finishes only after the line one shows
+    real = loaders.load_detail
+    release = threading.Event()  # the first comparison finishes only after the other shows
+    first: list = []
     slow_thread: list[int] = []
 
-    def slow_for_site(path, read_only, request):
-        if request.factor != "site":
+    def slow_first(path, read_only, request):
+        """The first comparison asked for (the board's most urgent) waits for ``release``."""
+        if first and first[0] != (request.characteristic, request.factor):
             return real(path, read_only, request)
+        first.append((request.characteristic, request.factor))
         slow_thread.append(threading.get_ident())
         assert release.wait(30)
         return real(path, read_only, request)
 
     def slow_worker_done() -> bool:
-        """The site worker's thread has left the worker (it computed, and posted its result
+        """The slow worker's thread has left the worker (it computed, and posted its result
         unless the app dropped it there): none of its frames is in textual's worker runner."""
         frame = sys._current_frames().get(slow_thread[0])
         while frame is not None:
@@ -394,25 +429,28 @@ async def test_a_slow_recompute_never_repaints_over_a_newer_one(small_store, mon
             frame = frame.f_back
         return True
 
-    monkeypatch.setattr(data, "load_detail", slow_for_site)
+    monkeypatch.setattr(loaders, "load_detail", slow_first)
     path, _ = small_store
     app = LotwatchApp(path)
     async with app.run_test(size=SIZE) as pilot:
-        await wait_until(pilot, lambda: app.overview is not None and not app.overview.partial)
         await wait_until(pilot, lambda: bool(slow_thread))
-        assert app.detail is None  # the site comparison is still computing
-        await pilot.press("f")  # line: fast
+        assert app.detail is None  # the first comparison is still computing
+        other = next(r for r in app.overview.board
+                     if (r.characteristic, r.factor) != first[0])
+        app.post_message(ChooseView(app.view.but(characteristic=other.characteristic,
+                                                 factor=other.factor)))
         await wait_until(pilot, lambda: app.detail is not None)
-        assert app.detail.factor == "line"
-        release.set()  # now the stale site result completes ...
+        assert (app.detail.characteristic.name, app.detail.factor) == (
+            other.characteristic, other.factor)
+        release.set()  # now the stale result completes ...
         await wait_until(pilot, slow_worker_done)
         # ... and whatever it posted is ahead of this callback in the app's message queue.
         handled = asyncio.Event()
         app.call_later(handled.set)
         await asyncio.wait_for(handled.wait(), 10)
         await pilot.pause()
-        assert app.detail.factor == "line"
-        assert "bore by line" in screen_text(app)
+        assert (app.detail.characteristic.name, app.detail.factor) == (
+            other.characteristic, other.factor)
 
 
 async def test_acknowledging_from_the_weekly_review(alert_store):
@@ -439,3 +477,23 @@ async def test_acknowledging_from_the_weekly_review(alert_store):
         notes = [(e.by, e.note) for e in alert_history(store, alert_id)
                  if e.event == "acknowledged"]
     assert notes == [(login_name(), "East gauge recalibrated")]
+
+
+async def test_boundary_texts_in_the_form_are_words_not_a_closed_app(small_store):
+    """1e999999 in Values and 0001-01-01 in Time once closed the interface (exit status 0)."""
+    path, _ = small_store
+    app = LotwatchApp(path)
+    async with app.run_test(size=SIZE) as pilot:
+        await _started(pilot)
+        await _show(pilot, "bore", "site")
+        await pilot.press("n")
+        await pilot.pause()
+        await _type(pilot, "values", "1e999999")
+        await _type(pilot, "time", "0001-01-01")
+        await pilot.press("enter")
+        await settle(pilot)
+        assert app.is_running and isinstance(app.screen, LotEntryScreen)
+        shown = screen_text(app)
+        assert "1e999999 is too large to be a measurement" in shown
+        assert "0001-01-01 cannot be a measurement time" in shown
+        assert _store_lot(path, "BAD-1").height == 0

@@ -5,7 +5,8 @@ from __future__ import annotations
 import sqlite3
 
 from lotwatch.store import BadInput, RowProblem, StoreFull, StoreLocked, StoreMissing, StoreReadOnly
-from lotwatch.tui.app.application import describe_error, parse_week, shift_week
+from lotwatch.tui.app.errors import describe_error
+from lotwatch.tui.app.state import parse_week, shift_week
 
 
 def test_iso_weeks_across_a_year_end():

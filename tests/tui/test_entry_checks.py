@@ -6,7 +6,7 @@ from datetime import UTC, datetime, timedelta
 
 import pytest
 from lotwatch.tui.app.entry_checks import split_values, time_problem, value_problems
-from lotwatch.tui.services.data import CharacteristicInfo
+from lotwatch.tui.services.view_models import CharacteristicInfo
 
 BORE = CharacteristicInfo(name="bore", unit="mm", resolution="0.05", lsl=None, target=10.0,
                           usl=None, min_shift=None, plausible_low=9.0, plausible_high=11.0)
@@ -54,3 +54,20 @@ def test_time_problems():
     assert "is not a time" in time_problem("yesterday-ish", now)
     future = (now + timedelta(days=2)).strftime("%Y-%m-%dT%H:%M:%SZ")
     assert "is in the future" in time_problem(future, now)
+
+
+@pytest.mark.parametrize("text", ["1e999999", "-1e999999", "9" * 5000, "1e31"])
+def test_huge_values_are_refused_in_words(text):
+    """These texts once closed the whole interface from the form's live check."""
+    no_range = CharacteristicInfo(name="bore", unit="mm", resolution="0.05", lsl=None,
+                                  target=None, usl=None, min_shift=None, plausible_low=None,
+                                  plausible_high=None)
+    for ch in (BORE, no_range):
+        [problem] = value_problems(text, ch)
+        assert "too large to be a measurement" in problem
+
+
+@pytest.mark.parametrize("text", ["0001-01-01", "0001-01-01T00:00:00+05:00", "1899-05-01"])
+def test_times_at_the_calendars_ends_are_refused_in_words(text):
+    problem = time_problem(text, datetime(2026, 11, 30, 12, 0, tzinfo=UTC))
+    assert problem is not None and text[:10] in problem

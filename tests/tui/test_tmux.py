@@ -1,4 +1,5 @@
-"""A person at an 80×24 terminal: run ``python -m lotwatch.tui demo`` in tmux, log a lot, read the screen.
+"""A person at an 80×24 terminal: run ``python -m lotwatch.tui demo`` in tmux, read the board,
+log a lot.
 
 Skipped where tmux is not installed. The tmux server runs on a private socket and is killed at
 the end, so nothing else running tmux is touched.
@@ -68,22 +69,32 @@ def tmux():
     (tmpdir / socket).unlink(missing_ok=True)
 
 
-def test_log_a_lot_in_the_demo_at_80x24(tmux, demo_data_home):
+def test_the_board_first_then_log_a_lot_in_the_demo_at_80x24(tmux, demo_data_home):
     from lotwatch.store import Store
 
     db = demo_data_home / "lotwatch" / "demo.sqlite"
     env = (f"XDG_DATA_HOME={shlex.quote(str(demo_data_home))} "
            f"LOTWATCH_DB={shlex.quote(str(db))} TERM=xterm-256color")
-    command = f"cd {shlex.quote(str(ROOT))} && env {env} {shlex.quote(sys.executable)} -m tui demo"
-    started = time.monotonic()
+    command = (f"cd {shlex.quote(str(ROOT))} && env {env} {shlex.quote(sys.executable)} "
+               "-m lotwatch.tui demo")
     tmux.run("new-session", "-d", "-s", "lw", "-x", "80", "-y", "24", command)
-    screen = tmux.wait_for("1 Groups")
-    painted = time.monotonic() - started
-    screen = tmux.wait_for("watching")
-    print(f"first screen after {painted:.2f} s")
-    assert "cap_torque" in screen and "fill_volume" in screen
+    # No key pressed: the board, its most urgent row highlighted, and beneath it that
+    # comparison's flagged group, size with its unit and ANOVA table. The demo plants a
+    # +1 mL drift on line RB-2's fill_volume (store/demo.py, effect (a)).
+    screen = tmux.wait_for("Decision:")
+    lines = screen.splitlines()
+    assert any(line.lstrip().startswith(("! mean alert", "~ acknowledged", "watching"))
+               and "fill_volume" in line and "line" in line and "RB-2" in line
+               for line in lines[:4]), screen
+    assert "fill_volume by line:" in screen and "RB-2 high by +1.0" in screen
+    assert " mL" in screen
+    header = next(line for line in lines if line.split()[:2] == ["Source", "df"])
+    assert header.split() == ["Source", "df", "SS", "MS", "F", "p"]
+    between = next(line for line in lines if line.lstrip().startswith("Between")).split()
+    within = next(line for line in lines if line.lstrip().startswith("Within")).split()
+    assert len(between) == 6 and len(within) == 4  # df SS MS F p / df SS MS
     assert "Help" in screen and "Quit" in screen  # the footer names the keys
-    assert all(len(line) <= 80 for line in screen.splitlines())
+    assert all(len(line) <= 80 for line in lines)
 
     tmux.keys("n")
     screen = tmux.wait_for("Log a lot")
@@ -94,21 +105,20 @@ def test_log_a_lot_in_the_demo_at_80x24(tmux, demo_data_home):
     tmux.keys("Tab")
     tmux.type("early")
     tmux.keys("Tab")
-    tmux.type("2.0x")
+    tmux.type("500.x")
     screen = tmux.wait_for("is not a number")
-    tmux.keys("BSpace", "BSpace")
-    tmux.type("03")
+    tmux.keys("BSpace")
+    tmux.type("3")
     tmux.keys("Tab")
     tmux.type("TMUX-1")
     tmux.keys("Enter")
     screen = tmux.wait_for("Stored lot TMUX-1")
-    screen = tmux.wait_for("Last logged: TMUX-1")
     assert "Log a lot" not in screen
 
     with Store.open(db, read_only=True) as store:
-        frame = store.values_frame("cap_torque", "line")
+        frame = store.values_frame("fill_volume", "line")
     row = frame.filter(frame["lot"] == "TMUX-1")
-    assert row["value"].to_list() == [2.03] and row["level"].to_list() == ["RB-2"]
+    assert row["value"].to_list() == [500.3] and row["level"].to_list() == ["RB-2"]
 
     tmux.keys("q")
     deadline = time.monotonic() + 10

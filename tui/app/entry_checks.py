@@ -13,13 +13,18 @@ from collections.abc import Callable
 from datetime import UTC, datetime, timedelta
 
 from lotwatch.tui.render.safe_text import clean
-from lotwatch.tui.services.data import CharacteristicInfo
+from lotwatch.tui.services.view_models import CharacteristicInfo
 from textual.validation import Function, ValidationResult, Validator
 
 _SPLIT = re.compile(r"[\s;]+")
 
 # Accept a timestamp up to this far ahead of the clock (clock skew between lab and terminal).
 FUTURE_SLACK = timedelta(minutes=10)
+# Earliest year the form accepts: older stamps are typing mistakes (common practice).
+MIN_YEAR = 1970
+# Decimal exponent beyond which a typed value is refused before any arithmetic (1e999999 would
+# overflow the decimal context); no measured quantity is near 10**30 in its own unit.
+MAX_EXPONENT = 30
 
 
 def split_values(text: str) -> list[str]:
@@ -46,6 +51,9 @@ def value_problems(text: str, ch: CharacteristicInfo | None) -> list[str]:
             hint = " (use a decimal point, not a comma)" if "," in v else ""
             problems.append(f"{shown!r} is not a number{hint}")
             continue
+        if d.adjusted() > MAX_EXPONENT:
+            problems.append(f"{shown} is too large to be a measurement")
+            continue
         try:
             to_units(d, ch.resolution)
         except FinerThanResolution:
@@ -53,6 +61,9 @@ def value_problems(text: str, ch: CharacteristicInfo | None) -> list[str]:
             continue
         except BadValue as exc:
             problems.append(f"{shown}: {exc}")
+            continue
+        except (ArithmeticError, ValueError):  # decimal overflow, int-string limits
+            problems.append(f"{shown} is too large to be a measurement")
             continue
         lo, hi = ch.plausible_low, ch.plausible_high
         x = float(d)
@@ -78,6 +89,10 @@ def time_problem(text: str, now: datetime | None = None) -> str | None:
     except BadTime:
         return (f"{clean(s, 20)!r} is not a time; type e.g. 2026-11-30 14:05 (local time) "
                 "or leave it empty for now")
+    except (ValueError, OverflowError):  # a date at the calendar's ends (year 1, 9999)
+        return f"{clean(s, 20)} cannot be a measurement time; type e.g. 2026-11-30 14:05"
+    if not MIN_YEAR <= t.year:
+        return f"{clean(s, 20)} is before {MIN_YEAR}; type the year in full, e.g. 2026"
     now = now or datetime.now(UTC)
     if t > now + FUTURE_SLACK:
         return f"{clean(s, 20)} is in the future"

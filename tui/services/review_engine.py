@@ -497,9 +497,10 @@ def window_values(store, characteristic: str, factor: str, window: mon.Window,
 def comparison_detail(store, characteristic: str, factor: str, *, as_of: date | None = None,
                       week: str | None = None, alpha: float = 0.05,
                       summary: ComparisonSummary | None = None,
-                      window: str | None = None) -> ComparisonDetail:
+                      window: str | None = None,
+                      reference: str | None = None) -> ComparisonDetail:
     """The full battery (``stats.run_battery``) on the latest window's raw values, plus the
-    trend of each group's mean per window."""
+    trend of each group's mean per window; ``reference`` adds Dunnett's test against it."""
     from lotwatch.stats import run_battery
 
     settings = review_settings(store, window=window)
@@ -519,7 +520,7 @@ def comparison_detail(store, characteristic: str, factor: str, *, as_of: date | 
                           usl=ch.usl, min_shift=ch.min_shift)
     gate, _ = mon.practical_gate(comp, settings)
     battery = run_battery(samples, names, alpha=alpha, resolution=ch.resolution, lsl=ch.lsl,
-                          usl=ch.usl, shift=gate, min_n=settings.min_n)
+                          usl=ch.usl, shift=gate, min_n=settings.min_n, reference=reference)
     gm = tr.grand_means["grand_mean"][-1] if tr.grand_means.height else None
     return ComparisonDetail(ch, factor, latest.label, battery, tr.frame.select(
         "window_end", "level", "n", "mean"), gm, ch.lsl, ch.target, ch.usl, summary,

@@ -2,12 +2,14 @@
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING
+from typing import cast
 
+from lotwatch.tui.app import messages as msg
+from lotwatch.tui.app.screens.base import AppState
 from lotwatch.tui.app.widgets.caution import Caution
 from lotwatch.tui.render.numbers import num, pval
 from lotwatch.tui.render.safe_text import clean
-from lotwatch.tui.services.data import AlertRow
+from lotwatch.tui.services.view_models import AlertRow
 from rich.text import Text
 from textual import on
 from textual.app import ComposeResult
@@ -17,22 +19,11 @@ from textual.screen import ModalScreen
 from textual.validation import Function
 from textual.widgets import Input, Static
 
-if TYPE_CHECKING:
-    from lotwatch.tui.app.application import LotwatchApp
-
 
 class AcknowledgeScreen(ModalScreen[None]):
     """Type a note, Enter records the acknowledgement; the form stays open if it fails."""
 
     BINDINGS = [Binding("escape", "cancel", "Cancel")]
-
-    DEFAULT_CSS = """
-    AcknowledgeScreen { align: center middle; }
-    AcknowledgeScreen Vertical { width: 74; height: auto; border: round $warning;
-        background: $surface; padding: 0 1; }
-    AcknowledgeScreen Input { height: 1; margin: 1 0 0 0; }
-    AcknowledgeScreen #ack-problem { height: auto; }
-    """
 
     def __init__(self, alert: AlertRow) -> None:
         super().__init__()
@@ -40,8 +31,8 @@ class AcknowledgeScreen(ModalScreen[None]):
         self._saving = False
 
     @property
-    def lw(self) -> LotwatchApp:
-        return self.app  # type: ignore[return-value]
+    def state(self) -> AppState:
+        return cast("AppState", self.app)
 
     def compose(self) -> ComposeResult:
         a = self.alert
@@ -52,7 +43,7 @@ class AcknowledgeScreen(ModalScreen[None]):
         with Vertical():
             yield Static(head)
             yield Static(body)
-            yield Static(Text(f"Recorded as acknowledged by {clean(self.lw.user, 24)}."))
+            yield Static(Text(f"Recorded as acknowledged by {clean(self.state.user, 24)}."))
             yield Caution()
             yield Input(placeholder="note: what you checked or did (required)", compact=True,
                         validators=[Function(lambda v: bool(v.strip()),
@@ -69,8 +60,8 @@ class AcknowledgeScreen(ModalScreen[None]):
         event.stop()
         if self._saving:
             return
-        if self.lw.read_only:
-            self.lw.refuse_read_only("acknowledging alerts")
+        if self.state.read_only:
+            self.state.refuse_read_only("acknowledging alerts")
             return
         result = event.input.validate(event.value)
         if result is not None and not result.is_valid:
@@ -78,14 +69,19 @@ class AcknowledgeScreen(ModalScreen[None]):
             return
         self._saving = True
         self.show_problem("recording…")
-        self.lw.acknowledge(self.alert.id, event.value.strip())
+        self.post_message(msg.Acknowledge(self, self.alert.id, event.value.strip()))
 
     def show_problem(self, message: str) -> None:
         self.query_one("#ack-problem", Static).update(Text(clean(message, 300)))
 
-    def save_failed(self, message: str) -> None:
+    def on_write_done(self, message: msg.WriteDone) -> None:
+        message.stop()
+        self.dismiss(None)
+        self.app.post_message(msg.WriteDone(message.kind, message.text))  # the app says it
+
+    def on_write_failed(self, message: msg.WriteFailed) -> None:
         self._saving = False
-        self.show_problem(message)
+        self.show_problem(message.message)
 
     def action_cancel(self) -> None:
         if not self._saving:

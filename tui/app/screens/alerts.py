@@ -2,22 +2,18 @@
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING
-
+from lotwatch.tui.app import messages as msg
+from lotwatch.tui.app.screens.base import LotwatchScreen
 from lotwatch.tui.app.widgets.alert_list import AlertList
 from lotwatch.tui.app.widgets.caution import Caution
 from lotwatch.tui.render.safe_text import clean, literal
-from lotwatch.tui.services.data import AlertRow, AlertsView
+from lotwatch.tui.services.view_models import AlertRow, AlertsView
 from rich.text import Text
 from textual import on
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import VerticalScroll
-from textual.screen import Screen
-from textual.widgets import DataTable, Footer, Input, Static
-
-if TYPE_CHECKING:
-    from lotwatch.tui.app.application import LotwatchApp
+from textual.widgets import DataTable, Input, Static
 
 STATE_FILTERS = ["all", "open", "acknowledged", "cleared"]
 
@@ -42,24 +38,16 @@ def _local(stamp: str) -> str:
         return clean(stamp, 20)
 
 
-class AlertsScreen(Screen[None]):
+class AlertsScreen(LotwatchScreen):
     """Alerts table on top, the highlighted alert's history beneath."""
 
     BINDINGS = [
         Binding("k", "acknowledge", "Ack", tooltip="Acknowledge the alert with a note"),
         Binding("o", "next_state", "State", tooltip="Show all, open, acknowledged, cleared"),
         Binding("slash", "filter", "Filter", key_display="/"),
-        Binding("enter", "drill", "Open", show=False),
+        Binding("enter", "drill", "Open", tooltip="Open the alert's comparison"),
         Binding("escape", "back", "Back"),
     ]
-
-    DEFAULT_CSS = """
-    AlertsScreen #alerts-bar { height: 1; }
-    AlertsScreen #alerts-state { width: auto; padding: 0 1; background: $panel; }
-    AlertsScreen #alert-filter { height: 1; }
-    AlertsScreen AlertList { height: 1fr; }
-    AlertsScreen #history-box { height: 7; border-top: solid $accent; }
-    """
 
     def __init__(self) -> None:
         super().__init__()
@@ -67,11 +55,7 @@ class AlertsScreen(Screen[None]):
         self.view: AlertsView | None = None
         self.shown: list[AlertRow] = []
 
-    @property
-    def lw(self) -> LotwatchApp:
-        return self.app  # type: ignore[return-value]
-
-    def compose(self) -> ComposeResult:
+    def compose_body(self) -> ComposeResult:
         yield Static("", id="alerts-state")
         yield Input(placeholder="/ filter by characteristic, factor or group (Esc: back to list)",
                     compact=True, id="alert-filter")
@@ -79,16 +63,14 @@ class AlertsScreen(Screen[None]):
         yield AlertList(id="all-alerts")
         with VerticalScroll(id="history-box"):
             yield Static("", id="history")
-        yield Footer(compact=True)
 
     def on_mount(self) -> None:
         self.query_one(AlertList).focus()
-        if self.lw.alerts is not None:
-            self.show_alerts(self.lw.alerts)
+        self.watch(self.app, "alerts", self.show_alerts)
         self._show_state()
 
     def on_screen_resume(self) -> None:
-        self.lw.request_alerts()
+        self.post_message(msg.Reload("alerts"))
 
     def _show_state(self) -> None:
         n_open = sum(1 for a in (self.view.alerts if self.view else []) if a.state == "open")
@@ -96,7 +78,9 @@ class AlertsScreen(Screen[None]):
             f"Alerts: showing {self.state_filter} ({len(self.shown)}), {n_open} open. "
             "o state · / filter · k acknowledge", no_wrap=True, overflow="ellipsis"))
 
-    def show_alerts(self, view: AlertsView) -> None:
+    def show_alerts(self, view: AlertsView | None) -> None:
+        if view is None:
+            return
         self.view = view
         self._apply_filter()
 
@@ -153,6 +137,10 @@ class AlertsScreen(Screen[None]):
     def _filter_done(self) -> None:
         self.query_one(AlertList).focus()
 
+    def on_data_table_row_selected(self, event: DataTable.RowSelected) -> None:
+        event.stop()  # Enter on a row opens the alert's comparison
+        self.action_drill()
+
     def action_filter(self) -> None:
         self.query_one("#alert-filter", Input).focus()
 
@@ -169,15 +157,15 @@ class AlertsScreen(Screen[None]):
             self.app.notify(f"Alert #{a.id} is {a.state}; only open alerts are acknowledged.",
                             markup=False)
             return
-        self.lw.open_acknowledge(a.id)
+        self.open_acknowledge(a.id)
 
     def action_drill(self) -> None:
         a = self._current()
         if a is not None:
-            self.lw.drill_into(a.characteristic, a.factor, None)
+            self.post_message(msg.OpenComparison(a.characteristic, a.factor, None))
 
     def action_back(self) -> None:
         if self.focused is self.query_one("#alert-filter", Input):
             self.query_one(AlertList).focus()
         else:
-            self.lw.switch_mode("main")
+            self.app.switch_mode("board")

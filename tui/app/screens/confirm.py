@@ -1,4 +1,4 @@
-"""A yes/no question (y / n, Enter = yes, Escape = no)."""
+"""A yes/no question: only y says yes (Enter alone never confirms); n or Escape says no."""
 
 from __future__ import annotations
 
@@ -10,18 +10,12 @@ from textual.widgets import Static
 
 
 class ConfirmScreen(ModalScreen[bool]):
-    """Ask one question; dismiss with True (y/Enter) or False (n/Escape)."""
+    """Ask one question; dismiss with True (y) or False (n/Escape)."""
 
     BINDINGS = [
-        Binding("y,enter", "answer(True)", "Yes"),
+        Binding("y", "answer(True)", "Yes"),
         Binding("n,escape", "answer(False)", "No"),
     ]
-
-    DEFAULT_CSS = """
-    ConfirmScreen { align: center middle; }
-    ConfirmScreen Vertical { width: 64; height: auto; border: round $warning;
-        background: $surface; padding: 0 1; }
-    """
 
     def __init__(self, question: str) -> None:
         super().__init__()
@@ -30,7 +24,7 @@ class ConfirmScreen(ModalScreen[bool]):
     def compose(self) -> ComposeResult:
         with Vertical():
             yield Static(self.question, markup=False)
-            yield Static("y / Enter: yes    n / Esc: no", markup=False)
+            yield Static("y: yes    n / Esc: no", markup=False)
 
     def action_answer(self, yes: bool) -> None:
         self.dismiss(yes)

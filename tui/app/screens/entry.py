@@ -6,13 +6,15 @@ saves nothing and says why in words; when a save fails the form stays open with 
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING
+from typing import cast
 
+from lotwatch.tui.app import messages as msg
 from lotwatch.tui.app.entry_checks import TimeCheck, ValuesCheck, one_line, required, split_values
+from lotwatch.tui.app.screens.base import AppState
 from lotwatch.tui.app.screens.confirm import ConfirmScreen
 from lotwatch.tui.app.widgets.tag_input import TagInput
 from lotwatch.tui.render.safe_text import clean, literal
-from lotwatch.tui.services.data import CharacteristicInfo, EntryDraft, Overview
+from lotwatch.tui.services.view_models import CharacteristicInfo, EntryDraft, Overview
 from rich.text import Text
 from textual import on
 from textual.app import ComposeResult
@@ -21,9 +23,6 @@ from textual.containers import Grid, Vertical
 from textual.css.query import NoMatches
 from textual.screen import ModalScreen
 from textual.widgets import Input, Label, Select, Static
-
-if TYPE_CHECKING:
-    from lotwatch.tui.app.application import LotwatchApp
 
 
 class LotEntryScreen(ModalScreen[None]):
@@ -34,21 +33,10 @@ class LotEntryScreen(ModalScreen[None]):
         Binding("enter", "save", "Save", show=True, tooltip="Save the lot (one transaction)"),
     ]
 
-    DEFAULT_CSS = """
-    LotEntryScreen { align: center middle; }
-    LotEntryScreen #form { width: 78; height: auto; max-height: 24; border: round $accent;
-        background: $surface; padding: 0 1; }
-    LotEntryScreen Grid { grid-size: 2; grid-columns: 14 1fr; grid-rows: 1; height: auto;
-        grid-gutter: 0 1; }
-    LotEntryScreen Label { width: 14; }
-    LotEntryScreen Input { height: 1; }
-    LotEntryScreen #info { height: auto; color: $text-muted; }
-    LotEntryScreen #problems { height: auto; min-height: 1; }
-    LotEntryScreen #keys { height: 1; color: $text-muted; }
-    """
-
-    def __init__(self, overview: Overview, characteristic: str | None) -> None:
+    def __init__(self, overview: Overview, characteristic: str | None,
+                 remembered: dict[str, str] | None = None) -> None:
         super().__init__()
+        self.remembered = dict(remembered or {})
         self.overview = overview
         self._chars = {c.name: c for c in overview.characteristics}
         self._initial = characteristic if characteristic in self._chars else (
@@ -57,8 +45,8 @@ class LotEntryScreen(ModalScreen[None]):
         self._tag_inputs: dict[str, TagInput] = {}
 
     @property
-    def lw(self) -> LotwatchApp:
-        return self.app  # type: ignore[return-value]
+    def state(self) -> AppState:
+        return cast("AppState", self.app)
 
     # --- layout ----------------------------------------------------------------------------
 
@@ -80,7 +68,8 @@ class LotEntryScreen(ModalScreen[None]):
                     hint = ("known: " + ", ".join(clean(v, 12) for v in known[:6])
                             + (" …" if len(known) > 6 else "")) if known else "type a value"
                     inp = TagInput(known, placeholder=hint, validators=validators,
-                                   compact=True, id=f"tag-{i}")
+                                   compact=True, id=f"tag-{i}",
+                                   value=self.remembered.get(f.name, ""))
                     inp.tooltip = Text(f"{clean(f.name, 20)}: → accepts the suggestion, "
                                        "↑/↓ step through known values")
                     self._tag_inputs[f.name] = inp
@@ -106,7 +95,7 @@ class LotEntryScreen(ModalScreen[None]):
 
     def on_mount(self) -> None:
         self._show_info()
-        if self.lw.read_only:
+        if self.state.read_only:
             self._show_problems(["this store is open read-only; nothing can be saved"])
         first = self.query_one("#values", Input)
         for f in self.overview.factors:
@@ -171,8 +160,7 @@ class LotEntryScreen(ModalScreen[None]):
         time = self.query_one("#time", Input).value.strip()
         note = self.query_one("#note", Input).value.strip() or None
         return EntryDraft(
-            characteristic=ch.name if ch else "",
-            values=split_values(self.query_one("#values", Input).value),
+            values={ch.name if ch else "": split_values(self.query_one("#values", Input).value)},
             tags=tags, lot=lot,
             measured_at=None if not time or time.lower() == "now" else time,
             note=note,
@@ -219,8 +207,8 @@ class LotEntryScreen(ModalScreen[None]):
     def action_save(self) -> None:
         if self._saving:
             return
-        if self.lw.read_only:
-            self.lw.refuse_read_only("logging lots")
+        if self.state.read_only:
+            self.state.refuse_read_only("logging lots")
             return
         problems = self.problems()
         if problems:
@@ -245,9 +233,15 @@ class LotEntryScreen(ModalScreen[None]):
     def _submit(self, draft: EntryDraft) -> None:
         self._saving = True
         self._show_problems(["saving…"], error=False)
-        self.lw.save_draft(draft)
+        self.post_message(msg.SaveLot(self, draft))
 
-    def save_failed(self, message: str) -> None:
-        """The app reports a failed save: keep everything typed, say what happened."""
+    def on_lot_logged(self, message: msg.LotLogged) -> None:
+        """Stored: close the form; the app says what was stored and remembers the tags."""
+        message.stop()
+        self.dismiss(None)
+        self.app.post_message(msg.LotLogged(message.logged))
+
+    def on_write_failed(self, message: msg.WriteFailed) -> None:
+        """The save failed: keep everything typed, say what happened."""
         self._saving = False
-        self._show_problems([message])
+        self._show_problems([message.message])

@@ -78,18 +78,14 @@ class HelpScreen(ModalScreen[None]):
 
     BINDINGS = [Binding("escape,q,question_mark", "close", "Close help")]
 
-    DEFAULT_CSS = """
-    HelpScreen { align: center middle; }
-    HelpScreen VerticalScroll { width: 78; height: 22; border: round $accent;
-        background: $surface; padding: 0 1; }
-    """
-
     def compose(self) -> ComposeResult:
-        from lotwatch.tui.app.application import LotwatchApp
         from lotwatch.tui.app.screens.acknowledge import AcknowledgeScreen
         from lotwatch.tui.app.screens.alerts import AlertsScreen
+        from lotwatch.tui.app.screens.base import LotwatchScreen
+        from lotwatch.tui.app.screens.board import BoardScreen
+        from lotwatch.tui.app.screens.comparison import ComparisonScreen
         from lotwatch.tui.app.screens.entry import LotEntryScreen
-        from lotwatch.tui.app.screens.main import MainScreen
+        from lotwatch.tui.app.screens.lots import LotsScreen
         from lotwatch.tui.app.screens.review import ReviewScreen
         from lotwatch.tui.app.widgets.tag_input import TagInput
 
@@ -97,8 +93,10 @@ class HelpScreen(ModalScreen[None]):
         text.append("lotwatch help (↑/↓ scroll, Esc close)\n\n", style="bold")
         text.append(CAUTION + "\n\n", style="bold")
         for title, bindings in [
-            ("Everywhere", LotwatchApp.BINDINGS),
-            ("Main view", MainScreen.BINDINGS),
+            ("Everywhere", list(type(self.app).BINDINGS) + list(LotwatchScreen.BINDINGS)),
+            ("Board (first screen)", BoardScreen.BINDINGS),
+            ("Comparison view", ComparisonScreen.BINDINGS),
+            ("Lots behind a group", LotsScreen.BINDINGS),
             ("Weekly review", ReviewScreen.BINDINGS),
             ("Alerts", AlertsScreen.BINDINGS),
             ("Lot entry form", LotEntryScreen.BINDINGS),

@@ -5,24 +5,21 @@ Enter drills into the main view for the highlighted comparison; k acknowledges i
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING
-
+from lotwatch.tui.app import messages as msg
+from lotwatch.tui.app.screens.base import LotwatchScreen
+from lotwatch.tui.app.state import step_week
 from lotwatch.tui.app.widgets.caution import Caution
 from lotwatch.tui.app.widgets.compact import fill
 from lotwatch.tui.render.numbers import num, pval
 from lotwatch.tui.render.safe_text import clean
-from lotwatch.tui.services.data import ComparisonRow, ReviewView
+from lotwatch.tui.services.view_models import ComparisonRow, ReviewView
 from rich.text import Text
 from textual.app import ComposeResult
 from textual.binding import Binding
-from textual.screen import Screen
-from textual.widgets import DataTable, Footer, Static
-
-if TYPE_CHECKING:
-    from lotwatch.tui.app.application import LotwatchApp
+from textual.widgets import DataTable, Static
 
 
-class ReviewScreen(Screen[None]):
+class ReviewScreen(LotwatchScreen):
     """One week's family of comparisons with false-discovery control."""
 
     BINDINGS = [
@@ -35,35 +32,26 @@ class ReviewScreen(Screen[None]):
         Binding("escape", "back", "Back"),
     ]
 
-    DEFAULT_CSS = """
-    ReviewScreen #review-head { height: auto; background: $panel; padding: 0 1; }
-    ReviewScreen DataTable { height: 1fr; }
-    """
-
     def __init__(self) -> None:
         super().__init__()
         self.rows: list[ComparisonRow] = []
 
-    @property
-    def lw(self) -> LotwatchApp:
-        return self.app  # type: ignore[return-value]
-
-    def compose(self) -> ComposeResult:
+    def compose_body(self) -> ComposeResult:
         yield Static("Weekly review: computing…", id="review-head")
         yield Caution()
         yield DataTable(id="review-table", cursor_type="row", zebra_stripes=True)
-        yield Footer(compact=True)
 
     def on_mount(self) -> None:
-        t = self.query_one(DataTable)
-        t.focus()
-        if self.lw.review is not None:
-            self.show_review(self.lw.review)
+        self.query_one(DataTable).focus()
+        self.watch(self.app, "review", self.show_review)
+        self.watch(self.app, "review_problem", self.show_problem, init=False)
 
     def on_screen_resume(self) -> None:
-        self.lw.request_review()
+        self.post_message(msg.Reload("review"))
 
-    def show_review(self, review: ReviewView) -> None:
+    def show_review(self, review: ReviewView | None) -> None:
+        if review is None:
+            return
         head = Text(no_wrap=False)
         head.append(f"Weekly review {clean(review.window_label, 44)}", style="bold")
         head.append(f": {review.family_size} comparisons, q = {review.fdr_method.upper()} "
@@ -89,6 +77,8 @@ class ReviewScreen(Screen[None]):
             t.move_cursor(row=min(keep, len(self.rows) - 1))
 
     def show_problem(self, message: str) -> None:
+        if not message:
+            return
         self.query_one("#review-head", Static).update(
             Text("Weekly review not computed: ", style="bold") + Text(clean(message, 300)))
 
@@ -105,7 +95,8 @@ class ReviewScreen(Screen[None]):
     def action_drill(self) -> None:
         row = self._current()
         if row is not None:
-            self.lw.drill_into(row.characteristic, row.factor, self.lw.review_week)
+            self.post_message(msg.OpenComparison(row.characteristic, row.factor,
+                                                 self.state.review_week))
 
     def action_acknowledge(self) -> None:
         row = self._current()
@@ -114,13 +105,13 @@ class ReviewScreen(Screen[None]):
         if row.alert_id is None or row.alert_state not in ("open", "acknowledged"):
             self.app.notify("This comparison has no open alert to acknowledge.", markup=False)
             return
-        self.lw.open_acknowledge(row.alert_id)
+        self.open_acknowledge(row.alert_id)
 
     def action_record(self) -> None:
-        self.lw.record_review()
+        self.post_message(msg.RecordReview())
 
     def action_week(self, step: int) -> None:
-        self.lw.shift_review_week(step)
+        self.post_message(msg.ShowReviewWeek(step_week(self.state.review_week, step)))
 
     def action_back(self) -> None:
-        self.lw.switch_mode("main")
+        self.app.switch_mode("board")

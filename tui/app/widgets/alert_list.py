@@ -5,7 +5,7 @@ from __future__ import annotations
 from lotwatch.tui.app.widgets.compact import fill
 from lotwatch.tui.render.numbers import num, pval
 from lotwatch.tui.render.safe_text import clean
-from lotwatch.tui.services.data import AlertRow
+from lotwatch.tui.services.view_models import AlertRow
 from textual.widgets import DataTable
 
 HEADERS = ["#", "state", "characteristic", "factor", "groups", "shift", "q", "opened in"]
@@ -14,10 +14,6 @@ RIGHT = [True, False, False, False, False, True, True, False]
 
 class AlertList(DataTable):
     """Alerts, one row each; the row key is the alert id as text."""
-
-    DEFAULT_CSS = """
-    AlertList { height: auto; max-height: 1fr; }
-    """
 
     def on_mount(self) -> None:
         self.cursor_type = "row"

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from lotwatch.tui.render.numbers import num, pval
 from lotwatch.tui.render.safe_text import clean
-from lotwatch.tui.services.data import DetailView
+from lotwatch.tui.services.view_models import DetailView
 from rich.console import Group, RenderableType
 from rich.table import Table
 from rich.text import Text
@@ -25,17 +25,20 @@ def anova_table(detail: DetailView) -> Table:
     return t
 
 
+def decision_text(detail: DetailView) -> Text:
+    """The ANOVA's decision sentence, with the critical F when the sentence lacks it."""
+    a = detail.battery.anova
+    decision = Text("Decision: ", style="bold") + Text(clean(a.decision))
+    if a.f_crit is not None and "F crit" not in a.decision:
+        decision.append(f" (F crit at alpha {a.alpha:g} = {num(a.f_crit)})")
+    return decision
+
+
 def companion_lines(detail: DetailView) -> list[Text]:
     """Critical F and decision, Welch, Kruskal-Wallis, checks, recommendation, effect, power."""
     b = detail.battery
-    a = b.anova
     unit = clean(detail.characteristic.unit, 12)
-    lines: list[Text] = []
-    alpha = f"{a.alpha:g}"
-    decision = Text("Decision: ", style="bold") + Text(clean(a.decision))
-    if a.f_crit is not None and "F crit" not in a.decision:
-        decision.append(f" (F crit at alpha {alpha} = {num(a.f_crit)})")
-    lines.append(decision)
+    lines: list[Text] = [decision_text(detail)]
     w = b.welch
     if w.f is not None:
         lines.append(Text(f"Welch: F = {num(w.f)} on {num(w.df_between, 3)}, "
@@ -87,10 +90,6 @@ def _any_significant(detail: DetailView) -> bool:
 
 class AnovaPanel(Static):
     """ANOVA table plus companion lines for the shown comparison."""
-
-    DEFAULT_CSS = """
-    AnovaPanel { height: auto; }
-    """
 
     def show(self, detail: DetailView) -> None:
         b = detail.battery

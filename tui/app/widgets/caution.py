@@ -13,9 +13,5 @@ CAUTION = (
 class Caution(Static):
     """One or two lines of caution, never parsed as markup."""
 
-    DEFAULT_CSS = """
-    Caution { height: auto; color: $text-warning; padding: 0 1; }
-    """
-
     def __init__(self, **kwargs) -> None:
         super().__init__(CAUTION, markup=False, **kwargs)

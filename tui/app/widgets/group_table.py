@@ -5,7 +5,7 @@ from __future__ import annotations
 from lotwatch.tui.app.widgets.compact import fill
 from lotwatch.tui.render.numbers import MISSING, decimals_of, fixed, num
 from lotwatch.tui.render.safe_text import clean
-from lotwatch.tui.services.data import DetailView
+from lotwatch.tui.services.view_models import DetailView
 from textual.widgets import DataTable
 
 ANOM_MARK = {"above": "high", "below": "low", "within": "–"}
@@ -14,10 +14,6 @@ GROUP_WIDTH = 10
 
 class GroupTable(DataTable):
     """One row per group of the latest window (excluded groups are listed on the Tests tab)."""
-
-    DEFAULT_CSS = """
-    GroupTable { height: auto; max-height: 1fr; }
-    """
 
     def on_mount(self) -> None:
         self.cursor_type = "row"

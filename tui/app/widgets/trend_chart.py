@@ -1,44 +1,51 @@
-"""Trend of each group's mean per window, with the grand mean and the specification limits."""
+"""Run chart of each group's mean per window, the flagged group drawn distinctly.
+
+Readable without colour (NO_COLOR): the flagged group is drawn with "#" and named in the title,
+the other groups with a muted "·"; LSL, target and USL are always on the scale (the axis widens to
+hold them, never "off the chart"); the y labels are written at the characteristic's resolution.
+"""
 
 from __future__ import annotations
 
+from lotwatch.tui.render.numbers import decimals_of
 from lotwatch.tui.render.safe_text import clean
-from lotwatch.tui.services.data import DetailView
+from lotwatch.tui.services.view_models import DetailView
 from textual_plotext import PlotextPlot
 
-# Distinct markers keep the groups apart without colour (NO_COLOR, monochrome terminals).
-MARKERS = ["o", "x", "+", "*", "#", "@", "%", "&", "$", "~"]
+FLAGGED_MARKER = "#"
+OTHER_MARKER = "·"
 GRAND_MARKER = "-"
-LIMIT_MARKER = "="
-# A limit further than this many data spans from the data would flatten the trend: it is named
-# under the chart instead of drawn.
-LIMIT_REACH = 2.0
+LIMIT_MARKERS = {"LSL": "=", "target": ":", "USL": "="}
+Y_TICKS = 5
+
+
+def y_ticks(lo: float, hi: float, decimals: int) -> tuple[list[float], list[str]]:
+    """Evenly spaced ticks over [lo, hi] labelled with ``decimals`` decimals."""
+    if hi <= lo:
+        hi = lo + 10 ** -max(decimals, 0)
+    step = (hi - lo) / (Y_TICKS - 1)
+    ticks = [lo + i * step for i in range(Y_TICKS)]
+    return ticks, [f"{t:.{decimals}f}" for t in ticks]
 
 
 class TrendChart(PlotextPlot):
-    """A plotext chart redrawn only when a new comparison arrives (rendering is costly)."""
+    """Redrawn only when a new comparison arrives (rendering is costly)."""
 
-    DEFAULT_CSS = """
-    TrendChart { height: 1fr; min-height: 10; }
-    """
-
-    def __init__(self, *, pending: DetailView | None = None, **kwargs) -> None:
+    def __init__(self, *, pending: tuple[DetailView, list[str]] | None = None, **kwargs) -> None:
         super().__init__(**kwargs)
         self._pending = pending
 
     def on_mount(self) -> None:
         if self._pending is not None:
-            self.show(self._pending)
+            self.show(*self._pending)
             self._pending = None
 
-    def show(self, detail: DetailView) -> None:
+    def show(self, detail: DetailView, flagged: list[str]) -> None:
         plt = self.plt
         plt.clear_data()
         plt.clear_figure()
         plt.date_form("Y-m-d")
         unit = clean(detail.characteristic.unit, 10)
-        plt.title(f"{clean(detail.characteristic.name, 24)} by {clean(detail.factor, 12)}: "
-                  f"group mean per window ({unit})")
         levels: dict[str, list[tuple[str, float]]] = {}
         for p in detail.trend:
             levels.setdefault(p.level, []).append((p.window_end, p.mean))
@@ -47,27 +54,34 @@ class TrendChart(PlotextPlot):
             plt.title("no windows with data yet")
             self.refresh()
             return
-        for i, (level, pts) in enumerate(sorted(levels.items())):
+        marked = [g for g in flagged if g in levels]
+        title = f"mean per window ({unit}); "
+        title += (f"{FLAGGED_MARKER} = {', '.join(clean(g, 12) for g in marked)} (flagged), "
+                  f"{OTHER_MARKER} = others" if marked else f"{OTHER_MARKER} = groups")
+        plt.title(title)
+        muted_label = "other groups"
+        for level, pts in sorted(levels.items()):
             pts.sort()
-            plt.plot([d for d, _ in pts], [m for _, m in pts],
-                     marker=MARKERS[i % len(MARKERS)], label=clean(level, 12))
-        means = [p.mean for p in detail.trend]
-        lo, hi = min(means), max(means)
-        span = max(hi - lo, 1e-12)
-        caption: list[str] = []
+            xs, ys = [d for d, _ in pts], [m for _, m in pts]
+            if level in marked:
+                plt.plot(xs, ys, marker=FLAGGED_MARKER, label=clean(level, 12), color="red+")
+            else:
+                plt.plot(xs, ys, marker=OTHER_MARKER, color="gray", label=muted_label)
+                muted_label = ""
+        values = [p.mean for p in detail.trend]
         if detail.grand_means:
             plt.plot([d for d, _ in detail.grand_means], [m for _, m in detail.grand_means],
-                     marker=GRAND_MARKER, label="grand mean")
-        elif detail.grand_mean is not None:
-            plt.plot(dates, [detail.grand_mean] * len(dates), marker=GRAND_MARKER,
-                     label="grand mean")
-        for name, limit in (("LSL", detail.lsl), ("USL", detail.usl)):
-            if limit is None:
-                continue
-            if lo - LIMIT_REACH * span <= limit <= hi + LIMIT_REACH * span:
-                plt.plot(dates, [limit] * len(dates), marker=LIMIT_MARKER, label=name)
-            else:
-                caption.append(f"{name} {limit:g} off the chart")
-        if caption:
-            plt.xlabel("; ".join(caption))
+                     marker=GRAND_MARKER, label="grand mean", color="blue")
+        for name, limit in (("LSL", detail.lsl), ("target", detail.target),
+                            ("USL", detail.usl)):
+            if limit is not None:
+                plt.plot(dates, [limit] * len(dates), marker=LIMIT_MARKERS[name], label=name,
+                         color="orange")
+                values.append(limit)
+        lo, hi = min(values), max(values)
+        pad = (hi - lo) * 0.05 or 1.0
+        plt.ylim(lo - pad, hi + pad)
+        ticks, labels = y_ticks(lo - pad, hi + pad,
+                                max(decimals_of(detail.characteristic.resolution) - 1, 0))
+        plt.yticks(ticks, labels)
         self.refresh()

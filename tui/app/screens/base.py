@@ -1,0 +1,118 @@
+"""What every full screen of the app shares: typed access to the app's state, the keys that work
+everywhere except in forms, the status line and the "terminal too small" notice."""
+
+from __future__ import annotations
+
+from typing import TYPE_CHECKING, Protocol, cast
+
+from lotwatch.tui.app import messages as msg
+from rich.text import Text
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.events import Resize
+from textual.screen import Screen
+from textual.widgets import Footer, Static
+
+if TYPE_CHECKING:
+    from lotwatch.tui.app.state import ViewState
+    from lotwatch.tui.services.view_models import AlertsView, DetailView, Overview, ReviewView
+
+MIN_WIDTH, MIN_HEIGHT = 80, 24
+
+
+class AppState(Protocol):
+    """What screens read from the app (its reactive attributes); they never assign them."""
+
+    overview: Overview | None
+    detail: DetailView | None
+    detail_problem: str
+    review: ReviewView | None
+    review_problem: str
+    alerts: AlertsView | None
+    view: ViewState
+    review_week: str | None
+    computing: bool
+    store_note: str
+    last_tags: dict[str, str]
+    read_only: bool
+    user: str
+
+    def window_text(self) -> str: ...
+    def window_kind(self) -> str: ...
+    def refuse_read_only(self, what: str) -> None: ...
+
+
+class TooSmall(Static):
+    """Shown instead of the screen's content below 80×24 (cut p-values mislead)."""
+
+
+class LotwatchScreen(Screen[None]):
+    """A full screen: ``compose_body`` gives its content; n and ? work here."""
+
+    BINDINGS = [
+        Binding("n", "new_lot", "Log lot", tooltip="Open the lot entry form"),
+        Binding("question_mark", "help", "Help", key_display="?",
+                tooltip="Keys and what every number means"),
+    ]
+
+    @property
+    def state(self) -> AppState:
+        return cast("AppState", self.app)
+
+    def compose(self) -> ComposeResult:
+        yield TooSmall(id="too-small")
+        yield from self.compose_body()
+        yield Footer(compact=True)
+
+    def compose_body(self) -> ComposeResult:
+        yield from ()
+
+    def on_resize(self, event: Resize) -> None:
+        w, h = event.size
+        small = w < MIN_WIDTH or h < MIN_HEIGHT
+        self.set_class(small, "-too-small")
+        self.set_class(w >= 120, "-wide")
+        if small:
+            self.query_one(TooSmall).update(Text(
+                f"Terminal too small: {w}×{h}. lotwatch needs at least {MIN_WIDTH}×{MIN_HEIGHT} "
+                "to show its tables without cutting numbers. Enlarge the window (q quits).",
+                justify="center"))
+
+    def action_new_lot(self) -> None:
+        from lotwatch.tui.app.screens.entry import LotEntryScreen
+
+        st = self.state
+        if st.read_only:
+            st.refuse_read_only("logging lots")
+            return
+        if st.overview is None:
+            self.notify("Still reading the store; try again in a moment.", markup=False)
+            return
+        if not st.overview.characteristics:
+            self.notify("No characteristics yet: add one with lotwatch characteristic add.",
+                        markup=False, severity="warning")
+            return
+        self.app.push_screen(LotEntryScreen(st.overview, st.view.characteristic,
+                                            st.last_tags))
+
+    def open_acknowledge(self, alert_id: int) -> None:
+        """The acknowledge form for an alert the app has loaded."""
+        from lotwatch.tui.app.screens.acknowledge import AcknowledgeScreen
+
+        st = self.state
+        if st.read_only:
+            st.refuse_read_only("acknowledging alerts")
+            return
+        pools = [st.alerts.alerts if st.alerts else [],
+                 st.overview.open_alerts if st.overview else []]
+        alert = next((a for pool in pools for a in pool if a.id == alert_id), None)
+        if alert is None:
+            self.notify(f"Alert #{alert_id} is not loaded yet; try again.", markup=False)
+            self.post_message(msg.Reload("alerts"))
+            return
+        self.app.push_screen(AcknowledgeScreen(alert))
+
+    def action_help(self) -> None:
+        from lotwatch.tui.app.screens.help import HelpScreen
+
+        self.app.push_screen(HelpScreen())

@@ -1,0 +1,214 @@
+"""The comparison view: one characteristic × factor with its group table, ANOVA table and
+decision, and a chart, together at 80×24 (side by side from 120 columns); tabs hold what does
+not fit: the pairwise table of the recommended post-hoc test, Dunnett against a chosen
+reference, the spread view and the companion tests. The screen shows only computed results.
+"""
+
+from __future__ import annotations
+
+from lotwatch.tui.app import messages as msg
+from lotwatch.tui.app.screens.base import LotwatchScreen
+from lotwatch.tui.app.widgets.anova_panel import AnovaPanel, anova_table, decision_text
+from lotwatch.tui.app.widgets.group_table import GroupTable
+from lotwatch.tui.app.widgets.posthoc_tables import DunnettTable, PairwiseTable, SpreadTable
+from lotwatch.tui.app.widgets.status_line import StatusLine
+from lotwatch.tui.render.safe_text import clean
+from lotwatch.tui.services.view_models import DetailView
+from rich.console import Group
+from rich.text import Text
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import Container, Vertical, VerticalScroll
+from textual.widgets import DataTable, Static, TabbedContent, TabPane
+
+TABS = ["chart", "pairs", "dunnett", "spread", "tests"]
+
+
+class ComparisonScreen(LotwatchScreen):
+    """One comparison; keyboard only."""
+
+    BINDINGS = [
+        Binding("f", "factor(1)", "Factor", tooltip="Group by the next factor"),
+        Binding("F", "factor(-1)", "Factor back", show=False),
+        Binding("w", "next_window", "Window", tooltip="Next window kind"),
+        Binding("s", "next_alpha", "Alpha", tooltip="Next significance level"),
+        Binding("g", "reference", "Reference", show=False,
+                tooltip="Dunnett: the next group as reference"),
+        Binding("l", "lots", "Lots", tooltip="The lots behind the highlighted group"),
+        Binding("left_square_bracket", "week(-1)", "Earlier week", show=False,
+                key_display="["),
+        Binding("right_square_bracket", "week(1)", "Later week", show=False, key_display="]"),
+        Binding("pagedown", "page(1)", "Scroll tab down", show=False, priority=True),
+        Binding("pageup", "page(-1)", "Scroll tab up", show=False, priority=True),
+        Binding("1", "tab('chart')", "Chart", show=False),
+        Binding("2", "tab('pairs')", "Pairwise", show=False),
+        Binding("3", "tab('dunnett')", "Dunnett", show=False),
+        Binding("4", "tab('spread')", "Spread", show=False),
+        Binding("5", "tab('tests')", "Tests", show=False),
+        Binding("escape", "back", "Board", show=False, tooltip="Back to the board"),
+    ]
+
+    def compose_body(self) -> ComposeResult:
+        yield StatusLine(id="status")
+        with Container(id="cmp-body"):
+            with Vertical(id="cmp-main"):
+                yield GroupTable(id="group-table")
+                yield Static("", id="cmp-anova")
+            with TabbedContent(id="tabs", initial="chart"):
+                with TabPane("1 Chart", id="chart"):
+                    # The chart (plotext) is mounted with the first result, keeping its
+                    # import off the first paint.
+                    yield Static("The chart appears once the comparison is computed.",
+                                 id="chart-wait")
+                with TabPane("2 Pairs", id="pairs"):
+                    yield Static("", id="pairs-title", classes="tab-title")
+                    yield PairwiseTable(id="pairs-table")
+                with TabPane("3 Dunnett", id="dunnett"):
+                    yield Static("", id="dunnett-title", classes="tab-title")
+                    yield DunnettTable(id="dunnett-table")
+                with TabPane("4 Spread", id="spread"):
+                    yield Static("", id="spread-title", classes="tab-title")
+                    yield SpreadTable(id="spread-table")
+                with TabPane("5 Tests", id="tests"):
+                    with VerticalScroll(id="tests-scroll"):
+                        yield AnovaPanel("", id="anova")
+
+    def on_mount(self) -> None:
+        self.watch(self.app, "detail", self._show_detail)
+        self.watch(self.app, "detail_problem", self._show_problem, init=False)
+        self.query_one(GroupTable).focus()
+
+    # --- showing results -------------------------------------------------------------------
+
+    def _flagged(self, detail: DetailView) -> list[str]:
+        ov = self.state.overview
+        if ov is None:
+            return []
+        for r in ov.board:
+            if (r.characteristic, r.factor) == (detail.characteristic.name, detail.factor):
+                return [g.strip() for g in (r.group or "").split(",") if g.strip()]
+        return []
+
+    def _show_detail(self, detail: DetailView | None) -> None:
+        if detail is None:
+            return
+        changed = getattr(self, "_shown", None) != (detail.characteristic.name, detail.factor)
+        self._shown = (detail.characteristic.name, detail.factor)
+        self.query_one(GroupTable).show(detail)
+        b = detail.battery
+        parts: list = []
+        if len(b.groups) < 2:
+            parts.append(Text(
+                f"Not enough data in {clean(detail.window_label, 40)}: {len(b.groups)} group(s) "
+                "with at least the minimum lots. Log lots with n, choose another window with "
+                "w, or another factor with f."))
+        else:
+            if b.anova.df_within > 0:
+                parts.append(anova_table(detail))
+            parts.append(decision_text(detail))
+        self.query_one("#cmp-anova", Static).update(Group(*parts))
+        self.query_one(AnovaPanel).show(detail)
+        self.query_one("#pairs-title", Static).update(
+            Text(self.query_one(PairwiseTable).show(detail)))
+        self.query_one("#dunnett-title", Static).update(
+            Text(self.query_one(DunnettTable).show(detail)))
+        self.query_one("#spread-title", Static).update(
+            Text(self.query_one(SpreadTable).show(detail)))
+        if changed:
+            self.query_one("#tests-scroll", VerticalScroll).scroll_home(animate=False)
+        self._show_chart(detail)
+
+    def _show_chart(self, detail: DetailView) -> None:
+        from lotwatch.tui.app.widgets.trend_chart import TrendChart
+
+        flagged = self._flagged(detail)
+        charts = self.query(TrendChart)
+        if charts:
+            charts.first().show(detail, flagged)
+            return
+        self.query_one("#chart-wait", Static).display = False
+        self.query_one("#chart", TabPane).mount(
+            TrendChart(id="trend-chart", pending=(detail, flagged)))
+
+    def _show_problem(self, message: str) -> None:
+        if message:
+            self.query_one(AnovaPanel).show_message(message)
+            self.query_one("#cmp-anova", Static).update(Text(clean(message, 300)))
+
+    # --- keys ------------------------------------------------------------------------------
+
+    def _choose(self, **changes: object) -> None:
+        self.post_message(msg.ChooseView(self.state.view.but(**changes)))
+
+    def action_factor(self, step: int) -> None:
+        ov = self.state.overview
+        if ov is None or not ov.factors:
+            return
+        names = [f.name for f in ov.factors]
+        v = self.state.view
+        i = names.index(v.factor) if v.factor in names else -step
+        self._choose(factor=names[(i + step) % len(names)])
+
+    def action_next_alpha(self) -> None:
+        view = self.state.view.next_alpha()
+        self.notify(f"Significance level alpha = {view.alpha:g}", markup=False, timeout=2)
+        self.post_message(msg.ChooseView(view))
+
+    def action_next_window(self) -> None:
+        from lotwatch.tui.app.state import WINDOW_NAMES
+
+        view = self.state.view.next_window(self.state.window_kind())
+        self.notify(f"Window: {WINDOW_NAMES[view.window or 'trailing']}. [ and ] move a week "
+                    "back and forth.", markup=False, timeout=3)
+        self.post_message(msg.ChooseView(view))
+
+    def action_week(self, step: int) -> None:
+        self.post_message(msg.ChooseView(self.state.view.shifted_week(step)))
+
+    def action_reference(self) -> None:
+        d = self.state.detail
+        if d is None or not d.battery.groups:
+            return
+        names = [g.name for g in d.battery.groups]
+        ref = self.state.view.reference
+        nxt = names[(names.index(ref) + 1) % len(names)] if ref in names else names[0]
+        self._choose(reference=nxt)
+        self.query_one(TabbedContent).active = "dunnett"
+
+    def action_lots(self) -> None:
+        from lotwatch.tui.app.screens.lots import LotsScreen
+        from lotwatch.tui.services.view_models import LotsRequest
+
+        d = self.state.detail
+        table = self.query_one(GroupTable)
+        if d is None or table.row_count == 0:
+            return
+        key = table.coordinate_to_cell_key(table.cursor_coordinate).row_key.value
+        if key is None:
+            return
+        v = self.state.view
+        self.app.push_screen(LotsScreen(LotsRequest(d.characteristic.name, d.factor, key,
+                                                    week=v.week, window=v.window)))
+
+    def on_data_table_row_selected(self, event: DataTable.RowSelected) -> None:
+        if event.data_table.id == "group-table":
+            event.stop()
+            self.action_lots()
+
+    def action_page(self, step: int) -> None:
+        """Scroll the shown tab a page, whatever has focus."""
+        tabs = self.query_one(TabbedContent)
+        pane = self.query_one(f"#{tabs.active}", TabPane)
+        for widget in pane.query("VerticalScroll, DataTable"):
+            if widget.max_scroll_y > 0:
+                if step > 0:
+                    widget.scroll_page_down()
+                else:
+                    widget.scroll_page_up()
+                return
+
+    def action_tab(self, tab: str) -> None:
+        self.query_one(TabbedContent).active = tab
+
+    def action_back(self) -> None:
+        self.app.switch_mode("board")

@@ -1,0 +1,81 @@
+"""What the app shows, as plain values: the chosen comparison and window, and ISO-week steps.
+
+The app holds a :class:`ViewState` in a reactive attribute; screens read it and post a
+:class:`~lotwatch.tui.app.messages.ChooseView` with a changed copy, never assign it themselves.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, replace
+from datetime import UTC, date, datetime, timedelta
+
+ALPHAS = (0.05, 0.01, 0.10)
+WINDOW_NAMES = {"trailing": "trailing days", "last_n": "last lots per group",
+                "week": "calendar week"}
+
+
+@dataclass(frozen=True)
+class ViewState:
+    """One characteristic × factor in one window at one alpha (and Dunnett's reference)."""
+
+    characteristic: str | None = None
+    factor: str | None = None
+    week: str | None = None  # ISO week whose Sunday ends the windows; None = up to today
+    alpha: float = 0.05
+    window: str | None = None  # trailing | last_n | week; None = the store's review setting
+    reference: str | None = None
+
+    def but(self, **changes: object) -> ViewState:
+        """A copy with ``changes`` (choosing another comparison forgets the reference)."""
+        if ("characteristic" in changes or "factor" in changes) and "reference" not in changes:
+            changes["reference"] = None
+        return replace(self, **changes)  # type: ignore[arg-type]
+
+    def next_alpha(self) -> ViewState:
+        i = ALPHAS.index(self.alpha) if self.alpha in ALPHAS else -1
+        return self.but(alpha=ALPHAS[(i + 1) % len(ALPHAS)])
+
+    def next_window(self, current_kind: str) -> ViewState:
+        kinds = list(WINDOW_NAMES)
+        i = kinds.index(current_kind) if current_kind in kinds else -1
+        return self.but(window=kinds[(i + 1) % len(kinds)])
+
+    def shifted_week(self, step: int) -> ViewState:
+        """The windows' end a week back or forth; forth from this week returns to today."""
+        return self.but(week=step_week(self.week, step))
+
+
+def utc_today() -> date:
+    """Today's date in UTC: the review engine's default review day."""
+    return datetime.now(UTC).date()
+
+
+def iso_week(day: date) -> str:
+    """ISO 8601 week label of a day, e.g. 2026-W49."""
+    y, w, _ = day.isocalendar()
+    return f"{y}-W{w:02d}"
+
+
+def parse_week(label: str) -> date | None:
+    """Monday of an ISO week label ("2026-W49"), or None if the text is not one."""
+    try:
+        y, w = label.strip().upper().split("-W")
+        return date.fromisocalendar(int(y), int(w[:2]), 1)
+    except (ValueError, IndexError):
+        return None
+
+
+def shift_week(label: str, step: int) -> str:
+    """The ISO week ``step`` weeks after ``label``."""
+    monday = parse_week(label)
+    if monday is None:
+        monday = utc_today()
+    return iso_week(monday + timedelta(weeks=step))
+
+
+def step_week(week: str | None, step: int) -> str | None:
+    """``step`` weeks from ``week`` (None = this week); this week or later becomes None."""
+    this_week = iso_week(utc_today())
+    target = shift_week(week or this_week, step)
+    monday, now = parse_week(target), parse_week(this_week)
+    return None if monday is None or now is None or monday >= now else target
