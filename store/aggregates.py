@@ -1,4 +1,9 @@
-"""Sufficient statistics per (characteristic, factor, level, UTC day): n, sum d, sum d^2.
+"""Sufficient statistics per (characteristic, factor, level, plant day): n, sum d, sum d^2, lots.
+
+``n`` counts values (replicates included); ``lots`` counts distinct lots with at least one live
+(non-voided) value of that characteristic in that bucket, so windows and group sizes can be read
+in lots when a lot carries several replicates. The day is the plant-local date of
+``measured_at`` (see ``store.plantzone``).
 
 With ``d = units - origin`` an exact integer, a bucket's rows can be added and subtracted
 exactly, so group means and the ANOVA sums of squares of any window are rebuilt from a few
@@ -24,10 +29,13 @@ BucketKey = tuple[int, str, str, str]  # characteristic_id, factor, level, day
 
 
 class Deltas:
-    """Accumulates bucket changes in memory, then writes them with one UPSERT per bucket."""
+    """Accumulates bucket changes in memory, then writes them with one UPSERT per bucket.
+
+    Value changes go through ``add``/``add_measurement``; a lot joining or leaving a bucket
+    (its first live value there arrives, or its last one is voided) through ``add_lot``."""
 
     def __init__(self) -> None:
-        self._d: defaultdict[BucketKey, list[int]] = defaultdict(lambda: [0, 0, 0])
+        self._d: defaultdict[BucketKey, list[int]] = defaultdict(lambda: [0, 0, 0, 0])
 
     def add(self, key: BucketKey, d: int, sign: int = 1) -> None:
         cell = self._d[key]
@@ -35,31 +43,43 @@ class Deltas:
         cell[1] += sign * d
         cell[2] += sign * d * d
 
+    def add_lot(self, key: BucketKey, sign: int = 1) -> None:
+        self._d[key][3] += sign
+
     def add_measurement(self, characteristic_id: int, day: str, d: int,
                         factor_levels: Iterable[tuple[str, str]], sign: int = 1) -> None:
         for factor, level in factor_levels:
             self.add((characteristic_id, factor, level, day), d, sign)
 
+    def add_lot_to(self, characteristic_id: int, day: str,
+                   factor_levels: Iterable[tuple[str, str]], sign: int = 1) -> None:
+        for factor, level in factor_levels:
+            self.add_lot((characteristic_id, factor, level, day), sign)
+
     def __len__(self) -> int:
         return len(self._d)
 
     def apply(self, conn: sqlite3.Connection) -> None:
-        rows = [(*k, *v) for k, v in self._d.items() if v != [0, 0, 0]]
+        rows = [(*k, *v) for k, v in self._d.items() if v != [0, 0, 0, 0]]
         # A new row must satisfy the table's CHECKs before the UPSERT's conflict branch runs, so
         # only growing buckets go through INSERT ... ON CONFLICT; the others exist and UPDATE.
-        grow = [r for r in rows if r[4] > 0 and r[6] >= 0]
-        shrink = [(r[4], r[5], r[6], *r[:4]) for r in rows if not (r[4] > 0 and r[6] >= 0)]
+        def grows(r: tuple) -> bool:
+            return r[4] > 0 and r[6] >= 0 and r[7] >= 0
+
+        grow = [r for r in rows if grows(r)]
+        shrink = [(r[4], r[5], r[6], r[7], *r[:4]) for r in rows if not grows(r)]
         conn.executemany(
-            "INSERT INTO buckets(characteristic_id, factor, level, day, n, sum_d, sum_d2) "
-            "VALUES (?, ?, ?, ?, ?, ?, ?) "
+            "INSERT INTO buckets(characteristic_id, factor, level, day, n, sum_d, sum_d2, lots) "
+            "VALUES (?, ?, ?, ?, ?, ?, ?, ?) "
             "ON CONFLICT(characteristic_id, factor, level, day) DO UPDATE SET "
             "n = n + excluded.n, sum_d = sum_d + excluded.sum_d, "
-            "sum_d2 = sum_d2 + excluded.sum_d2",
+            "sum_d2 = sum_d2 + excluded.sum_d2, lots = lots + excluded.lots",
             grow,
         )
         if shrink:
             cur = conn.executemany(
-                "UPDATE buckets SET n = n + ?, sum_d = sum_d + ?, sum_d2 = sum_d2 + ? "
+                "UPDATE buckets SET n = n + ?, sum_d = sum_d + ?, sum_d2 = sum_d2 + ?, "
+                "lots = lots + ? "
                 "WHERE characteristic_id = ? AND factor = ? AND level = ? AND day = ?",
                 shrink,
             )
@@ -69,7 +89,7 @@ class Deltas:
             conn.executemany(
                 "DELETE FROM buckets WHERE characteristic_id = ? AND factor = ? AND level = ? "
                 "AND day = ? AND n = 0",
-                [r[3:] for r in shrink],
+                [r[4:] for r in shrink],
             )
         self._d.clear()
 
@@ -87,7 +107,8 @@ _RECOMPUTE = """
 SELECT m.characteristic_id AS characteristic_id, t.key AS factor, t.value AS level, m.day AS day,
        count(*) AS n,
        sum(m.current_units - c.origin_units) AS sum_d,
-       sum((m.current_units - c.origin_units) * (m.current_units - c.origin_units)) AS sum_d2
+       sum((m.current_units - c.origin_units) * (m.current_units - c.origin_units)) AS sum_d2,
+       count(DISTINCT m.lot_id) AS lots
 FROM measurements m
 JOIN characteristics c ON c.id = m.characteristic_id
 JOIN lot_tags t ON t.lot_id = m.lot_id AND t.key = ?
@@ -99,14 +120,25 @@ GROUP BY m.characteristic_id, t.value, m.day
 def backfill_factor(conn: sqlite3.Connection, factor: str) -> int:
     """Build the buckets of a newly added factor from stored lots' tags (caller holds the
     write transaction). Returns the number of bucket rows made."""
-    sql = ("INSERT INTO buckets(characteristic_id, factor, level, day, n, sum_d, sum_d2) "
+    sql = ("INSERT INTO buckets(characteristic_id, factor, level, day, n, sum_d, sum_d2, lots) "
            + _RECOMPUTE)
     cur = conn.execute(sql, (factor,))
     return cur.rowcount
 
 
+def rebuild_all(conn: sqlite3.Connection) -> int:
+    """Drop every bucket and rebuild all of them from the raw rows (caller holds the write
+    transaction; used when the days move, e.g. a new plant zone). Returns the rows made."""
+    conn.execute("DELETE FROM buckets")
+    made = 0
+    for (factor,) in conn.execute("SELECT name FROM factors").fetchall():
+        made += backfill_factor(conn, factor)
+    return made
+
+
 def check(store: Store) -> CheckReport:
-    """Recompute every bucket from the current, non-voided raw rows and compare exactly; also
+    """Recompute every bucket (sums and lot counts) from the current, non-voided raw rows and
+    compare exactly; check each measurement's day against its plant-local date; also
     run ``PRAGMA integrity_check`` and ``PRAGMA foreign_key_check`` and look for measurements
     without their 'log' audit entry or with an impossible state."""
     conn = store.conn
@@ -117,7 +149,7 @@ def check(store: Store) -> CheckReport:
     for table, rowid, parent, _fk in conn.execute("PRAGMA foreign_key_check").fetchall()[:20]:
         problems.append(f"foreign key: {table} row {rowid} points to a missing {parent} row")
     # A few thousand rows each way: compare in Python after one pass of the recomputation.
-    cols = "characteristic_id, factor, level, day, n, sum_d, sum_d2"
+    cols = "characteristic_id, factor, level, day, n, sum_d, sum_d2, lots"
     fresh = {}
     for (factor,) in conn.execute("SELECT name FROM factors").fetchall():
         fresh.update((r[:4], r[4:]) for r in conn.execute(_RECOMPUTE, (factor,)))
@@ -128,6 +160,7 @@ def check(store: Store) -> CheckReport:
                         f"raw rows give {_fmt_sums(fresh.get(key))}")
     if len(bad_keys) > 20:
         problems.append(f"... and {len(bad_keys) - 20} more bucket mismatches")
+    problems.extend(_day_problems(conn))
     no_log = conn.execute(
         "SELECT m.id FROM measurements m WHERE NOT EXISTS "
         "(SELECT 1 FROM audit a WHERE a.measurement_id = m.id AND a.action = 'log') LIMIT 20"
@@ -139,6 +172,18 @@ def check(store: Store) -> CheckReport:
                        measurements=int(n_meas))
 
 
+def _day_problems(conn: sqlite3.Connection) -> list[str]:
+    """Every measurement's day must be the plant-local date of its ``measured_at``."""
+    from lotwatch.store.plantzone import day_function, read_zone
+
+    zone = read_zone(conn)
+    day_of = day_function(zone)
+    wrong = [(stamp, day) for stamp, day in conn.execute(
+        "SELECT DISTINCT measured_at, day FROM measurements") if day_of(stamp) != day]
+    return [f"measurements taken at {stamp} are filed under day {day}; in the plant zone "
+            f"{zone} that is {day_of(stamp)}" for stamp, day in wrong[:20]]
+
+
 def _fmt_key(key: tuple) -> str:
     cid, factor, level, day = key
     return f"characteristic {cid}, {factor}={level!r}, {day}"
@@ -147,5 +192,5 @@ def _fmt_key(key: tuple) -> str:
 def _fmt_sums(sums: tuple | None) -> str:
     if sums is None:
         return "nothing"
-    n, s1, s2 = sums
-    return f"n={n}, sum_d={s1}, sum_d2={s2}"
+    n, s1, s2, lots = sums
+    return f"n={n}, sum_d={s1}, sum_d2={s2}, lots={lots}"

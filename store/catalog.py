@@ -221,9 +221,14 @@ def get_setting(s: Session, key: str, default: str | None = None) -> str | None:
 
 
 def set_setting(s: Session, key: str, value: str | None) -> None:
-    """Store a setting (text); ``None`` removes it."""
+    """Store a setting (text); ``None`` removes it. The plant zone changes only through
+    ``Store.set_plant_zone`` (its days must move with it)."""
     if not key:
         raise BadInput([RowProblem("command line", None, "setting", key, "empty setting name")])
+    if key == "plant.time_zone":
+        raise BadInput([RowProblem("command line", None, "setting", key,
+                                   "the plant time zone changes with `lotwatch zone set` "
+                                   "(every stored day is recomputed with it)")])
     with s.write():
         if value is None:
             s.conn.execute("DELETE FROM settings WHERE key = ?", (key,))

@@ -54,9 +54,15 @@ class Store(Session):
     # ----------------------------------------------------------------- opening and closing
 
     @classmethod
-    def create(cls, path: str | Path, *, timeout: float = DEFAULT_TIMEOUT) -> Store:
+    def create(cls, path: str | Path, *, timeout: float = DEFAULT_TIMEOUT,
+               zone: str | None = None) -> Store:
         """Make a new, empty store at ``path`` (parent folders too), with the required grouping
-        factors site, line and shift. Refuses if anything exists at ``path`` (StoreExists)."""
+        factors site, line and shift and the plant time zone ``zone`` (default: the computer's
+        zone). Refuses if anything exists at ``path`` (StoreExists)."""
+        if zone is not None:
+            from lotwatch.store.plantzone import check_zone
+
+            zone = check_zone(zone)
         p = Path(path).expanduser()
         conn = opening.create_file(p, timeout)
         store = cls(conn, p, read_only=False, timeout=timeout)
@@ -66,6 +72,9 @@ class Store(Session):
                     raise StoreExists(f"{p} was created by someone else just now; open it instead")
                 now = format_stored(now_utc())
                 schema.migrate(conn, now=now)
+                from lotwatch.store.plantzone import machine_zone, write_zone
+
+                write_zone(conn, zone or machine_zone())
                 conn.executemany(
                     "INSERT INTO factors(name, required, created_at) VALUES (?, 1, ?)",
                     [(name, now) for name in schema.DEFAULT_FACTORS],
@@ -153,6 +162,21 @@ class Store(Session):
     def set_setting(self, key: str, value: str | None) -> None:
         """Store a setting (text); ``None`` removes it."""
         catalog.set_setting(self, key, value)
+
+    @property
+    def plant_zone(self) -> str:
+        """The plant's IANA time zone name: days, weeks and windows are its calendar dates."""
+        from lotwatch.store.plantzone import read_zone
+
+        with self.mapped():
+            return read_zone(self.conn)
+
+    def set_plant_zone(self, name: str) -> tuple[str, int, int]:
+        """Change the plant zone, recomputing every day and day sum in one transaction
+        (``store.plantzone.set_plant_zone``): returns (old zone, days moved, buckets rebuilt)."""
+        from lotwatch.store.plantzone import set_plant_zone
+
+        return set_plant_zone(self, name)
 
     def info(self) -> dict[str, str]:
         """The ``store_info`` rows (schema version, creating/upgrading lotwatch version, ...)."""

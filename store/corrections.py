@@ -100,9 +100,14 @@ def void(store: Store, measurement_id: int, *, reason: str, by: str | None = Non
         store.conn.execute(
             "INSERT INTO audit(measurement_id, action, at, by, old_units, new_units, reason) "
             "VALUES (?, 'void', ?, ?, ?, NULL, ?)", (mid, at, who, cur, why))
+        levels = lot_factor_levels(store.conn, lot_id)
         deltas = Deltas()
-        deltas.add_measurement(cid, day, cur - char.origin_units,
-                               lot_factor_levels(store.conn, lot_id), sign=-1)
+        deltas.add_measurement(cid, day, cur - char.origin_units, levels, sign=-1)
+        still_there = store.conn.execute(
+            "SELECT 1 FROM measurements WHERE lot_id = ? AND characteristic_id = ? AND day = ? "
+            "AND voided = 0 LIMIT 1", (lot_id, cid, day)).fetchone()
+        if still_there is None:  # its last live value there: the lot leaves the buckets
+            deltas.add_lot_to(cid, day, levels, sign=-1)
         deltas.apply(store.conn)
     return AuditEntry("void", at, who, format_units(cur, char.resolution), None, why)
 

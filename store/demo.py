@@ -296,7 +296,7 @@ def build_demo_store(
     end = end or default_end()
     building = target.with_name(target.name + ".building")
     _remove(building)
-    store = Store.create(building)
+    store = Store.create(building, zone="UTC")  # the invented plant keeps UTC shift hours
     try:
         _fill(store, seed, end)
     except BaseException:

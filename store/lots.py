@@ -59,9 +59,12 @@ class _Prepared:
     problems: list[RowProblem] = field(default_factory=list)
 
 
-def new_lot_code(taken: set[str], when: datetime | None = None) -> str:
-    """A readable, unique lot ID: ``L`` + UTC date-time + random suffix (L20261130-140500-K7QX2M)."""
-    stamp = (when or now_utc()).strftime("%Y%m%d-%H%M%S")
+def new_lot_code(taken: set[str], when: datetime | None = None, zone: str = "UTC") -> str:
+    """A readable, unique lot ID: ``L`` + plant-local date-time + random suffix
+    (L20261130-140500-K7QX2M), so the date in the ID is the plant day it was made on."""
+    from lotwatch.store.plantzone import zone as tz
+
+    stamp = (when or now_utc()).astimezone(tz(zone)).strftime("%Y%m%d-%H%M%S")
     while True:
         code = f"L{stamp}-" + "".join(secrets.choice(_LOT_ALPHABET) for _ in range(6))
         if code not in taken:
@@ -89,7 +92,7 @@ def _with_unit(text: str, c: Characteristic) -> str:
 
 def _prepare(i: int, e: LotEntry, chars: dict[str, Characteristic], now: datetime,
              round_values: bool, user: str,
-             times: dict[object, str]) -> _Prepared | list[RowProblem]:
+             times: dict[object, str], zone: str) -> _Prepared | list[RowProblem]:
     problems: list[RowProblem] = []
     char = chars.get(str(e.characteristic).strip()) if e.characteristic is not None else None
     if char is None:
@@ -124,7 +127,7 @@ def _prepare(i: int, e: LotEntry, chars: dict[str, Characteristic], now: datetim
         when = now if e.measured_at is None else e.measured_at
         measured = times.get(when) if isinstance(when, str) else None
         if measured is None:
-            measured = format_stored(when)
+            measured = format_stored(when, zone=zone)  # naive times are plant-local
             if isinstance(when, str):
                 times[when] = measured  # lab files repeat timestamps; parse each text once
     except BadTime as exc:
@@ -201,13 +204,14 @@ def log_lots(store: Store, entries: Sequence[LotEntry], *, round_values: bool = 
     now = now_utc()
     now_s = format_stored(now)
     conn = store.conn
+    zone = store.plant_zone
 
     def prepare_all(chars: dict[str, Characteristic]) -> tuple[dict, list[_Prepared]]:
         problems: dict[int, list[RowProblem]] = {}
         good: list[_Prepared] = []
         times: dict[object, str] = {}
         for i, e in enumerate(entries):
-            p = _prepare(i, e, chars, now, round_values, store.user, times)
+            p = _prepare(i, e, chars, now, round_values, store.user, times, zone)
             if isinstance(p, list):
                 problems[i] = p
             else:
@@ -328,7 +332,7 @@ def log_lots(store: Store, entries: Sequence[LotEntry], *, round_values: bool = 
                     base.update(p.tags)
 
         ids_out, lots_out = _write(store, final, merged, lot_ids, stored_tags, stored_meas,
-                                   factor_names, now, now_s, progress)
+                                   factor_names, now, now_s, progress, zone)
     return LogOutcome(read=len(entries), stored=len(final), duplicates=duplicates,
                       rejected=rejected, rounded=sum(p.rounded for p in final),
                       measurement_ids=ids_out, lots=lots_out)
@@ -338,8 +342,12 @@ def _write(store: Store, final: list[_Prepared], merged: dict[str, dict[str, str
            lot_ids: dict[str, int], stored_tags: dict[int, dict[str, str]],
            stored_meas: dict[int, list[tuple[int, str, int, int]]], factor_names: set[str],
            now: datetime, now_s: str,
-           progress: Callable[[int], None] | None) -> tuple[list[int], list[str]]:
+           progress: Callable[[int], None] | None,
+           zone: str) -> tuple[list[int], list[str]]:
+    from lotwatch.store.plantzone import day_function
+
     conn = store.conn
+    day_of = day_function(zone)
     # We hold the write lock (BEGIN IMMEDIATE), so max(id) + 1 cannot be taken by anyone else.
     next_lot = conn.execute("SELECT coalesce(max(id), 0) + 1 FROM lots").fetchone()[0]
     next_meas = conn.execute("SELECT coalesce(max(id), 0) + 1 FROM measurements").fetchone()[0]
@@ -358,12 +366,16 @@ def _write(store: Store, final: list[_Prepared], merged: dict[str, dict[str, str
             if k not in old:
                 tag_rows.append((lot_id, k, v))
                 if k in factor_names:  # an existing lot gains a factor tag: its rows join buckets
+                    joined: set[tuple[int, str]] = set()
                     for cid, day, cur, _ in stored_meas.get(lot_id, []):
                         o = origin.get(cid)
                         if o is None:
                             o = store.characteristic_by_id(cid).origin_units
                             origin[cid] = o
                         deltas.add((cid, k, v, day), cur - o)
+                        joined.add((cid, day))
+                    for cid, day in joined:
+                        deltas.add_lot((cid, k, v, day))
 
     meas_rows: list[tuple] = []
     audit_rows: list[tuple] = []
@@ -371,7 +383,7 @@ def _write(store: Store, final: list[_Prepared], merged: dict[str, dict[str, str
     lots_out: list[str] = []
     for p in final:
         if p.lot is None:
-            code = new_lot_code(taken, now)
+            code = new_lot_code(taken, now, zone)
             lot_id = next_lot
             next_lot += 1
             new_lots.append((lot_id, code, now_s))
@@ -390,7 +402,7 @@ def _write(store: Store, final: list[_Prepared], merged: dict[str, dict[str, str
                 tag_rows.extend((lot_id, k, v) for k, v in tags.items())
         lots_out.append(code)
         levels = [(k, v) for k, v in tags.items() if k in factor_names]
-        day = p.measured_at[:10]
+        day = day_of(p.measured_at)
         source = p.entry.source or "command line"
         note = p.entry.note.strip() if isinstance(p.entry.note, str) and p.entry.note.strip() else None
         o = p.char.origin_units
@@ -402,6 +414,8 @@ def _write(store: Store, final: list[_Prepared], merged: dict[str, dict[str, str
             audit_rows.append((mid, now_s, p.by, u))
             ids_out.append(mid)
             deltas.add_measurement(p.char.id, day, u - o, levels)
+        if p.units:  # a (lot, characteristic) is logged once, so the lot is new to its buckets
+            deltas.add_lot_to(p.char.id, day, levels)
 
     generated = [code for _, code, _ in new_lots if code not in lot_ids]
     clash: set[str] = set()
@@ -411,7 +425,7 @@ def _write(store: Store, final: list[_Prepared], merged: dict[str, dict[str, str
             f"SELECT lot_code FROM lots WHERE lot_code IN ({marks})", chunk))
     if clash:  # a generated ID already stored (about 1 in 10^9 per second): draw again
         taken |= clash
-        renamed = {code: new_lot_code(taken, now) for code in clash}
+        renamed = {code: new_lot_code(taken, now, zone) for code in clash}
         new_lots = [(i, renamed.get(c, c), t) for i, c, t in new_lots]
         lots_out = [renamed.get(c, c) for c in lots_out]
     conn.executemany("INSERT INTO lots(id, lot_code, created_at) VALUES (?, ?, ?)", new_lots)

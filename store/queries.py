@@ -1,7 +1,7 @@
 """Read side: polars frames with fixed schemas (never inferred; see ECOSYSTEM.md on NULLs).
 
-Day bounds (``since``/``until``) are inclusive UTC dates, compared with each measurement's
-``day`` (the UTC date of ``measured_at``).
+Day bounds (``since``/``until``) are inclusive plant dates, compared with each measurement's
+``day`` (the plant-local date of ``measured_at``; see ``store.plantzone``).
 """
 
 from __future__ import annotations
@@ -20,7 +20,7 @@ if TYPE_CHECKING:
 
 BUCKET_SCHEMA = {
     "characteristic": pl.String, "factor": pl.String, "level": pl.String, "day": pl.String,
-    "n": pl.Int64, "sum_d": pl.Int64, "sum_d2": pl.Int64,
+    "n": pl.Int64, "sum_d": pl.Int64, "sum_d2": pl.Int64, "lots": pl.Int64,
 }
 VALUES_SCHEMA = {
     "measurement_id": pl.Int64, "lot": pl.String, "level": pl.String,
@@ -43,8 +43,9 @@ def _ts(col: str) -> pl.Expr:
 
 def bucket_frame(store: Store, *, characteristic: str | None = None, factor: str | None = None,
                  since: date | None = None, until: date | None = None) -> pl.DataFrame:
-    """Bucket rows: characteristic:str, factor:str, level:str, day:date, n, sum_d, sum_d2 (i64),
-    sorted by characteristic, factor, level, day."""
+    """Bucket rows: characteristic:str, factor:str, level:str, day:date, n, sum_d, sum_d2,
+    lots (i64), sorted by characteristic, factor, level, day. ``n`` counts values, ``lots``
+    distinct lots (they differ when lots carry replicates); ``day`` is the plant-local date."""
     lo, hi = _bounds(since, until)
     where, params = [], []
     if characteristic is not None:
@@ -65,7 +66,8 @@ def bucket_frame(store: Store, *, characteristic: str | None = None, factor: str
     if hi is not None:
         where.append(f"{day} <= ?")
         params.append(hi)
-    sql = ("SELECT c.name, b.factor, b.level, b.day, b.n, b.sum_d, b.sum_d2 FROM buckets b "
+    sql = ("SELECT c.name, b.factor, b.level, b.day, b.n, b.sum_d, b.sum_d2, b.lots "
+           "FROM buckets b "
            "JOIN characteristics c ON c.id = b.characteristic_id"
            + (" WHERE " + " AND ".join(where) if where else "")
            # primary-key order needs no sort in SQLite; names sort the same way unless the

@@ -154,11 +154,33 @@ def _migrate_to_2(conn: sqlite3.Connection) -> None:
     conn.execute("CREATE INDEX buckets_day ON buckets(day)")
 
 
+def _migrate_to_3(conn: sqlite3.Connection) -> None:
+    # Distinct lots per bucket (a lot may carry several replicates), rebuilt from the raw rows;
+    # and the plant time zone: a store older than the setting keeps UTC days so nothing moves
+    # (a new store gets the computer's zone from ``Store.create``).
+    conn.execute("ALTER TABLE buckets ADD COLUMN lots INTEGER NOT NULL DEFAULT 0 "
+                 "CHECK (lots >= 0 AND lots <= n)")
+    conn.execute("DELETE FROM buckets")
+    for (factor,) in conn.execute("SELECT name FROM factors").fetchall():
+        conn.execute(
+            "INSERT INTO buckets(characteristic_id, factor, level, day, n, sum_d, sum_d2, lots) "
+            "SELECT m.characteristic_id, t.key, t.value, m.day, count(*), "
+            "sum(m.current_units - c.origin_units), "
+            "sum((m.current_units - c.origin_units) * (m.current_units - c.origin_units)), "
+            "count(DISTINCT m.lot_id) FROM measurements m "
+            "JOIN characteristics c ON c.id = m.characteristic_id "
+            "JOIN lot_tags t ON t.lot_id = m.lot_id AND t.key = ? "
+            "WHERE m.voided = 0 GROUP BY m.characteristic_id, t.value, m.day", (factor,))
+    conn.execute("INSERT INTO settings(key, value) VALUES ('plant.time_zone', 'UTC') "
+                 "ON CONFLICT(key) DO NOTHING")
+
+
 # MIGRATIONS[v] brings a store from schema version v-1 to v. Run in order inside one
 # BEGIN IMMEDIATE transaction by ``migrate``. Never edit a released step; add a new one.
 MIGRATIONS: dict[int, Callable[[sqlite3.Connection], None]] = {
     1: _migrate_to_1,
     2: _migrate_to_2,
+    3: _migrate_to_3,
 }
 SCHEMA_VERSION = max(MIGRATIONS)
 

@@ -1,8 +1,9 @@
-"""Timestamps: parse what people type or labs export, store UTC, show local time.
+"""Timestamps: parse what people type or labs export, store UTC, show plant-local time.
 
 Stored form is ISO 8601 UTC with a ``Z`` and whole seconds ("2026-11-30T14:05:00Z"), which
-sorts correctly as text. A naive input (no offset) is taken as the computer's local time.
-The bucket day of a measurement is the UTC calendar date of ``measured_at``.
+sorts correctly as text. A naive input (no offset) is taken in the zone passed as ``zone`` (the
+store's plant zone, ``store.plantzone``), else the computer's local time. The bucket day of a
+measurement is the plant-local calendar date of ``measured_at``.
 """
 
 from __future__ import annotations
@@ -22,11 +23,20 @@ def now_utc() -> datetime:
     return datetime.now(UTC).replace(microsecond=0)
 
 
-def to_utc(value: datetime | date | str) -> datetime:
+def _zone(name: str | None):
+    if name is None:
+        return None
+    from lotwatch.store.plantzone import zone
+
+    return zone(name)
+
+
+def to_utc(value: datetime | date | str, zone: str | None = None) -> datetime:
     """An aware UTC datetime from a datetime (naive = local), a date (local midnight) or text.
 
     Text forms: ISO 8601 date/time with ``T`` or a space, optional seconds/fractions, and an
-    optional offset ``Z`` / ``+01:00``; a bare date means local midnight.
+    optional offset ``Z`` / ``+01:00``; a bare date means local midnight. "Local" is the IANA
+    zone ``zone`` when given (the plant zone), else the computer's zone.
     """
     if isinstance(value, datetime):
         dt = value
@@ -37,7 +47,9 @@ def to_utc(value: datetime | date | str) -> datetime:
     else:
         raise BadTime(f"{value!r} is not a date/time")
     if dt.tzinfo is None or dt.tzinfo.utcoffset(dt) is None:
-        dt = dt.astimezone()  # naive: interpret as local time
+        tz = _zone(zone)
+        # naive: interpret as local time (fold=0: the first of a repeated autumn hour)
+        dt = dt.astimezone() if tz is None else dt.replace(tzinfo=tz)
     return dt.astimezone(UTC)
 
 
@@ -58,9 +70,9 @@ def _parse_text(text: str) -> datetime:
     )
 
 
-def format_stored(value: datetime | date | str) -> str:
-    """The stored text form (UTC, whole seconds, ``Z``)."""
-    return to_utc(value).replace(microsecond=0).strftime(STORED_FORMAT)
+def format_stored(value: datetime | date | str, zone: str | None = None) -> str:
+    """The stored text form (UTC, whole seconds, ``Z``); naive input is taken in ``zone``."""
+    return to_utc(value, zone).replace(microsecond=0).strftime(STORED_FORMAT)
 
 
 def parse_stored(text: str) -> datetime:
@@ -75,10 +87,13 @@ def utc_day(value: datetime | str) -> str:
     return to_utc(value).date().isoformat()
 
 
-def format_local(value: datetime | str, fmt: str = DISPLAY_FORMAT) -> str:
-    """A stored timestamp (text or datetime) shown in the computer's local time zone."""
+def format_local(value: datetime | str, fmt: str = DISPLAY_FORMAT,
+                 zone: str | None = None) -> str:
+    """A stored timestamp (text or datetime) shown in the plant zone ``zone`` (an IANA name),
+    else in the computer's local time zone."""
     dt = parse_stored(value) if isinstance(value, str) else to_utc(value)
-    return dt.astimezone().strftime(fmt)
+    tz = _zone(zone)
+    return (dt.astimezone() if tz is None else dt.astimezone(tz)).strftime(fmt)
 
 
 def date_text(value: date | datetime | str | None) -> str | None:

@@ -158,7 +158,7 @@ def test_log_prints_ids_lot_and_local_time(cli, db):
     assert r.exit_code == 0, r.output
     local = datetime.fromisoformat("2026-11-03T08:15:00+00:00").astimezone()
     assert "in lot A-17" in r.output
-    assert local.strftime("%Y-%m-%d %H:%M") in r.output and "local time" in r.output
+    assert local.strftime("%Y-%m-%d %H:%M") in r.output and "plant time" in r.output
     assert "Measurement id(s): 1, 2" in r.output
     conn = sqlite3.connect(db)
     rows = conn.execute("SELECT current_units, measured_at, logged_by, note FROM measurements "

@@ -31,7 +31,7 @@ factor_op = st.tuples(st.just("add_factor"))
 ops = st.lists(st.one_of(log_op, log_op, correct_op, void_op, factor_op), max_size=25)
 
 
-def _python_buckets(store: Store) -> dict[tuple, tuple[int, int, int]]:
+def _python_buckets(store: Store) -> dict[tuple, tuple[int, int, int, int]]:
     conn = store.conn
     origin = {cid: (name, o) for cid, name, o in conn.execute(
         "SELECT id, name, origin_units FROM characteristics")}
@@ -40,6 +40,7 @@ def _python_buckets(store: Store) -> dict[tuple, tuple[int, int, int]]:
     for lot_id, key, value in conn.execute("SELECT lot_id, key, value FROM lot_tags"):
         tags[lot_id][key] = value
     out: dict[tuple, list[int]] = defaultdict(lambda: [0, 0, 0])
+    lots: dict[tuple, set[int]] = defaultdict(set)
     for lot_id, cid, units, voided, day in conn.execute(
             "SELECT lot_id, characteristic_id, current_units, voided, day FROM measurements"):
         if voided:
@@ -52,7 +53,8 @@ def _python_buckets(store: Store) -> dict[tuple, tuple[int, int, int]]:
                 cell[0] += 1
                 cell[1] += d
                 cell[2] += d * d
-    return {k: tuple(v) for k, v in out.items()}
+                lots[(name, key, level, day)].add(lot_id)
+    return {k: (*v, len(lots[k])) for k, v in out.items()}
 
 
 @settings(max_examples=30, deadline=None, suppress_health_check=[HealthCheck.too_slow])
@@ -94,7 +96,8 @@ def test_buckets_equal_recomputation(operations: list[tuple]) -> None:
             except (BadInput, Conflict):
                 pass  # refused input (conflicting lot, no-op correction, void twice)
         frame = store.bucket_frame()
-        got = {(c, f, lv, d.isoformat()): (n, s1, s2) for c, f, lv, d, n, s1, s2 in frame.rows()}
+        got = {(c, f, lv, d.isoformat()): (n, s1, s2, lots)
+               for c, f, lv, d, n, s1, s2, lots in frame.rows()}
         assert got == _python_buckets(store)
         report = store.check()
         assert report.ok, report.problems

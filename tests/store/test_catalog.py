@@ -24,7 +24,9 @@ def test_settings_are_read_in_one_query(store: Store) -> None:
     got = store.settings()
     store.conn.set_trace_callback(None)
     assert len(seen) == 1
-    assert got == {f"key{i}": str(i) for i in range(12) if i != 3}
+    # every store also carries its plant time zone (store.plantzone)
+    assert got == {**{f"key{i}": str(i) for i in range(12) if i != 3},
+                   "plant.time_zone": store.plant_zone}
     # The single-key lookup agrees with the one-query read, key by key.
     assert all(store.get_setting(k) == v for k, v in got.items())
     assert store.get_setting("key3", "absent") == "absent"
@@ -47,7 +49,7 @@ def test_store_is_a_session_with_nested_savepoints(store: Store) -> None:
                 raise sqlite3.IntegrityError("inner body fails")
         except sqlite3.IntegrityError:
             pass
-    assert store.settings() == {"outer": "1"}
+    assert store.settings() == {"outer": "1", "plant.time_zone": store.plant_zone}
 
 
 def test_identity_helpers(store: Store) -> None:

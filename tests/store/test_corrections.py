@@ -30,7 +30,7 @@ def test_correct_keeps_original_and_trail(fill: Store) -> None:
     assert trail[2].by == fill.user
     # d = 5003 - 5000 = 3 and 4998 - 5000 = -2: n 2, sum 1, sum of squares 9 + 4 = 13
     assert fill.bucket_frame(factor="site").rows() == [
-        ("fill_volume", "site", "north", date(2026, 11, 30), 2, 1, 13)]
+        ("fill_volume", "site", "north", date(2026, 11, 30), 2, 1, 13, 1)]
     assert fill.check().ok
 
 
@@ -41,6 +41,7 @@ def test_void_keeps_row_and_trail(fill: Store) -> None:
     assert fill.history(2)[1].old_value == "499.8"
     assert fill.values_frame("fill_volume", "line")["measurement_id"].to_list() == [1]
     assert fill.bucket_frame(factor="line")["n"].to_list() == [1]
+    assert fill.bucket_frame(factor="line")["lots"].to_list() == [1]  # one live value left
     assert fill.check().ok
     fill.void(1, reason="whole lot suspect")
     assert fill.bucket_frame().height == 0  # emptied buckets are removed

@@ -111,7 +111,8 @@ def test_log_stores_units_tags_and_buckets(fill: Store) -> None:
     assert dict(fill.conn.execute("SELECT key, value FROM lot_tags").fetchall()) == TAGS
     b = fill.bucket_frame(factor="line")
     # d = units - origin: 5001 - 5000 = 1 and 4998 - 5000 = -2; sum 1-2 = -1, squares 1+4 = 5
-    assert b.rows() == [("fill_volume", "line", "1", date(2026, 11, 30), 2, -1, 5)]
+    # two values of one lot: n = 2 values, lots = 1
+    assert b.rows() == [("fill_volume", "line", "1", date(2026, 11, 30), 2, -1, 5, 1)]
     assert fill.check().ok
 
 
@@ -340,7 +341,7 @@ def test_bucket_frame_schema_and_filters(fill: Store) -> None:
     assert empty.height == 0
     assert dict(empty.schema) == {"characteristic": pl.String, "factor": pl.String,
                                   "level": pl.String, "day": pl.Date, "n": pl.Int64,
-                                  "sum_d": pl.Int64, "sum_d2": pl.Int64}
+                                  "sum_d": pl.Int64, "sum_d2": pl.Int64, "lots": pl.Int64}
     assert fill.bucket_frame(characteristic="fill_volume").height == 3
     assert fill.bucket_frame(until=date(2026, 11, 30)).height == 3
 
@@ -412,8 +413,8 @@ def test_add_factor_backfills_from_stored_tags(fill: Store, entry) -> None:
     fill.add_factor("oven")
     # d: L2 5003-5000 = 3; L3 4995-5000 = -5 and 5005-5000 = 5 (L1 has no oven tag)
     assert fill.bucket_frame(factor="oven").rows() == [
-        ("fill_volume", "oven", "A", date(2026, 11, 30), 1, 3, 9),
-        ("fill_volume", "oven", "B", date(2026, 12, 1), 2, 0, 50),
+        ("fill_volume", "oven", "A", date(2026, 11, 30), 1, 3, 9, 1),
+        ("fill_volume", "oven", "B", date(2026, 12, 1), 2, 0, 50, 1),
     ]
     with pytest.raises(Conflict, match="already a grouping factor"):
         fill.add_factor("oven")

@@ -357,18 +357,23 @@ def test_failed_upgrade_leaves_store_as_it_was(store_path: Path,
 
 
 def test_an_older_store_is_upgraded_on_open_and_keeps_its_data(store_path: Path) -> None:
-    """A store at schema version 1 (before the bucket day index) gains migration 2 when opened
-    for writing, with its measurements intact (versioned migrations: common practice)."""
+    """A store at schema version 1 (before the bucket day index, the lot counts and the plant
+    zone) gains migrations 2 and 3 when opened for writing, with its measurements intact and
+    its days unmoved (versioned migrations: common practice)."""
     import sqlite3
 
     from lotwatch.store import LotEntry
 
-    with Store.create(store_path) as s:
+    with Store.create(store_path, zone="America/Chicago") as s:
         s.add_characteristic("fill", unit="mL", resolution="0.1")
-        s.log_lots([LotEntry("fill", ["500.1"], {"site": "A", "line": "1", "shift": "x"},
-                             lot="L1")])
+        s.log_lots([LotEntry("fill", ["500.1", "500.3"], {"site": "A", "line": "1", "shift": "x"},
+                             lot="L1", measured_at="2026-11-30T03:00:00Z")])
     conn = sqlite3.connect(store_path)
     conn.execute("DROP INDEX buckets_day")
+    conn.execute("ALTER TABLE buckets DROP COLUMN lots")
+    conn.execute("DELETE FROM settings WHERE key = 'plant.time_zone'")
+    conn.execute("UPDATE measurements SET day = substr(measured_at, 1, 10)")  # old: UTC days
+    conn.execute("UPDATE buckets SET day = '2026-11-30'")
     conn.execute("PRAGMA user_version = 1")
     conn.commit()
     conn.close()
@@ -376,5 +381,7 @@ def test_an_older_store_is_upgraded_on_open_and_keeps_its_data(store_path: Path)
         assert schema.user_version(s.conn) == schema.SCHEMA_VERSION
         names = {r[0] for r in s.conn.execute("SELECT name FROM sqlite_master WHERE type='index'")}
         assert "buckets_day" in names
+        assert s.plant_zone == "UTC"  # an old store keeps UTC days: nothing moves
         assert s.check().ok
-        assert s.conn.execute("SELECT count(*) FROM measurements").fetchone()[0] == 1
+        assert s.conn.execute("SELECT count(*) FROM measurements").fetchone()[0] == 1 + 1
+        assert {r[-1] for r in s.bucket_frame().rows()} == {1}  # two replicates, one lot

@@ -18,6 +18,7 @@ COMMAND_MODULES = [
     "lotwatch.tui.cli.analyze",
     "lotwatch.tui.cli.review",
     "lotwatch.tui.cli.settings",
+    "lotwatch.tui.cli.zone",
     "lotwatch.tui.cli.interface",
 ]
 

@@ -21,13 +21,14 @@ def _parse_tags(tags: tuple[str, ...]) -> dict[str, str]:
     return out
 
 
-def _local(stored) -> str:
+def _local(stored, zone: str) -> str:
+    """A stored UTC stamp in plant-local time ("2026-11-30 23:30"); as stored if unreadable."""
     if not stored:
         return "-"
     from lotwatch.store.timeutil import format_local
 
     try:
-        return format_local(stored)
+        return format_local(stored, zone=zone)
     except ValueError:
         return stored
 
@@ -44,7 +45,7 @@ _VALUES_SETTINGS = {"ignore_unknown_options": True}
 @click.option("--lot", default=None, help="Lot ID (default: a new ID is generated).")
 @click.option("--at", "at", default=None, metavar="TIMESTAMP",
               help="When the lot was measured, ISO 8601 (default: now). Without an offset it "
-                   "is local time.")
+                   "is plant time (see lotwatch zone show).")
 @click.option("--note", default=None, help="A note stored with the values.")
 @click.option("--by", default=None, help="Who measured (default: your login name).")
 @click.option("--round", "round_values", is_flag=True,
@@ -63,16 +64,18 @@ def log_command(characteristic: str, values: tuple[str, ...], tags: tuple[str, .
     from lotwatch.store import LotEntry
     from lotwatch.store.timeutil import BadTime, now_utc, to_utc
 
-    try:
-        measured_at = to_utc(at) if at else now_utc()
-    except BadTime as exc:
-        raise UserError(f"--at: {exc}") from None
     for v in values:
         if v.startswith("--"):
             raise UserError(f"unknown option {v!r} (see lotwatch log --help)")
-    entry = LotEntry(characteristic=characteristic, values=list(values), tags=_parse_tags(tags),
-                     lot=lot, measured_at=measured_at, note=note, by=by)
+    parsed_tags = _parse_tags(tags)
     with open_store(db_path) as store:
+        zone = store.plant_zone
+        try:
+            measured_at = to_utc(at, zone) if at else now_utc()
+        except BadTime as exc:
+            raise UserError(f"--at: {exc}") from None
+        entry = LotEntry(characteristic=characteristic, values=list(values), tags=parsed_tags,
+                         lot=lot, measured_at=measured_at, note=note, by=by)
         outcome = store.log_lots([entry], round_values=round_values)
         ids = list(outcome.measurement_ids)
         lot_id = outcome.lots[0] if outcome.lots else lot
@@ -81,7 +84,7 @@ def log_command(characteristic: str, values: tuple[str, ...], tags: tuple[str, .
                          "values (exact duplicate)."))
         return
     click.echo(plain(f"Stored {len(ids)} value(s) of {characteristic} in lot {lot_id}, "
-                     f"measured {_local(measured_at)} (local time)"))
+                     f"measured {_local(measured_at, zone)} (plant time, {zone})"))
     click.echo("Measurement id(s): " + ", ".join(str(i) for i in ids))
     if outcome.rounded:
         click.echo(f"{outcome.rounded} value(s) rounded to the resolution")
@@ -132,7 +135,8 @@ def history_command(measurement_id: int, db_path: Path) -> None:
     """
     with open_store(db_path, read_only=True) as store:
         entries = store.history(measurement_id)
-    click.echo(f"Measurement {measurement_id} (times in local time):")
+        zone = store.plant_zone
+    click.echo(plain(f"Measurement {measurement_id} (times in plant time, {zone}):"))
     for e in entries:
         change = ""
         if e.action == "log":
@@ -141,7 +145,7 @@ def history_command(measurement_id: int, db_path: Path) -> None:
             change = f"{e.old_value} -> {e.new_value}"
         elif e.action == "void":
             change = f"voided (was {e.old_value})" if e.old_value is not None else "voided"
-        line = f"  {_local(e.at)}  {e.action:<8} {change}  by {e.by}"
+        line = f"  {_local(e.at, zone)}  {e.action:<8} {change}  by {e.by}"
         if e.reason:
             line += f"  reason: {e.reason}"
         click.echo(plain(line))

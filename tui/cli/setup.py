@@ -35,14 +35,16 @@ def _describe(c) -> list[tuple[str, str]]:
 
 @click.command("init")
 @click.argument("path", required=False, type=click.Path(dir_okay=False))
+@click.option("--zone", default=None, metavar="AREA/CITY",
+              help="Plant time zone (IANA name, e.g. Europe/Berlin); default: this computer's.")
 @db_option
 @store_errors
-def init_command(path: str | None, db_path: Path) -> None:
+def init_command(path: str | None, zone: str | None, db_path: Path) -> None:
     """Create an empty store.
 
     The store is made at PATH (default: --db, $LOTWATCH_DB or the user data directory). The new
-    store has the grouping factors site, line and shift (all required). An existing file is never
-    overwritten.
+    store has the grouping factors site, line and shift (all required) and a plant time zone
+    (days, weeks and windows are plant-local dates). An existing file is never overwritten.
     """
     from lotwatch.store import Store
 
@@ -51,13 +53,15 @@ def init_command(path: str | None, db_path: Path) -> None:
         raise UserError(f"{target} already exists; lotwatch init never overwrites a file. "
                         "Choose another path or remove the file yourself.")
     target.parent.mkdir(parents=True, exist_ok=True)
-    store = Store.create(target)
+    store = Store.create(target, zone=zone)
     try:
         factors = ", ".join(f.name + (" (required)" if f.required else "") for f in store.factors())
+        plant_zone = store.plant_zone
     finally:
         store.close()
     click.echo(f"Created an empty store at {target}")
     click.echo(f"Grouping factors: {factors}")
+    click.echo(f"Plant time zone: {plant_zone} (change it with `lotwatch zone set`)")
     click.echo("Next: lotwatch characteristic add NAME --unit UNIT --resolution STEP "
                f"--db {target}")
 
