@@ -4,6 +4,7 @@ provide it (not root, no useradd, mount not permitted ...)."""
 
 from __future__ import annotations
 
+import hashlib
 import os
 import secrets
 import shutil
@@ -46,7 +47,9 @@ def _public_source_tree() -> Path:
     """A folder under /tmp holding ``lotwatch/{store,stats,tui}`` as links to this checkout, so
     another account's Python imports the code under test whether lotwatch is installed editable
     (a path hook other accounts' interpreters do not load) or not."""
-    d = Path(tempfile.gettempdir()) / f"lotwatch-src-{os.getuid()}"
+    # one folder per checkout: several checkouts (worktrees) on one machine must not share links
+    tag = hashlib.sha256(str(ROOT.resolve()).encode()).hexdigest()[:10]
+    d = Path(tempfile.gettempdir()) / f"lotwatch-src-{os.getuid()}-{tag}"
     pkg = d / "lotwatch"
     pkg.mkdir(parents=True, exist_ok=True)
     for name in ("store", "stats", "tui"):

@@ -583,7 +583,7 @@ class LatestWindow:
         for name in names:
             b = self.store.bucket_frame(characteristic=name, since=day, until=day)
             cs, gs, ns, s1, s2 = [], [], [], [], []
-            for ch, fa, lv, _, n, a, q in b.iter_rows():
+            for ch, fa, lv, _, n, a, q, _lots in b.iter_rows():
                 c = self._ci.get((ch, fa))
                 g = self._lv.get((c, lv)) if c is not None else None
                 if g is None:  # a factor or level new to this window
