@@ -23,6 +23,7 @@ from collections.abc import Sequence
 import numpy as np
 from lotwatch.stats.distributions import qanom
 from lotwatch.stats.results import OK, AnomGroup, AnomResult
+from numpy.typing import ArrayLike
 
 
 def _problem(arrays: list[np.ndarray], names: Sequence[str]) -> str | None:
@@ -40,7 +41,7 @@ def _problem(arrays: list[np.ndarray], names: Sequence[str]) -> str | None:
     return None
 
 
-def analysis_of_means(samples: Sequence[Sequence[float]], names: Sequence[str], *,
+def analysis_of_means(samples: Sequence[ArrayLike], names: Sequence[str], *,
                       alpha: float = 0.05) -> AnomResult:
     """Ott's analysis of means with Nelson's exact critical value (see module docstring).
 

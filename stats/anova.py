@@ -190,7 +190,7 @@ def _finish(k: int, n_total: int, ssb: Number, ssw: Number, grand: float | None,
     sst = ssb + ssw
     msb = ssb / dfb
     f_crit = float(sps.f.isf(alpha, dfb, dfw)) if dfw > 0 else None
-    common = dict(ss_between=_to_float(ssb), ss_within=_to_float(ssw), ss_total=_to_float(sst),
+    common: dict[str, Any] = dict(ss_between=_to_float(ssb), ss_within=_to_float(ssw), ss_total=_to_float(sst),
                   ms_between=_to_float(msb), f_crit=f_crit,
                   r_squared=_to_float(ssb / sst) if sst > 0 else None)
     if dfw == 0:
@@ -212,7 +212,7 @@ def _finish(k: int, n_total: int, ssb: Number, ssw: Number, grand: float | None,
     f_exact = msb / msw
     f = _to_float(f_exact)
     p = float(special.fdtrc(dfb, dfw, f))
-    if f > f_crit:
+    if f_crit is not None and f > f_crit:
         decision = (f"F = {fmt_num(f)} > F crit = {fmt_num(f_crit)}: the group means differ at "
                     f"alpha {alpha:g} ({fmt_p(p)}).")
     else:

@@ -14,6 +14,7 @@ parts that cannot be computed carry their own status.
 
 from __future__ import annotations
 
+import functools
 import math
 from collections.abc import Callable, Sequence
 from typing import Any, TypeVar
@@ -38,6 +39,8 @@ from lotwatch.stats.results import (
     OK,
     AnomResult,
     BatteryResult,
+    Capability,
+    DunnettComparison,
     ExcludedGroup,
     GroupSummary,
     PairComparison,
@@ -156,7 +159,7 @@ def run_battery(samples: Sequence[Any], names: Sequence[str], *, alpha: float = 
     tukey: list[PairComparison] = []
     gh: list[PairComparison] = []
     dunn_pairs: list[PairComparison] = []
-    dunnett = None
+    dunnett: list[DunnettComparison] | None = None
     if can_compare:
         tukey = _guard(notes, "Tukey-Kramer", lambda: _posthoc.tukey_kramer(
             arrays, gnames, alpha=alpha), [])
@@ -171,8 +174,9 @@ def run_battery(samples: Sequence[Any], names: Sequence[str], *, alpha: float = 
                      else "is not among the groups")
             notes.append(f"Reference group {reference} {where}; Dunnett's test skipped.")
         elif can_compare:
+            no_pairs: list[DunnettComparison] = []
             dunnett = _guard(notes, "Dunnett", lambda: _posthoc.dunnett(
-                arrays, gnames, reference=reference, alpha=alpha), [])
+                arrays, gnames, reference=reference, alpha=alpha), no_pairs)
     for title, method, got in (("Tukey-Kramer", "tukey", tukey), ("Games-Howell", "games-howell", gh),
                                ("Dunn", "dunn", dunn_pairs), ("Dunnett", "dunnett", dunnett)):
         why = _posthoc.posthoc_problem(arrays, gnames, method) if got == [] else None
@@ -192,11 +196,15 @@ def run_battery(samples: Sequence[Any], names: Sequence[str], *, alpha: float = 
     effect = effect_sizes(table, alpha)
     vc = variance_components(table, ns, alpha=alpha)
     power = power_analysis(ns, table.resid_sd, alpha=alpha, shift=shift)
-    cap = None
+    cap: list[Capability] | None = None
     if lsl is not None or usl is not None:
-        cap = [_guard(notes, f"Capability of {n}", lambda n=n, a=a: capability(
-            n, a, table.resid_sd, lsl=lsl, usl=usl, alpha=alpha), None) for n, a in kept]
-        cap = [c for c in cap if c is not None]
+        cap = []
+        for n, a in kept:
+            one = _guard(notes, f"Capability of {n}",
+                         functools.partial(capability, n, a, table.resid_sd, lsl=lsl, usl=usl,
+                                           alpha=alpha), None)
+            if one is not None:
+                cap.append(one)
 
     status = table.status
     if not arrays and not cleaned:

@@ -55,7 +55,9 @@ def _range_interpolant(k: int) -> _mvt.Piecewise:
     w_max = _w_max(k)
     # Degrees chosen by measuring the interpolation error against the direct rule (< 1e-12).
     degree = 60 if k <= 30 else (120 if k <= 120 else 200)
-    coef = cheb.chebinterpolate(lambda x: _range_cdf_direct(0.5 * w_max * (x + 1.0), k), degree)
+    # numpy's stub types the function's values as scalars; this one is vectorised over x.
+    coef = cheb.chebinterpolate(  # type: ignore[type-var]
+        lambda x: _range_cdf_direct(0.5 * w_max * (x + 1.0), k), degree)
     return _mvt.Piecewise(coef, w_max)
 
 
@@ -128,8 +130,8 @@ def ptukey(q: np.ndarray | float, k: int, df: np.ndarray | float) -> np.ndarray 
     out[ok & (qf <= 0)] = 0.0
     if pos.any():
         out[pos] = _ptukey_flat(qf[pos], k, dff[pos])
-    out = out.reshape(shape)
-    return float(out) if out.ndim == 0 else out
+    shaped = out.reshape(shape)
+    return float(shaped) if shaped.ndim == 0 else shaped
 
 
 def _qtukey_start(p: np.ndarray, k: int, df: np.ndarray) -> np.ndarray:
@@ -217,8 +219,8 @@ def qtukey(p: np.ndarray | float, k: int, df: np.ndarray | float) -> np.ndarray 
             out[missing[key]] = val
         while len(_qt_cache) > _QT_CACHE_SIZE:
             _qt_cache.popitem(last=False)
-    out = out.reshape(shape)
-    return float(out) if out.ndim == 0 else out
+    shaped = out.reshape(shape)
+    return float(shaped) if shaped.ndim == 0 else shaped
 
 
 # ----------------------------------------------------------------------------- Dunnett and ANOM

@@ -77,6 +77,6 @@ def compact_letters(names: Sequence[str], pairs: Sequence[PairComparison], *,
     columns.sort(key=lambda col: sorted(rank[g] for g in col))
     out = {name: "" for name in names}
     for c, col in enumerate(columns):
-        for g in sorted(col, key=rank.get):
+        for g in sorted(col, key=rank.__getitem__):
             out[names[g]] += _letter(c)
     return out

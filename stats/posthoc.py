@@ -28,17 +28,18 @@ from collections.abc import Sequence
 import numpy as np
 from lotwatch.stats.distributions import pdunnett, ptukey, qdunnett, qtukey
 from lotwatch.stats.results import DunnettComparison, PairComparison
+from numpy.typing import ArrayLike
 from scipy import special
 from scipy import stats as sps
 
 ADJUST_METHODS = ("holm", "bh", "by", "bonferroni", "none")
 
 
-def _as_arrays(samples: Sequence[Sequence[float]]) -> list[np.ndarray]:
+def _as_arrays(samples: Sequence[ArrayLike]) -> list[np.ndarray]:
     return [np.asarray(s, dtype=float).ravel() for s in samples]
 
 
-def posthoc_problem(samples: Sequence[Sequence[float]], names: Sequence[str],
+def posthoc_problem(samples: Sequence[ArrayLike], names: Sequence[str],
                     method: str = "tukey") -> str | None:
     """Why ``method`` ("tukey", "games-howell", "dunnett", "dunn") cannot run, or None if it can."""
     arrays = _as_arrays(samples)
@@ -102,7 +103,7 @@ def _pair_list(names: Sequence[str], i: np.ndarray, j: np.ndarray, diff: np.ndar
     return out
 
 
-def tukey_kramer(samples: Sequence[Sequence[float]], names: Sequence[str], *,
+def tukey_kramer(samples: Sequence[ArrayLike], names: Sequence[str], *,
                  alpha: float = 0.05) -> list[PairComparison]:
     """Tukey-Kramer simultaneous comparisons of all pairs (equal variances).
 
@@ -124,7 +125,7 @@ def tukey_kramer(samples: Sequence[Sequence[float]], names: Sequence[str], *,
     return _pair_list(names, i, j, diff, diff - crit * se, diff + crit * se, p, alpha)
 
 
-def games_howell(samples: Sequence[Sequence[float]], names: Sequence[str], *,
+def games_howell(samples: Sequence[ArrayLike], names: Sequence[str], *,
                  alpha: float = 0.05) -> list[PairComparison]:
     """Games-Howell comparisons of all pairs (unequal variances).
 
@@ -147,7 +148,7 @@ def games_howell(samples: Sequence[Sequence[float]], names: Sequence[str], *,
     return _pair_list(names, i, j, diff, diff - crit * se, diff + crit * se, p, alpha)
 
 
-def dunnett(samples: Sequence[Sequence[float]], names: Sequence[str], *, reference: str,
+def dunnett(samples: Sequence[ArrayLike], names: Sequence[str], *, reference: str,
             alpha: float = 0.05) -> list[DunnettComparison]:
     """Dunnett's two-sided comparisons of every group with ``reference`` (single step).
 
@@ -202,7 +203,7 @@ def adjust_p(p: np.ndarray, method: str) -> np.ndarray:
     return out
 
 
-def dunn(samples: Sequence[Sequence[float]], names: Sequence[str], *, adjust: str = "holm",
+def dunn(samples: Sequence[ArrayLike], names: Sequence[str], *, adjust: str = "holm",
          alpha: float = 0.05) -> list[PairComparison]:
     """Dunn's (1964) pairwise z tests on mean ranks with the tie correction.
 

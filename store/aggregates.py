@@ -18,7 +18,7 @@ from __future__ import annotations
 import sqlite3
 from collections import defaultdict
 from collections.abc import Iterable
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 from lotwatch.store.model import CheckReport
 
@@ -150,7 +150,7 @@ def check(store: Store) -> CheckReport:
         problems.append(f"foreign key: {table} row {rowid} points to a missing {parent} row")
     # A few thousand rows each way: compare in Python after one pass of the recomputation.
     cols = "characteristic_id, factor, level, day, n, sum_d, sum_d2, lots"
-    fresh = {}
+    fresh: dict[tuple[Any, ...], tuple[Any, ...]] = {}
     for (factor,) in conn.execute("SELECT name FROM factors").fetchall():
         fresh.update((r[:4], r[4:]) for r in conn.execute(_RECOMPUTE, (factor,)))
     kept = {r[:4]: r[4:] for r in conn.execute(f"SELECT {cols} FROM buckets")}

@@ -6,7 +6,7 @@ Every problem is collected and raised together as one ``BadInput`` naming each f
 from __future__ import annotations
 
 import math
-from typing import Any
+from typing import Any, cast
 
 from lotwatch.store.errors import BadInput, RowProblem
 from lotwatch.store.text import unsafe_character
@@ -52,7 +52,7 @@ def _plausible(plausible: object, problems: list[RowProblem]) -> tuple[float, fl
     if plausible is None:
         return None
     try:
-        a, b = plausible  # type: ignore[misc]
+        a, b = cast("tuple[object, object]", plausible)
     except (TypeError, ValueError):
         problems.append(RowProblem("command line", None, "plausible", str(plausible),
                                    "give the plausible range as a (low, high) pair"))

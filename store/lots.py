@@ -431,15 +431,15 @@ def _write(store: Store, final: list[_Prepared], merged: dict[str, dict[str, str
     conn.executemany("INSERT INTO lots(id, lot_code, created_at) VALUES (?, ?, ?)", new_lots)
     conn.executemany("INSERT INTO lot_tags(lot_id, key, value) VALUES (?, ?, ?)", tag_rows)
     done = 0
-    for k in range(0, len(meas_rows), PROGRESS_EVERY):
+    for start in range(0, len(meas_rows), PROGRESS_EVERY):
         conn.executemany(
             "INSERT INTO measurements(id, lot_id, characteristic_id, seq, original_units, "
             "current_units, measured_at, day, logged_at, logged_by, note, source) "
-            "VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)", meas_rows[k:k + PROGRESS_EVERY])
+            "VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)", meas_rows[start:start + PROGRESS_EVERY])
         conn.executemany(
             "INSERT INTO audit(measurement_id, action, at, by, new_units) "
-            "VALUES (?, 'log', ?, ?, ?)", audit_rows[k:k + PROGRESS_EVERY])
-        done += len(meas_rows[k:k + PROGRESS_EVERY])
+            "VALUES (?, 'log', ?, ?, ?)", audit_rows[start:start + PROGRESS_EVERY])
+        done += len(meas_rows[start:start + PROGRESS_EVERY])
         if progress is not None:
             progress(done)
     deltas.apply(conn)

@@ -47,7 +47,8 @@ def bucket_frame(store: Store, *, characteristic: str | None = None, factor: str
     lots (i64), sorted by characteristic, factor, level, day. ``n`` counts values, ``lots``
     distinct lots (they differ when lots carry replicates); ``day`` is the plant-local date."""
     lo, hi = _bounds(since, until)
-    where, params = [], []
+    where: list[str] = []
+    params: list[object] = []
     if characteristic is not None:
         where.append("b.characteristic_id = ?")
         params.append(store.characteristic(characteristic).id)
@@ -249,7 +250,8 @@ def measurements_frame(store: Store, *, characteristic: str | None = None,
     and logged_at (datetime UTC), logged_by, note, source, voided (bool), current_units,
     original_units, original_value, original_text. Sorted by measured_at, id."""
     lo, hi = _bounds(since, until)
-    where, params = [], []
+    where: list[str] = []
+    params: list[object] = []
     if characteristic is not None:
         where.append("m.characteristic_id = ?")
         params.append(store.characteristic(characteristic).id)

@@ -41,7 +41,9 @@ def main(ctx: click.Context, db: str | None) -> None:
     ctx.ensure_object(dict)
     ctx.obj["db"] = db
     if ctx.invoked_subcommand is None:
-        ctx.invoke(main.get_command(ctx, "watch"))
+        watch = main.get_command(ctx, "watch")
+        assert watch is not None  # registered above
+        ctx.invoke(watch)
 
 
 def _register_all() -> None:

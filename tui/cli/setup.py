@@ -2,7 +2,9 @@
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from pathlib import Path
+from typing import Any
 
 import click
 from lotwatch.tui.cli.common import UserError, db_option, open_store, plain, store_errors
@@ -130,7 +132,7 @@ def characteristic_list(db_path: Path) -> None:
     _table(header, rows)
 
 
-def _table(header: tuple[str, ...], rows: list[tuple[str, ...]]) -> None:
+def _table(header: tuple[str, ...], rows: Sequence[tuple[Any, ...]]) -> None:
     rows = [tuple(truncate(plain(v), CELL_WIDTH) for v in r) for r in rows]
     widths = [max(len(str(r[i])) for r in [header, *rows]) for i in range(len(header))]
     for r in [header, *rows]:

@@ -238,7 +238,7 @@ def trend_series(tr: Any) -> TrendSeries:
     pos = {e: i for i, e in enumerate(ends)}
     for end, lv, mean in tr.frame.select("window_end", "level", "mean").iter_rows():
         means[lv][pos[end]] = mean
-    grand = [None] * len(ends)
+    grand: list[float | None] = [None] * len(ends)
     for end, g in tr.grand_means.select("window_end", "grand_mean").iter_rows():
         grand[pos[end]] = g
     return TrendSeries(labels, levels, means, grand)

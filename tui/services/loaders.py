@@ -177,9 +177,9 @@ def load_detail(path: Path, read_only: bool, request: DetailRequest) -> DetailVi
         if r["mean"] is not None
     ]
     grand_means = []
-    if getattr(d, "grand_means", None) is not None:
+    if (frame := getattr(d, "grand_means", None)) is not None:
         grand_means = [(_day_text(r["window_end"]), float(r["grand_mean"]))
-                       for r in d.grand_means.iter_rows(named=True)
+                       for r in frame.iter_rows(named=True)
                        if r["grand_mean"] is not None]
     pooled, spread = spread_rows(d.battery)
     return DetailView(request=request, characteristic=char_info(d.characteristic),
