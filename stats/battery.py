@@ -17,6 +17,7 @@ from __future__ import annotations
 import functools
 import math
 from collections.abc import Callable, Sequence
+from dataclasses import replace
 from typing import Any, TypeVar
 
 import numpy as np
@@ -46,6 +47,7 @@ from lotwatch.stats.results import (
     PairComparison,
     Recommendation,
 )
+from lotwatch.stats.spread import overall_sd
 from lotwatch.stats.welch import welch_anova
 from scipy import special
 
@@ -56,8 +58,8 @@ DUNN_ADJUST = _posthoc.ADJUST_METHODS
 MAX_MAGNITUDE = 1e150
 
 
-def _group_summaries(names: list[str], arrays: list[np.ndarray],
-                     alpha: float) -> list[GroupSummary]:
+def _group_summaries(names: list[str], arrays: list[np.ndarray], alpha: float,
+                     resolution: str | float | None) -> list[GroupSummary]:
     ns = np.array([a.size for a in arrays], dtype=float)
     sums = np.array([math.fsum(a.tolist()) for a in arrays])
     total, n_total = math.fsum(sums.tolist()), float(ns.sum())
@@ -65,7 +67,7 @@ def _group_summaries(names: list[str], arrays: list[np.ndarray],
     for name, a, n, s in zip(names, arrays, ns, sums, strict=True):
         mean = float(s / n)
         mean = mean + math.fsum((a - mean).tolist()) / n  # one refinement pass
-        sd = float(np.std(a, ddof=1)) if n > 1 else None
+        sd = overall_sd(a, resolution)  # exact from integer units: a constant group gives 0
         lo = hi = None
         if sd is not None:
             half = float(special.stdtrit(n - 1, 1 - alpha / 2)) * sd / math.sqrt(n)
@@ -75,6 +77,15 @@ def _group_summaries(names: list[str], arrays: list[np.ndarray],
         out.append(GroupSummary(name=name, n=int(n), mean=mean, sd=sd, ci_low=lo, ci_high=hi,
                                 diff_from_others=diff))
     return out
+
+
+def _finite_labels(labels: list[object] | None, keep: np.ndarray | None) -> list[object] | None:
+    """The lot labels of the values kept after dropping non-finite ones."""
+    if labels is None or keep is None:
+        return labels
+    if len(labels) != keep.size:
+        raise ValueError(f"{keep.size} values but {len(labels)} lot labels")
+    return [lab for lab, k in zip(labels, keep.tolist(), strict=True) if k]
 
 
 def _guard(notes: list[str], what: str, fn: Callable[[], T], fallback: T) -> T:
@@ -89,8 +100,13 @@ def _guard(notes: list[str], what: str, fn: Callable[[], T], fallback: T) -> T:
 def run_battery(samples: Sequence[Any], names: Sequence[str], *, alpha: float = 0.05,
                 resolution: str | float | None = None, reference: str | None = None,
                 lsl: float | None = None, usl: float | None = None, shift: float | None = None,
-                dunn_adjust: str = "holm", min_n: int = 2) -> BatteryResult:
-    """Run the whole battery on ``samples`` (one array-like per group) labelled by ``names``."""
+                dunn_adjust: str = "holm", min_n: int = 2,
+                lots: Sequence[Sequence[object]] | None = None) -> BatteryResult:
+    """Run the whole battery on ``samples`` (one array-like per group) labelled by ``names``.
+
+    ``lots`` (optional, one label sequence per sample, values in time order) says which lot each
+    value belongs to: capability then reads each group's within SD pooled within lots where lots
+    have replicates, else from the moving range of consecutive lots (``stats.spread``)."""
     notes: list[str] = []
     if not 0 < alpha < 1:
         raise ValueError(f"alpha must be between 0 and 1, got {alpha!r}")
@@ -102,6 +118,10 @@ def run_battery(samples: Sequence[Any], names: Sequence[str], *, alpha: float = 
         shift = None
     if len(samples) != len(names):
         raise ValueError(f"{len(samples)} samples but {len(names)} names")
+    if lots is not None and len(lots) != len(samples):
+        raise ValueError(f"{len(samples)} samples but {len(lots)} lot label lists")
+    lot_of = {str(nm): (None if lots is None else list(lab))
+              for nm, lab in zip(names, lots or [None] * len(names), strict=True)}
     if lsl is not None and usl is not None and not usl > lsl:
         raise ValueError(f"USL {usl} must be greater than LSL {lsl}")
     labels = [str(n) for n in names]
@@ -110,9 +130,11 @@ def run_battery(samples: Sequence[Any], names: Sequence[str], *, alpha: float = 
         raise ValueError("duplicate group names: " + ", ".join(dupes))
 
     cleaned: dict[str, np.ndarray] = {}
+    cleaned_mask: dict[str, np.ndarray] = {}
     for name, s in zip(labels, samples, strict=True):
         a = np.asarray(s, dtype=float).ravel()
         bad = ~np.isfinite(a)
+        cleaned_mask[name] = ~bad
         if bad.any():
             notes.append(f"Dropped {int(bad.sum())} non-finite value(s) from group {name}.")
             a = a[~bad]
@@ -141,7 +163,11 @@ def run_battery(samples: Sequence[Any], names: Sequence[str], *, alpha: float = 
     if table is None:
         table = one_way_anova(arrays, gnames, alpha=alpha)
 
-    groups = _group_summaries(gnames, arrays, alpha) if arrays else []
+    groups = _group_summaries(gnames, arrays, alpha, resolution) if arrays else []
+    if lots is not None:
+        groups = [replace(g, lots=len(set(_finite_labels(lot_of[g.name], cleaned_mask[g.name])
+                                           or [])))
+                  for g in groups]
     welch = welch_anova(arrays)
     kw = kruskal_wallis(arrays, alpha=alpha)
     bf = brown_forsythe(arrays, alpha=alpha)
@@ -201,8 +227,9 @@ def run_battery(samples: Sequence[Any], names: Sequence[str], *, alpha: float = 
         cap = []
         for n, a in kept:
             one = _guard(notes, f"Capability of {n}",
-                         functools.partial(capability, n, a, table.resid_sd, lsl=lsl, usl=usl,
-                                           alpha=alpha), None)
+                         functools.partial(capability, n, a, lsl=lsl, usl=usl,
+                                           lots=_finite_labels(lot_of[n], cleaned_mask.get(n)),
+                                           resolution=resolution, alpha=alpha), None)
             if one is not None:
                 cap.append(one)
 

@@ -86,6 +86,12 @@ def brown_forsythe(samples: Sequence[Any], *, alpha: float = 0.05) -> TestResult
         return _bad(name, "all values equal" if same else "zero within-group variance",
                     "All values are equal." if same else
                     "Every group is constant, so spreads cannot be compared.")
+    if all(a.size <= 2 for a in arrays):
+        # Two values sit equally far from their median, so every group's distances are equal
+        # and the statistic is 0/0; floating point would turn it into rounding noise.
+        return _bad(name, "undefined",
+                    "Undefined: with at most two values per group each group's distances from "
+                    "its median are equal, so Brown-Forsythe is 0/0.")
     t = one_way_anova(z, alpha=alpha)
     if t.status != OK or t.f is None or t.p is None or not math.isfinite(t.f):
         return _bad(name, t.status, "Spreads cannot be compared: " + t.decision)

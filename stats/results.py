@@ -51,6 +51,7 @@ class GroupSummary:
     ci_low: float | None = None
     ci_high: float | None = None
     diff_from_others: float | None = None  # mean(group) - mean of all other observations
+    lots: int | None = None  # distinct lots among the n values, when the caller said which
 
 
 @dataclass(frozen=True)
@@ -210,7 +211,11 @@ class PowerResult:
 
 @dataclass(frozen=True)
 class Capability:
-    """Cp, Cpk (within-group SD) and Pp, Ppk (overall SD) of one group, Cpk interval (Bissell)."""
+    """Cp, Cpk (the group's within SD) and Pp, Ppk (its overall SD), Cpk interval (Bissell).
+
+    ``status`` is None when the indices could be computed, else why not ("undefined: no
+    spread"); ``caveat`` warns of clearly skewed data; ``within_method`` says how the within SD
+    was estimated (pooled within lots, or average moving range / 1.128)."""
 
     group: str
     cp: float | None
@@ -218,6 +223,13 @@ class Capability:
     cpk_ci: tuple[float, float] | None
     pp: float | None
     ppk: float | None
+    n: int = 0
+    lots: int = 0
+    sd_within: float | None = None
+    sd_overall: float | None = None
+    within_method: str = ""
+    status: str | None = None
+    caveat: str | None = None
 
 
 @dataclass(frozen=True)

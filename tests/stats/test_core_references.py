@@ -106,15 +106,20 @@ def test_zero_shift_refused() -> None:
 
 
 def test_bissell_cpk_interval() -> None:
-    # Bissell (1990) approximation: Cpk ± z·√(1/(9n) + Cpk²/(2(n−1))); n = 50, σ known here
-    x = np.linspace(-1, 1, 50) + 10.0
-    c = capability("A", x, 0.5, lsl=8.0, usl=13.0)
+    # Bissell (1990) approximation: Cpk ± z·√(1/(9n) + Cpk²/(2(n−1))). 17 lots of three values
+    # (centre − 0.5, centre, centre + 0.5): the pooled within-lot SD is exactly 0.5.
+    centres = np.linspace(-1, 1, 17) + 10.0
+    x = np.repeat(centres, 3) + np.tile([-0.5, 0.0, 0.5], 17)
+    lots = np.repeat(np.arange(17), 3)
+    c = capability("A", x, lots=lots, lsl=8.0, usl=13.0)
+    assert c.sd_within == pytest.approx(0.5) and c.within_method == "pooled within lots"
     assert c.cp == pytest.approx(5 / 3)
     cpk = min(13 - 10, 10 - 8) / 1.5
     assert c.cpk == pytest.approx(cpk)
-    half = 1.959963984540054 * math.sqrt(1 / 450 + cpk ** 2 / 98)
+    n = 51
+    half = 1.959963984540054 * math.sqrt(1 / (9 * n) + cpk ** 2 / (2 * (n - 1)))
     assert c.cpk_ci == pytest.approx((cpk - half, cpk + half))
-    one_sided = capability("A", x, 0.5, lsl=None, usl=13.0)
+    one_sided = capability("A", x, lots=lots, lsl=None, usl=13.0)
     assert one_sided.cp is None and one_sided.cpk == pytest.approx(2.0)
     assert one_sided.pp is None and one_sided.ppk == pytest.approx(3 / (3 * np.std(x, ddof=1)))
 

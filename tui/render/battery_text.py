@@ -197,13 +197,22 @@ def _effect_power(r: BatteryResult, unit: str) -> list[str]:
 def _capability(r: BatteryResult) -> list[str]:
     if not r.capability:
         return []
-    lines = _heading("Capability (Cp, Cpk from pooled within SD; Pp, Ppk from group SD)")
-    lines.append(f"{'group':<20}{'Cp':>8}{'Cpk':>8}{'Cpk CI low':>12}{'Cpk CI high':>12}"
-                 f"{'Pp':>8}{'Ppk':>8}")
+    lines = _heading("Capability of each group from its own spread")
+    lines.extend(_wrap("Cp, Cpk from the group's within SD (pooled within lots where lots have "
+                       "replicates, else average moving range / 1.128); Pp, Ppk from its overall "
+                       f"SD; Cpk interval {1 - r.alpha:.0%} (Bissell 1990).", ""))
+    lines.append(f"{'group':<16}{'Cp':>8}{'Cpk':>8}{'Cpk interval':>18}"
+                 f"{'Pp':>8}{'Ppk':>8}{'within SD':>12}")
     for c in r.capability:
-        lo, hi = c.cpk_ci if c.cpk_ci else (None, None)
-        lines.append(f"{clean_text(c.group, 20):<20}{num(c.cp, 8, 3)}{num(c.cpk, 8, 3)}"
-                     f"{num(lo, 12, 3)}{num(hi, 12, 3)}{num(c.pp, 8, 3)}{num(c.ppk, 8, 3)}")
+        ci = (f"{num(c.cpk_ci[0], 0).strip()}..{num(c.cpk_ci[1], 0).strip()}"
+              if c.cpk_ci else "-")
+        lines.append(f"{clean_text(c.group, 16):<16}{num(c.cp, 8, 3)}{num(c.cpk, 8, 3)}"
+                     f"{ci:>18}{num(c.pp, 8, 3)}{num(c.ppk, 8, 3)}{num(c.sd_within, 12, 4)}")
+    for c in r.capability:
+        if c.status:
+            lines.extend(_wrap(f"{c.group}: {c.status}."))
+        if c.caveat:
+            lines.extend(_wrap(f"{c.group}: {c.caveat}."))
     return lines
 
 

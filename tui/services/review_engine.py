@@ -512,15 +512,17 @@ def comparison_detail(store, characteristic: str, factor: str, *, as_of: date | 
     if tr.stats is not None and tr.stats.sums.first_day:
         firsts = dict(zip(tr.stats.sums.levels[0], tr.stats.sums.first_day[-1][0], strict=False))
     values = window_values(store, characteristic, factor, latest, settings, firsts)
-    names, samples = [], []
+    names, samples, lots = [], [], []
     for lv, part in sorted(values.partition_by("level", as_dict=True).items()):
         names.append(lv[0] if isinstance(lv, tuple) else lv)
         samples.append(part["value"].to_numpy())
+        lots.append(part["lot"].to_list())  # time order: capability reads each group's spread
     comp = mon.Comparison(ch.name, factor, ch.origin_units, ch.resolution_value, lsl=ch.lsl,
                           usl=ch.usl, min_shift=ch.min_shift)
     gate, _ = mon.practical_gate(comp, settings)
     battery = run_battery(samples, names, alpha=alpha, resolution=ch.resolution, lsl=ch.lsl,
-                          usl=ch.usl, shift=gate, min_n=settings.min_n, reference=reference)
+                          usl=ch.usl, shift=gate, min_n=settings.min_n, reference=reference,
+                          lots=lots)
     gm = tr.grand_means["grand_mean"][-1] if tr.grand_means.height else None
     return ComparisonDetail(ch, factor, latest.label, battery, tr.frame.select(
         "window_end", "level", "n", "mean"), gm, ch.lsl, ch.target, ch.usl, summary,

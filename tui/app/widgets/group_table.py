@@ -1,4 +1,5 @@
-"""The group table: n, mean, SD, confidence interval, difference from the others, ANOM, Cpk."""
+"""The group table: lots and values, mean, SD, confidence interval, difference from the others,
+ANOM, and each group's own Cpk and Ppk (units in the headers)."""
 
 from __future__ import annotations
 
@@ -23,13 +24,16 @@ class GroupTable(DataTable):
         b = detail.battery
         dec = decimals_of(detail.characteristic.resolution)
         anom = {g.group: g.flag for g in b.anom.groups}
-        cpk = {c.group: c.cpk for c in (b.capability or [])}
+        caps = {c.group: c for c in (b.capability or [])}
         conf = round((1 - b.alpha) * 100)
-        headers = ["group", "n", "mean", "SD", f"{conf}% CI", "vs rest", "ANOM"]
-        right = [False, True, True, True, False, True, False]
+        unit = clean(detail.characteristic.unit, 8)
+        u = f" ({unit})" if unit else ""
+        headers = ["group", "lots", "values", f"mean{u}", f"SD{u}", f"{conf}% CI{u}",
+                   f"vs rest{u}", "ANOM"]
+        right = [False, True, True, True, True, False, True, False]
         if b.capability:
-            headers.append("Cpk")
-            right.append(True)
+            headers += ["Cpk", "Ppk"]
+            right += [True, True]
         rows: list[list[str]] = []
         styles: list[list[str]] = []
         for g in b.groups:
@@ -37,14 +41,19 @@ class GroupTable(DataTable):
                   if g.ci_low is not None and g.ci_high is not None else MISSING)
             diff = g.diff_from_others
             flag = anom.get(g.name, "")
-            row = [clean(g.name, GROUP_WIDTH - 1), str(g.n), fixed(g.mean, dec),
+            row = [clean(g.name, GROUP_WIDTH - 1),
+                   MISSING if g.lots is None else f"{g.lots:,}", f"{g.n:,}", fixed(g.mean, dec),
                    fixed(g.sd, dec), ci, MISSING if diff is None else f"{diff:+.{dec}f}",
                    ANOM_MARK.get(flag, MISSING)]
             if b.capability:
-                row.append(num(cpk.get(g.name), 3))
+                cap = caps.get(g.name)
+                if cap is not None and cap.status:
+                    row += ["no spread", "no spread"] if cap.sd_overall == 0 else [MISSING] * 2
+                else:
+                    row += [num(cap.cpk if cap else None, 3), num(cap.ppk if cap else None, 3)]
             rows.append(row)
             st = [""] * len(row)
             if flag in ("above", "below"):
-                st[6] = "bold"
+                st[7] = "bold"
             styles.append(st)
         fill(self, headers, right, rows, keys=[g.name for g in b.groups], styles=styles)
