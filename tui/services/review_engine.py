@@ -512,11 +512,9 @@ def comparison_detail(store, characteristic: str, factor: str, *, as_of: date | 
     if tr.stats is not None and tr.stats.sums.first_day:
         firsts = dict(zip(tr.stats.sums.levels[0], tr.stats.sums.first_day[-1][0], strict=False))
     values = window_values(store, characteristic, factor, latest, settings, firsts)
-    names, samples, lots = [], [], []
-    for lv, part in sorted(values.partition_by("level", as_dict=True).items()):
-        names.append(lv[0] if isinstance(lv, tuple) else lv)
-        samples.append(part["value"].to_numpy())
-        lots.append(part["lot"].to_list())  # time order: capability reads each group's spread
+    parts = sorted(values.partition_by("level", as_dict=True).items())
+    names = [lv[0] if isinstance(lv, tuple) else lv for lv, _ in parts]
+    samples, lots = [p["value"].to_numpy() for _, p in parts], [p["lot"].to_list() for _, p in parts]
     comp = mon.Comparison(ch.name, factor, ch.origin_units, ch.resolution_value, lsl=ch.lsl,
                           usl=ch.usl, min_shift=ch.min_shift)
     gate, _ = mon.practical_gate(comp, settings)
