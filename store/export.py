@@ -17,6 +17,7 @@ target and then linked into place, which fails if the target appeared meanwhile.
 from __future__ import annotations
 
 import os
+import stat
 import sys
 import tempfile
 from dataclasses import dataclass
@@ -102,8 +103,14 @@ def neutralise_text(frame, *, keep: tuple[str, ...] = ()):  # pl.DataFrame -> pl
     return frame.with_columns(exprs) if exprs else frame
 
 
+def neutralise_cell(text: str) -> str:
+    """One text cell or header name made inert for a spreadsheet (``'`` before a formula start)."""
+    return "'" + text if text.startswith(FORMULA_START) else text
+
+
 def csv_text(frame) -> str:
-    """The export frame as CSV text: exact value text, UTC times with ``Z``, text neutralised."""
+    """The export frame as CSV text: exact value text, UTC times with ``Z``, text neutralised
+    (data cells and the header row: a tag key can start like a formula too)."""
     import polars as pl
 
     stamp = "%Y-%m-%dT%H:%M:%SZ"
@@ -112,7 +119,8 @@ def csv_text(frame) -> str:
     frame = neutralise_text(frame.with_columns(times), keep=tuple(_NUMBER_TEXT.values()))
     # numbers come from the exact text after neutralising, so "-0.5" is never quoted
     frame = frame.with_columns(pl.col(text).alias(col) for col, text in _NUMBER_TEXT.items())
-    return frame.drop(list(_NUMBER_TEXT.values())).write_csv()
+    frame = frame.drop(list(_NUMBER_TEXT.values()))
+    return frame.rename({c: neutralise_cell(c) for c in frame.columns}).write_csv()
 
 
 def _umask() -> int:
@@ -137,6 +145,31 @@ def _place(tmp: Path, out: Path, overwrite: bool) -> None:
     tmp.unlink()
 
 
+def _check_target(path: Path, overwrite: bool) -> None:
+    """Refuse a target that is not a new file or (with ``overwrite``) a regular file: a device,
+    FIFO, socket or symbolic link is never replaced (as root, ``--out /dev/null --overwrite``
+    would otherwise swap the device for a plain file)."""
+    try:
+        st = os.lstat(path)
+    except FileNotFoundError:
+        st = None
+    except OSError as exc:
+        raise ExportRefused(f"cannot use {path}: {exc.strerror or exc}") from None
+    if st is not None:
+        if stat.S_ISDIR(st.st_mode):
+            raise ExportRefused(f"{path} is a directory; give a file name")
+        if stat.S_ISLNK(st.st_mode):
+            raise ExportRefused(f"{path} is a symbolic link; not replaced. Give the path of a "
+                                "regular file or a new file name")
+        if not stat.S_ISREG(st.st_mode):
+            raise ExportRefused(f"{path} is not a regular file (a device, FIFO or socket); not "
+                                "replaced. Give a new file name")
+        if not overwrite:
+            raise ExportRefused(f"{path} already exists; not overwritten (use --overwrite)")
+    if not path.parent.is_dir():
+        raise ExportRefused(f"{path.parent} does not exist or is not a folder")
+
+
 def write_export(
     store,
     *,
@@ -155,19 +188,18 @@ def write_export(
     if path is None and format == "parquet":
         raise ExportRefused("Parquet is a binary format: give a file with --out")
     if path is not None:
-        if path.is_dir():
-            raise ExportRefused(f"{path} is a directory; give a file name")
-        if path.exists() and not overwrite:
-            raise ExportRefused(f"{path} already exists; not overwritten (use --overwrite)")
-        if not path.parent.exists():
-            raise ExportRefused(f"{path.parent} does not exist")
+        _check_target(path, overwrite)
     frame = export_frame(store, characteristics=characteristics, since=since, until=until)
 
     if path is None:
         (stream or sys.stdout).write(csv_text(frame))
         return ExportSummary(frame.height, None, format)
 
-    fd, tmp_name = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
+    try:
+        fd, tmp_name = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
+    except OSError as exc:
+        raise ExportRefused(f"cannot write {path}: cannot create a file in {path.parent} "
+                            f"({exc.strerror or exc}); choose a folder you can write") from None
     tmp = Path(tmp_name)
     try:
         if format == "csv":

@@ -43,6 +43,7 @@ from pathlib import Path
 from typing import Any
 
 from lotwatch.store.errors import BadInput, RowProblem, StoreError
+from lotwatch.store.export import neutralise_cell
 
 FORMATS = ("auto", "csv", "parquet")
 LAYOUTS = ("auto", "long", "wide")
@@ -737,10 +738,12 @@ def write_rejected(parsed: ParsedImport, problems: list[RowProblem]) -> Path:
         break
     with fh:
         w = csv.writer(fh)
-        w.writerow(["row", *columns, "problem_column", "reason"])
+        w.writerow(["row", *(neutralise_cell(c) for c in columns), "problem_column", "reason"])
         for row in sorted(by_row, key=lambda r: -1 if r is None else r):
             cells = list(parsed.frame.row(row - 1)) if row is not None else [None] * len(columns)
-            cells = ["" if c is None else str(c) for c in cells]
+            # the reader took the quote off exported formulas: put it back so they stay inert
+            cells = ["" if c is None else neutralise_cell(str(c)) for c in cells]
             for p in by_row[row]:
-                w.writerow([row if row is not None else "", *cells, p.column or "", p.reason])
+                w.writerow([row if row is not None else "", *cells,
+                            neutralise_cell(p.column or ""), neutralise_cell(p.reason)])
     return target

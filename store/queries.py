@@ -242,6 +242,48 @@ def _text_expr(units: str, resolution: str) -> pl.Expr:
                           (a % p).cast(pl.String).str.zfill(k)])
 
 
+# Names an export frame uses for its own columns; a tag key equal to one of them is prefixed.
+_RESERVED = {*FIXED_COLUMNS, *_MEAS_SCHEMA, "measurement_id", "characteristic_id", "resolution",
+             "lot_id"}
+
+
+def tag_column_names(keys: list[str]) -> list[str]:
+    """One distinct column name per tag key: the key itself, or ``tag_`` + key (repeated) while
+    it would clash with a fixed column or another key's column (keys ``value`` and
+    ``tag_value`` become ``tag_value`` and ``tag_tag_value``)."""
+    taken: set[str] = set(_RESERVED)
+    plain = {k for k in keys if k not in _RESERVED}
+    names = []
+    for key in keys:
+        name = key
+        while name in taken or (name != key and name in plain):
+            name = "tag_" + name
+        taken.add(name)
+        names.append(name)
+    return names
+
+
+def _with_tags(store: Store, frame: pl.DataFrame, keys: list[str], tag_cols: list[str],
+               cond: str, params: list) -> pl.DataFrame:
+    """``frame`` (with lot_id) plus one text column per tag key. The tags are read in one query
+    and pivoted in polars: a join per key would stop at SQLite's 64 tables in a join."""
+    if not keys:
+        return frame
+    rows = store.conn.execute(
+        "SELECT t.lot_id, t.key, t.value FROM lot_tags t WHERE t.lot_id IN "
+        "(SELECT DISTINCT m.lot_id FROM measurements m" + cond + ")", params).fetchall()
+    tags = pl.DataFrame(rows, schema={"lot_id": pl.Int64, "key": pl.String, "value": pl.String},
+                        orient="row")
+    del rows
+    column = dict(zip(keys, tag_cols, strict=True))
+    tags = tags.with_columns(pl.col("key").replace_strict(column, return_dtype=pl.String))
+    wide = tags.pivot(on="key", index="lot_id", values="value") if tags.height else \
+        pl.DataFrame(schema={"lot_id": pl.Int64})
+    missing = [pl.lit(None, pl.String).alias(c) for c in tag_cols if c not in wide.columns]
+    wide = wide.with_columns(missing).select("lot_id", *tag_cols)
+    return frame.join(wide, on="lot_id", how="left")
+
+
 def measurements_frame(store: Store, *, characteristic: str | None = None,
                        since: date | None = None, until: date | None = None) -> pl.DataFrame:
     """Every measurement (voided included), one row each, for export and review:
@@ -263,19 +305,16 @@ def measurements_frame(store: Store, *, characteristic: str | None = None,
         params.append(hi)
     keys = [f.name for f in store.factors()]
     keys += [k for k in store.tag_keys() if k not in keys]
-    tag_cols = [f"tag_{k}" if k in FIXED_COLUMNS or k in _MEAS_SCHEMA else k for k in keys]
-    # One LEFT JOIN per tag key pivots the tags in SQLite (a handful of keys, PK lookups).
-    joins = "".join(f" LEFT JOIN lot_tags t{i} ON t{i}.lot_id = m.lot_id AND t{i}.key = ?"
-                    for i in range(len(keys)))
+    tag_cols = tag_column_names(keys)
+    cond = " WHERE " + " AND ".join(where) if where else ""
     sql = ("SELECT m.id, l.lot_code, m.characteristic_id, m.current_units, m.original_units, "
-           "m.voided, m.measured_at, m.logged_at, m.logged_by, m.note, m.source"
-           + "".join(f", t{i}.value" for i in range(len(keys)))
-           + " FROM measurements m JOIN lots l ON l.id = m.lot_id" + joins
-           + (" WHERE " + " AND ".join(where) if where else ""))
-    schema = dict(_MEAS_SCHEMA) | {col: pl.String for col in tag_cols}
-    rows = store.conn.execute(sql, [*keys, *params]).fetchall()
+           "m.voided, m.measured_at, m.logged_at, m.logged_by, m.note, m.source, m.lot_id"
+           " FROM measurements m JOIN lots l ON l.id = m.lot_id" + cond)
+    schema = dict(_MEAS_SCHEMA) | {"lot_id": pl.Int64}
+    rows = store.conn.execute(sql, params).fetchall()
     frame = pl.DataFrame(rows, schema=schema, orient="row")
     del rows
+    frame = _with_tags(store, frame, keys, tag_cols, cond, params).drop("lot_id")
     chars = pl.DataFrame(
         [(c.id, c.name, c.unit, c.resolution) for c in store.characteristics()],
         schema={"characteristic_id": pl.Int64, "characteristic": pl.String, "unit": pl.String,
