@@ -16,6 +16,7 @@ target and then linked into place, which fails if the target appeared meanwhile.
 
 from __future__ import annotations
 
+import csv
 import os
 import stat
 import sys
@@ -106,6 +107,16 @@ def neutralise_text(frame, *, keep: tuple[str, ...] = ()):  # pl.DataFrame -> pl
 def neutralise_cell(text: str) -> str:
     """One text cell or header name made inert for a spreadsheet (``'`` before a formula start)."""
     return "'" + text if text.startswith(FORMULA_START) else text
+
+
+class NeutralWriter:
+    """``csv.writer`` whose text cells are neutralised (``neutralise_cell``)."""
+
+    def __init__(self, fh: IO[str]) -> None:
+        self._writer = csv.writer(fh)
+
+    def writerow(self, row: list[object]) -> None:
+        self._writer.writerow([neutralise_cell(c) if isinstance(c, str) else c for c in row])
 
 
 def csv_text(frame) -> str:

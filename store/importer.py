@@ -43,7 +43,7 @@ from pathlib import Path
 from typing import Any
 
 from lotwatch.store.errors import BadInput, RowProblem, StoreError
-from lotwatch.store.export import neutralise_cell
+from lotwatch.store.export import NeutralWriter
 
 FORMATS = ("auto", "csv", "parquet")
 LAYOUTS = ("auto", "long", "wide")
@@ -721,10 +721,8 @@ def rejected_path(path: Path) -> Path:
 
 
 def write_rejected(parsed: ParsedImport, problems: list[RowProblem]) -> Path:
-    """Write the refused rows (original cells plus ``row``, ``problem_column`` and ``reason``).
-
-    Never overwrites: the file is created exclusively under a fresh name.
-    """
+    """Write the refused rows (cells as read plus ``row``, ``problem_column``, ``reason``) to a
+    fresh file (never overwritten); formulas the reader unquoted are neutralised again."""
     by_row: dict[int | None, list[RowProblem]] = {}
     for p in problems:
         by_row.setdefault(p.row, []).append(p)
@@ -737,13 +735,11 @@ def write_rejected(parsed: ParsedImport, problems: list[RowProblem]) -> Path:
             continue
         break
     with fh:
-        w = csv.writer(fh)
-        w.writerow(["row", *(neutralise_cell(c) for c in columns), "problem_column", "reason"])
+        w = NeutralWriter(fh)
+        w.writerow(["row", *columns, "problem_column", "reason"])
         for row in sorted(by_row, key=lambda r: -1 if r is None else r):
             cells = list(parsed.frame.row(row - 1)) if row is not None else [None] * len(columns)
-            # the reader took the quote off exported formulas: put it back so they stay inert
-            cells = ["" if c is None else neutralise_cell(str(c)) for c in cells]
+            cells = ["" if c is None else str(c) for c in cells]
             for p in by_row[row]:
-                w.writerow([row if row is not None else "", *cells,
-                            neutralise_cell(p.column or ""), neutralise_cell(p.reason)])
+                w.writerow([row if row is not None else "", *cells, p.column or "", p.reason])
     return target
