@@ -128,6 +128,9 @@ class LotwatchApp(StoreWorkers, App[None]):
         self.computing = True
         if self._detail_timer is not None:
             self._detail_timer.stop()
+        if self.detail is None:  # the first comparison: nothing to debounce
+            self.request_detail()
+            return
         self._detail_timer = self.set_timer(DETAIL_DEBOUNCE, self.request_detail)
 
     def watch_review_week(self) -> None:
