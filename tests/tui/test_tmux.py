@@ -98,7 +98,8 @@ def test_the_board_first_then_log_a_lot_in_the_demo_at_80x24(tmux, demo_data_hom
 
     tmux.keys("n")
     screen = tmux.wait_for("Log a lot")
-    assert "site *" in screen and "Values *" in screen
+    assert "site *" in screen and "fill_volume *" in screen  # the highlighted one first
+    assert "cap_torque" in screen  # ... and the others: one lot, several characteristics
     tmux.type("Riverbend")
     tmux.keys("Tab")
     tmux.type("RB-2")

@@ -99,18 +99,42 @@ def time_problem(text: str, now: datetime | None = None) -> str | None:
     return None
 
 
-class ValuesCheck(Validator):
-    """The values field: numbers on the resolution within the plausible range."""
+def spec_notes(text: str, ch: CharacteristicInfo) -> list[str]:
+    """Values beyond the characteristic's LSL or USL: stored all the same, but flagged."""
+    from lotwatch.store.values import BadValue, parse_decimal
 
-    def __init__(self, characteristic: Callable[[], CharacteristicInfo | None]) -> None:
+    out = []
+    for v in split_values(text):
+        try:
+            d = parse_decimal(v)
+            if d.adjusted() > MAX_EXPONENT:
+                continue
+            x = float(d)
+        except (BadValue, ArithmeticError, ValueError):
+            continue  # value_problems says what is wrong with it
+        if ch.lsl is not None and x < ch.lsl:
+            out.append(f"{clean(ch.name, 20)} {clean(v, 20)} is outside specification "
+                       f"(below LSL {ch.lsl:g}): it will be stored and flagged")
+        elif ch.usl is not None and x > ch.usl:
+            out.append(f"{clean(ch.name, 20)} {clean(v, 20)} is outside specification "
+                       f"(above USL {ch.usl:g}): it will be stored and flagged")
+    return out
+
+
+class ValuesCheck(Validator):
+    """A values field: numbers on the resolution within the plausible range."""
+
+    def __init__(self, characteristic: Callable[[], CharacteristicInfo | None], *,
+                 prefix: str = "") -> None:
         super().__init__()
         self._characteristic = characteristic
+        self._prefix = f"{prefix}: " if prefix else ""
 
     def validate(self, value: str) -> ValidationResult:
         problems = value_problems(value, self._characteristic())
         if not problems:
             return self.success()
-        return self.failure("; ".join(problems), value)
+        return self.failure("; ".join(self._prefix + p for p in problems), value)
 
 
 class TimeCheck(Validator):

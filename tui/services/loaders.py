@@ -100,11 +100,15 @@ def load_overview(path: Path, read_only: bool, *, week: str | None = None,
         alerts = read_alerts(store)
         open_alerts = [a for a in alerts if a.state in ACTIVE]
         version = store.data_version()
+        from lotwatch.store.tag_links import single_companions
+
+        links = single_companions(store)
         if on_frame is not None:
             alerting = {a.characteristic for a in open_alerts}
             on_frame(Overview(chars, factors, tags,
                               {c.name: ALERTING if c.name in alerting else CHECKING
-                               for c in chars}, {}, open_alerts, "", version, partial=True))
+                               for c in chars}, {}, open_alerts, "", version, partial=True,
+                              tag_links=links))
         from lotwatch.tui.services.review_engine import run_review
 
         review = run_review(store, week=week, persist=False)
@@ -131,7 +135,7 @@ def load_overview(path: Path, read_only: bool, *, week: str | None = None,
             states[ch.name] = NOT_ENOUGH
     board = board_rows(review.comparisons, chars, open_alerts)
     return Overview(chars, factors, tags, states, comparison_states, open_alerts,
-                    review.window_label, version, window_kind, board=board)
+                    review.window_label, version, window_kind, board=board, tag_links=links)
 
 
 RECENT_LOTS = 3

@@ -104,6 +104,8 @@ class Overview:
     window_kind: str = "trailing"  # the store's review.window setting
     partial: bool = False  # True before the review has run (states are CHECKING)
     board: list[BoardRow] = field(default_factory=list)  # sorted by urgency
+    # (factor, value) -> {coarser factor: the only value seen with it}: the form's suggestions
+    tag_links: dict[tuple[str, str], dict[str, str]] = field(default_factory=dict)
 
 
 @dataclass(frozen=True)

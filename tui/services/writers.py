@@ -23,7 +23,7 @@ def log_draft(path: Path, draft: EntryDraft, by: str) -> LoggedLot:
     When several characteristics share a lot with no lot ID typed, one ID is drawn here so they
     land on the same lot (the store draws one per entry otherwise).
     """
-    from lotwatch.store import LotEntry
+    from lotwatch.store import BadInput, LotEntry
     from lotwatch.store.lots import new_lot_code
     from lotwatch.tui.services.loaders import char_info
 
@@ -36,12 +36,35 @@ def log_draft(path: Path, draft: EntryDraft, by: str) -> LoggedLot:
                for name, values in draft.values.items()]
     with opened(path, False) as store:
         chars = {name: char_info(store.characteristic(name)) for name in draft.values}
-        outcome = store.log_lots(entries)
+        try:
+            outcome = store.log_lots(entries)
+        except BadInput as exc:
+            raise plain_words(exc, lot) from None
     flagged = sum(1 for name, values in draft.values.items() for v in values
                   if outside_spec(float(v), chars[name]))
     stored_lot = outcome.lots[0] if outcome.lots else lot
     return LoggedLot(list(draft.values), stored_lot, outcome.stored, outcome.duplicates,
                      outcome.rounded, flagged, dict(draft.tags))
+
+
+def plain_words(exc: Exception, lot: str | None) -> Exception:
+    """The store's refusal of an entry for a lot it already holds, said as what to do."""
+    from lotwatch.store import BadInput, RowProblem
+
+    assert isinstance(exc, BadInput)
+    problems = []
+    for p in exc.problems:
+        reason = p.reason
+        if "already has" in reason:
+            reason = (f"lot {lot} is already stored with other values ({reason.split(';')[0]}). "
+                      "To change a stored value, open its group's lots (l in the comparison "
+                      "view) and correct it (c); to log a new lot, type another lot ID or "
+                      "leave it blank")
+        elif "is stored with" in reason:
+            reason = (f"{reason}. A lot keeps its tags: type the stored tag, or a new lot ID "
+                      "for a different lot")
+        problems.append(RowProblem("the form", None, p.column, p.value, reason))
+    return BadInput(problems)
 
 
 def correct_value(path: Path, measurement_id: int, new_value: str, reason: str,
