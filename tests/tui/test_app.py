@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import pytest
 from lotwatch.tui.app.application import LotwatchApp
+from lotwatch.tui.app.messages import ChooseView
 from lotwatch.tui.app.screens.acknowledge import AcknowledgeScreen
 from lotwatch.tui.app.screens.alerts import AlertsScreen
 from lotwatch.tui.app.screens.base import LotwatchScreen
@@ -148,8 +149,7 @@ async def test_switching_characteristic_and_factor_changes_the_anova(small_store
             _oracle_f(values["bore"], "line"), rel=1e-9)
         assert screen_text(app) != text_site
 
-        app.post_message(__import__("lotwatch.tui.app.messages", fromlist=["x"]).ChooseView(
-            app.view.but(characteristic="weight")))
+        app.post_message(ChooseView(app.view.but(characteristic="weight")))
         await settle(pilot, lambda: app.detail.characteristic.name == "weight"
                      and not app.computing)
         assert app.detail.factor == "line"
@@ -401,7 +401,6 @@ async def test_a_slow_recompute_never_repaints_over_a_newer_one(small_store, mon
     import sys
     import threading
 
-    from lotwatch.tui.app.messages import ChooseView
     from lotwatch.tui.services import loaders
 
     real = loaders.load_detail

@@ -5,9 +5,9 @@ from __future__ import annotations
 import sqlite3
 from pathlib import Path
 
-import numpy as np
 import pytest
 from lotwatch.tui.app.application import LotwatchApp
+from lotwatch.tui.app.messages import ChooseView, OpenComparison
 from lotwatch.tui.app.screens.board import BoardScreen
 from lotwatch.tui.app.screens.confirm import ConfirmScreen
 from lotwatch.tui.app.screens.entry import LotEntryScreen
@@ -156,7 +156,7 @@ async def test_lots_behind_a_group_correct_void_and_history(small_store):
     app = LotwatchApp(path, poll_seconds=0.1)
     async with app.run_test(size=SIZE) as pilot:
         await _ready(pilot)
-        app.post_message(__import__("lotwatch.tui.app.messages", fromlist=["x"]).OpenComparison(
+        app.post_message(OpenComparison(
             "bore", "site"))
         await settle(pilot, lambda: app.current_mode == "comparison"
                      and app.detail.factor == "site" and not app.computing)
@@ -228,7 +228,7 @@ async def test_entry_remembers_tags_logs_several_characteristics_and_flags_out_o
     app = LotwatchApp(path, poll_seconds=0.1)
     async with app.run_test(size=SIZE) as pilot:
         await _ready(pilot)
-        app.post_message(__import__("lotwatch.tui.app.messages", fromlist=["x"]).ChooseView(
+        app.post_message(ChooseView(
             app.view.but(characteristic="bore", factor="site")))
         await settle(pilot, lambda: app.detail.characteristic.name == "bore"
                      and not app.computing)
@@ -260,7 +260,7 @@ async def test_entry_remembers_tags_logs_several_characteristics_and_flags_out_o
         assert app.screen.focused is form.query_one("#values", Input)
     with Store.open(path, read_only=True) as store:
         rows = store.measurements_frame().filter(lambda_lot("MULTI-1"))
-    assert sorted(zip(rows["characteristic"].to_list(), rows["value"].to_list())) == [
+    assert sorted(zip(rows["characteristic"].to_list(), rows["value"].to_list(), strict=True)) == [
         ("bore", 10.62), ("weight", 50.4)]
 
 
@@ -275,7 +275,7 @@ async def test_a_new_tag_value_needs_an_explicit_y_and_an_old_lot_is_explained(s
     app = LotwatchApp(path)
     async with app.run_test(size=SIZE) as pilot:
         await _ready(pilot)
-        app.post_message(__import__("lotwatch.tui.app.messages", fromlist=["x"]).ChooseView(
+        app.post_message(ChooseView(
             app.view.but(characteristic="bore", factor="site")))
         await settle(pilot, lambda: app.detail.characteristic.name == "bore"
                      and not app.computing)
