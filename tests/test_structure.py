@@ -4,6 +4,7 @@ that installs one top-level name, ``lotwatch``."""
 from __future__ import annotations
 
 import ast
+import shutil
 import subprocess
 import sys
 import zipfile
@@ -167,10 +168,17 @@ def test_no_module_over_400_lines() -> None:
 
 @pytest.mark.slow
 def test_wheel_installs_only_lotwatch(tmp_path: Path) -> None:
-    """Build the wheel as pip would and list the top-level names it puts in site-packages."""
+    """Build the wheel as pip would and list the top-level names it puts in site-packages.
+    It is built from a copy, so no build/ folder is left in the checkout."""
+    src = tmp_path / "src"
+    ignore = shutil.ignore_patterns("__pycache__", "*.egg-info", "build")
+    for name in ("store", "stats", "tui"):
+        shutil.copytree(ROOT / name, src / name, ignore=ignore)
+    for name in ("pyproject.toml", "README.md", "LICENSE"):
+        shutil.copy2(ROOT / name, src / name)
     out = subprocess.run(
         [sys.executable, "-m", "pip", "wheel", "--no-deps", "--quiet",
-         "--wheel-dir", str(tmp_path), str(ROOT)],
+         "--wheel-dir", str(tmp_path), str(src)],
         capture_output=True, text=True, timeout=300)
     assert out.returncode == 0, out.stderr
     (wheel,) = tmp_path.glob("lotwatch-*.whl")
