@@ -60,11 +60,11 @@ from datetime import date, timedelta
 from typing import TYPE_CHECKING
 
 import numpy as np
+from lotwatch.stats.weeks import iso_week_label
 
 if TYPE_CHECKING:
     import polars as pl
 
-CAUTION = "A statistical signal is a reason to investigate, not a disposition of product."
 
 WINDOW_KINDS = ("trailing", "last_n", "week")
 FDR_METHODS = ("bh", "by")
@@ -169,24 +169,6 @@ class ReviewSettings:
 
 # --------------------------------------------------------------------------------------------
 # windows
-
-
-def parse_iso_week(text: str) -> tuple[date, date]:
-    """``"2026-W48"`` → (Monday, Sunday) of that ISO 8601 week. Raises ``ValueError``."""
-    t = text.strip().upper()
-    try:
-        year_s, week_s = t.split("-W")
-        year, week = int(year_s), int(week_s)
-        monday = date.fromisocalendar(year, week, 1)
-    except ValueError:
-        raise ValueError(f"week {text!r}: expected an ISO week such as 2026-W48") from None
-    return monday, monday + timedelta(days=6)
-
-
-def iso_week_label(day: date) -> str:
-    """The ISO 8601 week of a day, e.g. ``2026-W48``."""
-    y, w, _ = day.isocalendar()
-    return f"{y}-W{w:02d}"
 
 
 @dataclass(frozen=True)

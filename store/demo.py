@@ -45,6 +45,8 @@ from dataclasses import dataclass
 from datetime import UTC, date, datetime, timedelta
 from pathlib import Path
 
+from lotwatch.store.values import scale_of
+
 DEMO_SEED = 20_261_201
 WEEKS = 26
 DAYS = WEEKS * 7
@@ -132,10 +134,6 @@ _CORRECTED = (10, "HS-1", "early")  # its first fill_volume value is keyed 10 mL
 _VOIDED = (33, "LS-2", "late")  # its cap_torque value is entered twice; the copy is voided
 
 
-def _decimals(resolution: str) -> int:
-    return len(resolution.split(".", 1)[1]) if "." in resolution else 0
-
-
 @dataclass
 class _Lot:
     day: int
@@ -194,7 +192,7 @@ def _values(rng, spec: DemoCharacteristic, lots: list[_Lot]):  # -> np.ndarray (
 
 
 def _texts(units_row, spec: DemoCharacteristic) -> list[str]:
-    dp = _decimals(spec.resolution)
+    dp = scale_of(spec.resolution)[1]
     res = float(spec.resolution)
     return [f"{int(u) * res:.{dp}f}" for u in units_row]
 

@@ -3,6 +3,7 @@ the JSON contract, 80-column text, and reports in both formats."""
 
 from __future__ import annotations
 
+import html
 import json
 import re
 import shutil
@@ -10,8 +11,8 @@ from datetime import timedelta
 
 import pytest
 from click.testing import CliRunner
-from lotwatch.stats.monitor import CAUTION
 from lotwatch.store import LotEntry, Store
+from lotwatch.tui.caution import CAUTION
 from lotwatch.tui.cli import main
 
 
@@ -100,7 +101,7 @@ def test_report_contains_each_alert_table(demo_copy, demo_replay, tmp_path, suff
     assert f"Alert 1: {name} by line" in text
     assert "Games-Howell" in text and "Capability" in text
     assert "FDR family: 12 comparison(s)" in text
-    assert CAUTION in text
+    assert (html.escape(CAUTION) if suffix == "html" else CAUTION) in text
     if suffix == "html":
         assert text.count("<svg") == 1
         # opens offline: nothing fetched (no scripts, stylesheets or images from elsewhere)

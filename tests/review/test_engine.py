@@ -16,6 +16,7 @@ from hypothesis import strategies as st
 from lotwatch.stats import monitor as mon
 from lotwatch.store import LotEntry, Store
 from lotwatch.store import alerts as store_alerts
+from lotwatch.tui.caution import CAUTION
 from lotwatch.tui.services import review_engine as eng
 
 MONDAY = date(2026, 3, 2)
@@ -165,7 +166,7 @@ def test_lifecycle_open_hold_acknowledge_clear_reopen(tmp_path):
            if e.event == "acknowledged"][0]
     assert (ack.by, ack.note) == ("qe-anna", "checking filler B")
     opened = store_alerts.alert_history(store, site_alerts[0].id)[0]
-    assert opened.details["text"].endswith(mon.CAUTION)
+    assert opened.details["text"].endswith(CAUTION)
     # earlier reviews record nothing; their states are the rule replayed up to their date
     n_events = store.conn.execute("SELECT count(*) FROM alert_events").fetchone()[0]
     replayed = {wk: _state(eng.run_review(store, as_of=_sunday(wk))).alert_state

@@ -9,6 +9,8 @@ from __future__ import annotations
 from dataclasses import dataclass, replace
 from datetime import UTC, date, datetime, timedelta
 
+from lotwatch.stats.weeks import iso_week_label, parse_iso_week
+
 ALPHAS = (0.05, 0.01, 0.10)
 WINDOW_NAMES = {"trailing": "trailing days", "last_n": "last lots per group",
                 "week": "calendar week"}
@@ -50,18 +52,14 @@ def utc_today() -> date:
     return datetime.now(UTC).date()
 
 
-def iso_week(day: date) -> str:
-    """ISO 8601 week label of a day, e.g. 2026-W49."""
-    y, w, _ = day.isocalendar()
-    return f"{y}-W{w:02d}"
+iso_week = iso_week_label  # ISO 8601 week label of a day, e.g. 2026-W49 (the one helper)
 
 
 def parse_week(label: str) -> date | None:
     """Monday of an ISO week label ("2026-W49"), or None if the text is not one."""
     try:
-        y, w = label.strip().upper().split("-W")
-        return date.fromisocalendar(int(y), int(w[:2]), 1)
-    except (ValueError, IndexError):
+        return parse_iso_week(label)[0]
+    except ValueError:
         return None
 
 

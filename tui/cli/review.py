@@ -35,7 +35,7 @@ def _as_of(value: str | None) -> date | None:
 def _check_week(value: str | None) -> str | None:
     if value is None:
         return None
-    from lotwatch.stats.monitor import parse_iso_week
+    from lotwatch.stats.weeks import parse_iso_week
 
     try:
         parse_iso_week(value)
@@ -121,7 +121,8 @@ def report_command(week: str | None, as_of: str | None, out: Path, fdr: str | No
 
     Example: lotwatch report --week 2026-W48 --out w48.html
     """
-    from lotwatch.tui.render.report import build_weekly_report, report_html, report_markdown
+    from lotwatch.tui.render.weekly import report_html, report_markdown
+    from lotwatch.tui.services.weekly_report import build_weekly_report
 
     suffix = out.suffix.lower()
     if suffix not in (".md", ".html", ".htm"):
@@ -168,8 +169,8 @@ def trend_command(characteristic: str, factor: str, window: str | None, count: i
 
     Example: lotwatch trend fill_volume --by line --windows 20
     """
-    from lotwatch.tui.render.battery_text import clean_text
-    from lotwatch.tui.render.report import trend_chart_text, trend_frame_for_json, trend_table_text
+    from lotwatch.tui.render.safe_text import clean
+    from lotwatch.tui.render.trend import trend_chart_text, trend_frame_for_json, trend_table_text
     from lotwatch.tui.services import review_engine as eng
 
     day = _as_of(as_of)
@@ -182,7 +183,7 @@ def trend_command(characteristic: str, factor: str, window: str | None, count: i
                                "lsl": tr.lsl, "target": tr.target, "usl": tr.usl,
                                "rows": trend_frame_for_json(tr)}, indent=2, default=str))
         return
-    click.echo(clean_text(f"{tr.characteristic.name} by {factor}: mean per window "
+    click.echo(clean(f"{tr.characteristic.name} by {factor}: mean per window "
                           f"({tr.windows[-1].label})", 80))
     click.echo(trend_table_text(tr), nl=False)
     if not no_chart and tr.frame.height:
@@ -205,10 +206,10 @@ def alerts_list(state: str | None, fmt: str, db_path: Path) -> None:
     """Alerts, most recently changed first."""
     from dataclasses import asdict
 
-    from lotwatch.stats.monitor import CAUTION
     from lotwatch.store import alerts as store_alerts
-    from lotwatch.tui.render.battery_text import clean_text
+    from lotwatch.tui.caution import CAUTION
     from lotwatch.tui.render.report import fit
+    from lotwatch.tui.render.safe_text import clean
 
     with open_store(db_path, read_only=True) as store:
         rows = store_alerts.list_alerts(store, state=state)
@@ -223,9 +224,9 @@ def alerts_list(state: str | None, fmt: str, db_path: Path) -> None:
                f"{'size':>7} {'q':>7} last window")
     for a in rows:
         size = ("+" if a.direction == "higher" else "-") + fit(a.size, 6) if a.size else "-"
-        click.echo(f"{a.id:>4} {a.state:<12} {clean_text(a.characteristic, 16):<16} "
-                   f"{clean_text(a.factor, 8):<8} {clean_text(','.join(a.groups), 12):<12} "
-                   f"{size:>7} {fit(a.q, 7):>7} {clean_text(a.last_window or '', 22)}")
+        click.echo(f"{a.id:>4} {a.state:<12} {clean(a.characteristic, 16):<16} "
+                   f"{clean(a.factor, 8):<8} {clean(','.join(a.groups), 12):<12} "
+                   f"{size:>7} {fit(a.q, 7):>7} {clean(a.last_window or '', 22)}")
     click.echo(CAUTION)
 
 
@@ -235,20 +236,20 @@ def alerts_list(state: str | None, fmt: str, db_path: Path) -> None:
 @store_errors
 def alerts_show(alert_id: int, db_path: Path) -> None:
     """One alert and its whole event trail."""
-    from lotwatch.stats.monitor import CAUTION
     from lotwatch.store import alerts as store_alerts
-    from lotwatch.tui.render.battery_text import clean_text
+    from lotwatch.tui.caution import CAUTION
+    from lotwatch.tui.render.safe_text import clean
 
     with open_store(db_path, read_only=True) as store:
         a = store_alerts.get_alert(store, alert_id)
         events = store_alerts.alert_history(store, alert_id)
     frac = f" ({a.size_fraction:.0%} of the tolerance)" if a.size_fraction else ""
     size = f"{a.size:.4g}" if a.size is not None else "?"
-    click.echo(clean_text(f"Alert {a.id}: {a.characteristic} by {a.factor}, {a.state}"))
+    click.echo(clean(f"Alert {a.id}: {a.characteristic} by {a.factor}, {a.state}"))
     q = f"; q = {a.q:.3g}" if a.q is not None else ""
-    click.echo(clean_text(f"  groups: {', '.join(a.groups) or '-'}; {a.direction or 'differs'} "
+    click.echo(clean(f"  groups: {', '.join(a.groups) or '-'}; {a.direction or 'differs'} "
                           f"by {size}{frac}{q}"))
-    click.echo(clean_text(f"  opened {a.opened_at} in {a.opened_window}; last window "
+    click.echo(clean(f"  opened {a.opened_at} in {a.opened_window}; last window "
                           f"{a.last_window}"))
     click.echo("Events:")
     for e in events:
@@ -259,7 +260,7 @@ def alerts_show(alert_id: int, db_path: Path) -> None:
             line += f" in {e.window}"
         if e.note:
             line += f": {e.note}"
-        click.echo(clean_text(line))
+        click.echo(clean(line))
     click.echo(CAUTION)
 
 

@@ -12,19 +12,10 @@ import textwrap
 from collections.abc import Iterable
 
 from lotwatch.stats.results import BatteryResult, PairComparison, TestResult
+from lotwatch.tui.caution import CAUTION
+from lotwatch.tui.render.safe_text import clean
 
 WIDTH = 80
-CAUTION = ("A statistical signal is a reason to investigate, not a disposition of product; "
-           "follow your site's quality procedures.")
-
-
-def clean_text(s: str, limit: int | None = None) -> str:
-    """``s`` with non-printable characters escaped and, past ``limit`` characters, cut with ``~``."""
-    out = "".join(c if c.isprintable() else
-                  (f"\\x{ord(c):02x}" if ord(c) < 256 else f"\\u{ord(c):04x}") for c in str(s))
-    if limit is not None and len(out) > limit:
-        out = out[: limit - 1] + "~"
-    return out
 
 
 def num(x: float | None, width: int = 10, digits: int = 6) -> str:
@@ -55,7 +46,7 @@ def _p_words(p: float | None) -> str:
 
 
 def _wrap(text: str, indent: str = "  ") -> list[str]:
-    return textwrap.wrap(clean_text(text), WIDTH - 1, initial_indent=indent,
+    return textwrap.wrap(clean(text), WIDTH - 1, initial_indent=indent,
                          subsequent_indent=indent + "  ") or [indent]
 
 
@@ -107,16 +98,16 @@ def _checks(r: BatteryResult) -> list[str]:
 
 
 def _groups(r: BatteryResult, unit: str) -> list[str]:
-    u = f" ({clean_text(unit, 10)})" if unit else ""
+    u = f" ({clean(unit, 10)})" if unit else ""
     lines = _heading(f"Groups{u}, {1 - r.alpha:g} confidence intervals of the mean")
     lines.append(f"{'group':<14}{'n':>5} {'mean':>10} {'sd':>9} {'CI low':>10} {'CI high':>10} "
                  f"{'vs others':>10} {'let':<4}")
     for g in r.groups:
-        lines.append(f"{clean_text(g.name, 14):<14}{g.n:>5} {num(g.mean)} {num(g.sd, 9)} "
+        lines.append(f"{clean(g.name, 14):<14}{g.n:>5} {num(g.mean)} {num(g.sd, 9)} "
                      f"{num(g.ci_low)} {num(g.ci_high)} {num(g.diff_from_others)} "
-                     f"{clean_text(r.letters.get(g.name, ''), 4):<4}".rstrip())
+                     f"{clean(r.letters.get(g.name, ''), 4):<4}".rstrip())
     for e in r.excluded:
-        lines.append(f"{clean_text(e.name, 14):<14}{e.n:>5}  excluded: {clean_text(e.reason)}")
+        lines.append(f"{clean(e.name, 14):<14}{e.n:>5}  excluded: {clean(e.reason)}")
     if r.letters:
         lines.extend(_wrap(f"Groups sharing a letter do not differ ({r.recommendation.posthoc}, "
                            f"alpha {r.alpha:g}).", ""))
@@ -130,7 +121,7 @@ def _pairs(title: str, pairs: list[PairComparison], ranks: bool = False) -> list
     diff = "rank diff" if ranks else "diff"
     lines.append(f"{'pair':<29}{diff:>10} {'lower':>10} {'upper':>10} {'p adj':>9} sig")
     for p in pairs:
-        label = f"{clean_text(p.a, 13)} - {clean_text(p.b, 13)}"
+        label = f"{clean(p.a, 13)} - {clean(p.b, 13)}"
         lines.append(f"{label:<29}{num(p.diff)} {num(p.lower)} {num(p.upper)} {pval(p.p, 9)} "
                      f"{'yes' if p.significant else 'no'}")
     return lines
@@ -139,10 +130,10 @@ def _pairs(title: str, pairs: list[PairComparison], ranks: bool = False) -> list
 def _dunnett(r: BatteryResult) -> list[str]:
     if r.dunnett is None:
         return []
-    lines = _heading(f"Dunnett: each group against {clean_text(r.reference or '', 30)}")
+    lines = _heading(f"Dunnett: each group against {clean(r.reference or '', 30)}")
     lines.append(f"{'group':<29}{'diff':>10} {'lower':>10} {'upper':>10} {'p adj':>9} sig")
     for c in r.dunnett:
-        lines.append(f"{clean_text(c.group, 29):<29}{num(c.diff)} {num(c.lower)} {num(c.upper)} "
+        lines.append(f"{clean(c.group, 29):<29}{num(c.diff)} {num(c.lower)} {num(c.upper)} "
                      f"{pval(c.p, 9)} {'yes' if c.significant else 'no'}")
     return lines
 
@@ -155,8 +146,8 @@ def _anom(r: BatteryResult) -> list[str]:
                      f"{num(a.grand_mean, 0).strip()}, h = {num(a.critical_value, 0, 4).strip()})")
     lines.append(f"{'group':<29}{'mean':>10} {'lower':>10} {'upper':>10}  flag")
     for g in a.groups:
-        lines.append(f"{clean_text(g.group, 29):<29}{num(g.mean)} {num(g.lower)} {num(g.upper)}"
-                     f"  {clean_text(g.flag)}")
+        lines.append(f"{clean(g.group, 29):<29}{num(g.mean)} {num(g.lower)} {num(g.upper)}"
+                     f"  {clean(g.flag)}")
     return lines
 
 
@@ -179,7 +170,7 @@ def _effect_power(r: BatteryResult, unit: str) -> list[str]:
                            f"{num(v.var_between, 0, 4).strip()}, within-group variance "
                            f"{num(v.var_within, 0, 4).strip()}, intraclass correlation "
                            f"{num(v.icc, 0, 3).strip()}{_ci(v.icc_ci)}."))
-    u = f" {clean_text(unit, 10)}" if unit else ""
+    u = f" {clean(unit, 10)}" if unit else ""
     if p.detectable_shift_80 is not None:
         lines.extend(_wrap(f"Smallest shift of one group detectable with 80% power now: "
                            f"{num(p.detectable_shift_80, 0, 4).strip()}{u}."))
@@ -206,7 +197,7 @@ def _capability(r: BatteryResult) -> list[str]:
     for c in r.capability:
         ci = (f"{num(c.cpk_ci[0], 0).strip()}..{num(c.cpk_ci[1], 0).strip()}"
               if c.cpk_ci else "-")
-        lines.append(f"{clean_text(c.group, 16):<16}{num(c.cp, 8, 3)}{num(c.cpk, 8, 3)}"
+        lines.append(f"{clean(c.group, 16):<16}{num(c.cp, 8, 3)}{num(c.cpk, 8, 3)}"
                      f"{ci:>18}{num(c.pp, 8, 3)}{num(c.ppk, 8, 3)}{num(c.sd_within, 12, 4)}")
     for c in r.capability:
         if c.status:

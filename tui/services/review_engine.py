@@ -33,8 +33,9 @@ from typing import Any
 import numpy as np
 import polars as pl
 from lotwatch.stats import monitor as mon
-from lotwatch.stats.monitor import CAUTION, ReviewSettings
+from lotwatch.stats.monitor import ReviewSettings
 from lotwatch.stats.results import json_safe
+from lotwatch.tui.caution import CAUTION
 
 LAST_REVIEW_KEY = "review.last_recorded_as_of"
 

@@ -2,12 +2,8 @@
 
 from __future__ import annotations
 
+from lotwatch.tui.caution import CAUTION as CAUTION  # the one sentence, re-exported
 from textual.widgets import Static
-
-CAUTION = (
-    "A statistical signal is a reason to investigate, not a disposition of product: "
-    "follow your site's quality procedures and qualified people."
-)
 
 
 class Caution(Static):
