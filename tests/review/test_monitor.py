@@ -12,6 +12,7 @@ import scipy.stats as ss
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from lotwatch.stats import monitor as mon
+from lotwatch.stats import weeks
 
 DAY0 = date(2026, 1, 5)  # a Monday
 
@@ -152,10 +153,10 @@ def test_last_n_window_takes_whole_days_back_to_n_lots():
 
 def test_iso_weeks():
     """ISO 8601 weeks (datetime.date.fromisocalendar is the oracle)."""
-    assert mon.parse_iso_week("2026-W48") == (date(2026, 11, 23), date(2026, 11, 29))
-    assert mon.iso_week_label(date(2027, 1, 1)) == "2026-W53"  # 2026 has 53 ISO weeks
+    assert weeks.parse_iso_week("2026-W48") == (date(2026, 11, 23), date(2026, 11, 29))
+    assert weeks.iso_week_label(date(2027, 1, 1)) == "2026-W53"  # 2026 has 53 ISO weeks
     with pytest.raises(ValueError, match="ISO week"):
-        mon.parse_iso_week("2026-48")
+        weeks.parse_iso_week("2026-48")
     plan = mon.window_plan(date(2026, 11, 25), mon.ReviewSettings(window="week"), 2)
     assert [w.label for w in plan] == ["2026-W47", "2026-W48"]
     assert plan[-1].end == date(2026, 11, 25)  # cut at the review day

@@ -33,6 +33,7 @@ from typing import Any
 import numpy as np
 import polars as pl
 from lotwatch.stats import monitor as mon
+from lotwatch.stats import weeks
 from lotwatch.stats.monitor import ReviewSettings
 from lotwatch.stats.results import json_safe
 from lotwatch.tui.caution import CAUTION
@@ -199,7 +200,7 @@ def resolve_as_of(*, as_of: date | None = None, week: str | None = None) -> date
     if week is not None and as_of is not None:
         raise ValueError("give either a week or an as-of date, not both")
     if week is not None:
-        return mon.parse_iso_week(week)[1]
+        return weeks.parse_iso_week(week)[1]
     if as_of is not None:
         return as_of
     return datetime.now(UTC).date()
