@@ -1,5 +1,6 @@
-"""Rolling-window monitoring: window plans, per-window group sums, vectorised one-way statistics
-over every window × comparison, family-wise false-discovery control and the K-of-M alert rule.
+"""Rolling-window explanation: window plans, per-window group sums, vectorised one-way statistics
+over every window × comparison, family-wise false-discovery control and the practical gate.
+(Alerts come from the sequential detectors in ``stats.detect``.)
 
 Pure computation on numpy arrays and polars frames; no SQLite. A *comparison* is one
 characteristic × one grouping factor; a *window* is a span of days (or the last N lots of each
@@ -87,8 +88,8 @@ class ReviewSettings:
       "last_n" (the last ``last_n`` lots of each group, rounded out to whole days, evaluated every
       ``step_days``) or "week" (ISO calendar weeks, Monday to Sunday).
     * ``min_n``: a group with fewer lots than this in a window is left out of that window.
-    * An alert opens when q ≤ ``fdr_level`` and the largest shift ≥ the practical gate in
-      ``alert_k`` of the last ``alert_m`` windows; it clears after ``alert_m`` windows without.
+    * A window *signal* (shown beside the detectors, no longer what opens alerts): q ≤
+      ``fdr_level`` and the largest shift ≥ the practical gate.
     * Practical gate: the characteristic's min_shift; else ``tolerance_fraction`` × (USL − LSL)
       when both limits exist (1/8 is this tool's default, not a standard); else
       ``no_limits_gate``: "detectable" (the shift must reach the window's 80%-power detectable
@@ -100,8 +101,6 @@ class ReviewSettings:
     step_days: int = 7
     last_n: int = 30
     min_n: int = 5
-    alert_k: int = 2
-    alert_m: int = 3
     fdr_level: float = 0.05
     fdr_method: str = "bh"
     tolerance_fraction: float = 0.125
@@ -115,8 +114,6 @@ class ReviewSettings:
         "review.step_days": "step_days",
         "review.last_n": "last_n",
         "review.min_lots": "min_n",
-        "review.alert_k": "alert_k",
-        "review.alert_m": "alert_m",
         "review.fdr_level": "fdr_level",
         "review.fdr_method": "fdr_method",
         "review.tolerance_fraction": "tolerance_fraction",
@@ -153,11 +150,9 @@ class ReviewSettings:
         if self.no_limits_gate not in NO_LIMITS_GATES:
             problems.append(f"review.no_limits_gate = {self.no_limits_gate!r}: use detectable or skip")
         for name, lo in (("days", 1), ("step_days", 1), ("last_n", 2), ("min_n", 2),
-                         ("alert_k", 1), ("alert_m", 1), ("trend_windows", 1)):
+                         ("trend_windows", 1)):
             if getattr(self, name) < lo:
                 problems.append(f"{name} = {getattr(self, name)}: must be at least {lo}")
-        if self.alert_k > self.alert_m:
-            problems.append(f"review.alert_k = {self.alert_k} exceeds review.alert_m = {self.alert_m}")
         if not 0 < self.fdr_level < 1:
             problems.append(f"review.fdr_level = {self.fdr_level}: must be between 0 and 1")
         if not 0 < self.tolerance_fraction <= 1:
@@ -598,44 +593,6 @@ def signals(stats: WindowStats, q: np.ndarray, settings: ReviewSettings,
     with np.errstate(invalid="ignore"):
         sig = (q <= settings.fdr_level) & (np.abs(stats.largest_shift) >= gates)
     return np.where(np.isnan(q) | np.isnan(gates), False, sig), gates
-
-
-ALERT_STATES = ("open", "acknowledged", "cleared")
-
-
-@dataclass(frozen=True)
-class AlertDecision:
-    """The state after a review and the event to record (None: nothing new to record)."""
-
-    state: str | None  # None = no alert exists
-    event: str | None  # "opened" | "reopened" | "held" | "cleared" | None
-    count: int  # windows with a signal among the last M
-
-
-def decide_alert(history: Sequence[bool], previous: str | None, *, k: int, m: int,
-                 latest_testable: bool = True) -> AlertDecision:
-    """The K-of-M rule with hysteresis, as a pure function of the last windows and the state.
-
-    ``history``: signal per window, oldest first, the latest last (only the last ``m`` count;
-    windows that do not exist yet count as absent). ``previous``: None (no alert yet), "open",
-    "acknowledged" or "cleared".
-
-    * no alert / cleared: opens ("opened" / "reopened") when ≥ k of the last m windows signal.
-    * open / acknowledged: stays ("held") while any of the last m windows signals; clears when
-      none of them does (absent for m windows). An acknowledgement survives holds.
-    * ``latest_testable`` False (the latest window had not enough data for a test): an alert is
-      held, not cleared; missing data is not evidence that the difference has gone.
-    """
-    if previous is not None and previous not in ALERT_STATES:
-        raise ValueError(f"unknown alert state {previous!r}")
-    count = int(sum(bool(x) for x in list(history)[-m:]))
-    if previous in (None, "cleared"):
-        if count >= k:
-            return AlertDecision("open", "opened" if previous is None else "reopened", count)
-        return AlertDecision(previous, None, count)
-    if count == 0 and latest_testable:
-        return AlertDecision("cleared", "cleared", count)
-    return AlertDecision(previous, "held", count)
 
 
 def anom_critical_value(ns: Sequence[int], df: float, alpha: float = 0.05) -> float | None:

@@ -1,6 +1,6 @@
 """Alert states and their event trail, kept in the ``alerts`` and ``alert_events`` tables.
 
-An alert belongs to one characteristic × factor. Its life: ``open`` → (``acknowledged``: who,
+An alert belongs to one characteristic × factor × kind ("mean" or "spread"). Its life: ``open`` → (``acknowledged``: who,
 when, note) → ``cleared`` → ``open`` again when the signal returns (the same row is reopened, so
 one alert carries its whole history). Every change appends an event (opened, held, acknowledged,
 cleared, reopened); nothing is ever updated away or deleted. Each write is one ``store.write()``
@@ -38,6 +38,13 @@ class Alert:
     size_fraction: float | None  # size / (USL − LSL), None without both limits
     q: float | None
     updated_at: str
+    kind: str = "mean"  # "mean" | "spread"
+    onset: str | None = None  # ISO plant day the change is estimated to have begun
+    detected_on: str | None = None  # ISO plant day the detector raised it
+    size_low: float | None = None  # 95% interval of the size, in the characteristic's unit
+    size_high: float | None = None
+    percent_of_tolerance: float | None = None  # 100 × size / (USL − LSL)
+    evidence: float | None = None  # the detector's statistic / its threshold when last written
 
 
 @dataclass(frozen=True)
@@ -56,7 +63,8 @@ class AlertEvent:
 
 _SELECT = """
 SELECT a.id, c.name, a.factor, a.state, a.opened_at, a.opened_window, a.last_window, a.groups,
-       a.direction, a.size, a.size_fraction, a.q, a.updated_at
+       a.direction, a.size, a.size_fraction, a.q, a.updated_at, a.kind, a.onset, a.detected_on,
+       a.size_low, a.size_high, a.percent_of_tolerance, a.evidence
 FROM alerts a JOIN characteristics c ON c.id = a.characteristic_id
 """
 
@@ -64,7 +72,8 @@ FROM alerts a JOIN characteristics c ON c.id = a.characteristic_id
 def _alert(row: tuple) -> Alert:
     groups = json.loads(row[7]) if row[7] else []
     return Alert(int(row[0]), row[1], row[2], row[3], row[4], row[5], row[6], list(groups), row[8],
-                 row[9], row[10], row[11], row[12])
+                 row[9], row[10], row[11], row[12], row[13], row[14], row[15], row[16], row[17],
+                 row[18], row[19])
 
 
 def list_alerts(store, *, state: str | None = None, characteristic: str | None = None,
@@ -99,11 +108,24 @@ def get_alert(store, alert_id: int) -> Alert:
     return _alert(row)
 
 
-def latest_alert(store, characteristic: str, factor: str) -> Alert | None:
-    """The most recent alert of a characteristic × factor (any state), or None."""
-    row = store.conn.execute(_SELECT + " WHERE c.name = ? AND a.factor = ? ORDER BY a.id DESC LIMIT 1",
-                             (characteristic, factor)).fetchone()
+def latest_alert(store, characteristic: str, factor: str, kind: str | None = None) -> Alert | None:
+    """The most recent alert of a characteristic × factor (of one kind, or any), or None."""
+    sql = _SELECT + " WHERE c.name = ? AND a.factor = ?"
+    args: list[Any] = [characteristic, factor]
+    if kind is not None:
+        sql += " AND a.kind = ?"
+        args.append(kind)
+    row = store.conn.execute(sql + " ORDER BY a.id DESC LIMIT 1", args).fetchone()
     return _alert(row) if row else None
+
+
+def latest_alerts(store) -> dict[tuple[str, str, str], Alert]:
+    """The most recent alert of every characteristic × factor × kind that has one, in one query
+    (keyed by (characteristic, factor, kind))."""
+    sql = (_SELECT + " WHERE a.id IN (SELECT max(id) FROM alerts "
+           "GROUP BY characteristic_id, factor, kind)")
+    return {(a.characteristic, a.factor, a.kind): a
+            for a in map(_alert, store.conn.execute(sql).fetchall())}
 
 
 def alert_history(store, alert_id: int) -> list[AlertEvent]:
@@ -130,41 +152,60 @@ class Transition:
     size_fraction: float | None
     q: float | None
     details: dict[str, Any] = field(default_factory=dict)
+    kind: str = "mean"
+    onset: str | None = None
+    detected_on: str | None = None
+    size_low: float | None = None
+    size_high: float | None = None
+    percent_of_tolerance: float | None = None
+    evidence: float | None = None
+
+
+_DESCRIBE = ("groups = ?, direction = ?, size = ?, size_fraction = ?, q = ?, onset = ?, "
+             "detected_on = ?, size_low = ?, size_high = ?, percent_of_tolerance = ?, "
+             "evidence = ?")
+
+
+def _describe(t: Transition) -> tuple:
+    return (json.dumps(list(t.groups)), t.direction, t.size, t.size_fraction, t.q, t.onset,
+            t.detected_on, t.size_low, t.size_high, t.percent_of_tolerance, t.evidence)
 
 
 def record_transitions(store, transitions: list[Transition], *, by: str | None = None,
                        at: str | None = None) -> list[Alert]:
-    """Apply a review's decisions in one transaction; returns the alerts as written.
+    """Apply decisions in one transaction; returns the alerts as written.
 
-    "opened" inserts a new alert; the others update the characteristic × factor's latest alert
-    ("reopened" requires it cleared, "held"/"cleared" require it open or acknowledged; "held"
-    keeps an acknowledgement). An event is appended for each.
+    "opened" inserts a new alert; the others update the characteristic × factor × kind's latest
+    alert ("reopened" requires it cleared, "held"/"cleared" require it open or acknowledged;
+    "held" keeps an acknowledgement and refreshes what the alert says). An event is appended for
+    each. "updated" refreshes what an active alert says without an event (its size and evidence
+    move every day; the trail keeps the changes of state).
     """
     stamp = at or format_stored(now_utc())
     ids: list[int] = []
     with store.write():
         for t in transitions:
-            if t.event not in ("opened", "reopened", "held", "cleared"):
+            if t.event not in ("opened", "reopened", "held", "cleared", "updated"):
                 raise ValueError(f"unknown alert event {t.event!r}")
             row = store.conn.execute("SELECT id FROM characteristics WHERE name = ?",
                                      (t.characteristic,)).fetchone()
             if row is None:
                 raise NotFound(f"no characteristic named {t.characteristic!r}")
             char_id = int(row[0])
-            groups = json.dumps(list(t.groups))
             current = store.conn.execute(
                 "SELECT id, state FROM alerts WHERE characteristic_id = ? AND factor = ? "
-                "ORDER BY id DESC LIMIT 1", (char_id, t.factor)).fetchone()
+                "AND kind = ? ORDER BY id DESC LIMIT 1", (char_id, t.factor, t.kind)).fetchone()
             if t.event == "opened" or current is None:
                 if current is not None and current[1] != "cleared":
-                    raise Conflict(f"{t.characteristic} by {t.factor} already has an active alert "
-                                   f"(id {current[0]})")
+                    raise Conflict(f"{t.characteristic} by {t.factor} already has an active "
+                                   f"{t.kind} alert (id {current[0]})")
                 cur = store.conn.execute(
-                    "INSERT INTO alerts(characteristic_id, factor, state, opened_at, opened_window, "
-                    "last_window, groups, direction, size, size_fraction, q, updated_at) "
-                    "VALUES (?, ?, 'open', ?, ?, ?, ?, ?, ?, ?, ?, ?)",
-                    (char_id, t.factor, stamp, t.window, t.window, groups, t.direction, t.size,
-                     t.size_fraction, t.q, stamp))
+                    "INSERT INTO alerts(characteristic_id, factor, kind, state, opened_at, "
+                    "opened_window, last_window, updated_at, groups, direction, size, "
+                    "size_fraction, q, onset, detected_on, size_low, size_high, "
+                    "percent_of_tolerance, evidence) "
+                    "VALUES (?, ?, ?, 'open', ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
+                    (char_id, t.factor, t.kind, stamp, t.window, t.window, stamp, *_describe(t)))
                 alert_id = int(cur.lastrowid)
                 event = "opened"
             else:
@@ -174,29 +215,31 @@ def record_transitions(store, transitions: list[Transition], *, by: str | None =
                     if state != "cleared":
                         raise Conflict(f"alert {alert_id} is {state}, not cleared; cannot reopen")
                     store.conn.execute(
-                        "UPDATE alerts SET state = 'open', opened_window = ?, last_window = ?, "
-                        "groups = ?, direction = ?, size = ?, size_fraction = ?, q = ?, "
-                        "updated_at = ? WHERE id = ?",
-                        (t.window, t.window, groups, t.direction, t.size, t.size_fraction, t.q,
-                         stamp, alert_id))
+                        f"UPDATE alerts SET state = 'open', opened_window = ?, last_window = ?, "
+                        f"{_DESCRIBE}, updated_at = ? WHERE id = ?",
+                        (t.window, t.window, *_describe(t), stamp, alert_id))
                 elif state == "cleared":
                     raise Conflict(f"alert {alert_id} is cleared; cannot record {event}")
-                elif event == "held":
+                elif event in ("held", "updated"):
                     store.conn.execute(
-                        "UPDATE alerts SET last_window = ?, groups = ?, direction = ?, size = ?, "
-                        "size_fraction = ?, q = ?, updated_at = ? WHERE id = ?",
-                        (t.window, groups, t.direction, t.size, t.size_fraction, t.q, stamp,
-                         alert_id))
+                        f"UPDATE alerts SET last_window = ?, {_DESCRIBE}, updated_at = ? "
+                        "WHERE id = ?", (t.window, *_describe(t), stamp, alert_id))
                 else:  # cleared
                     store.conn.execute(
                         "UPDATE alerts SET state = 'cleared', last_window = ?, updated_at = ? "
                         "WHERE id = ?", (t.window, stamp, alert_id))
-            store.conn.execute(
-                "INSERT INTO alert_events(alert_id, at, event, by, note, window, details) "
-                "VALUES (?, ?, ?, ?, NULL, ?, ?)",
-                (alert_id, stamp, event, by, t.window, json.dumps(t.details, default=str)))
+            if event != "updated":
+                store.conn.execute(
+                    "INSERT INTO alert_events(alert_id, at, event, by, note, window, details) "
+                    "VALUES (?, ?, ?, ?, NULL, ?, ?)",
+                    (alert_id, stamp, event, by, t.window, json.dumps(t.details, default=str)))
             ids.append(alert_id)
-    return [get_alert(store, i) for i in ids]
+    if not ids:
+        return []
+    marks = ", ".join("?" * len(set(ids)))
+    got = {a.id: a for a in map(_alert, store.conn.execute(
+        _SELECT + f" WHERE a.id IN ({marks})", sorted(set(ids))).fetchall())}
+    return [got[i] for i in ids]
 
 
 def acknowledge(store, alert_id: int, *, by: str, note: str = "") -> Alert:

@@ -22,9 +22,12 @@ Planted effects (also given as data in ``DEMO_EFFECTS``):
     of 0..181) by 0.15 mL per week: ``shift(day) = 0.15 * (day - 119) / 7`` mL, so +1.33 mL on the
     last day and +0.9 mL on average over the last 6 weeks, well above the 0.5 mL min shift.
     Because RB-2 is one of Riverbend's two lines, site Riverbend's fill_volume mean rises by half
-    of that (an implied effect, listed with ``implied=True``).
+    of that, and its spread within a day widens as its two lines part (implied effects, listed
+    with ``implied=True``). The detectors find the drift within a week of its size passing the
+    0.5 mL minimum shift (day 142).
 (b) unequal spread: on the night shift cap_torque has sd 0.20 N·m instead of 0.08 (variance
-    ratio 6.25); its mean is unchanged.
+    ratio 6.25); its mean is unchanged. The spread detector raises it (as spread) once the
+    shift has the two weeks of history a group needs.
 (c) skew: turbidity is lognormal, ``exp(N(ln 0.25, 0.5^2))`` NTU (skewness about 1.75), the same
     distribution for every group.
 (d) coarse gauge: label_offset is read to 0.5 mm while its sd is 0.35 mm, so only a handful of
@@ -115,6 +118,9 @@ DEMO_EFFECTS: tuple[DemoEffect, ...] = (
     DemoEffect("mean_drift", "fill_volume", "site", "Riverbend", 18, DRIFT_PER_WEEK / 2,
                "site Riverbend fill_volume mean rises by half of RB-2's drift (RB-2 is one of "
                "its two lines)", implied=True),
+    DemoEffect("spread", "fill_volume", "site", "Riverbend", 18, 0.0,
+               "site Riverbend fill_volume spread within a day widens as RB-2 drifts away from "
+               "RB-1", implied=True),
     DemoEffect("spread", "cap_torque", "shift", "night", None, NIGHT_TORQUE_SD / 0.08,
                "night shift cap_torque sd 0.20 N·m against 0.08 elsewhere (ratio 2.5)"),
     DemoEffect("skew", "turbidity", None, None, None, 0.5,

@@ -175,12 +175,89 @@ def _migrate_to_3(conn: sqlite3.Connection) -> None:
                  "ON CONFLICT(key) DO NOTHING")
 
 
+_DETECTORS = """
+ALTER TABLE alerts ADD COLUMN kind TEXT NOT NULL DEFAULT 'mean';
+ALTER TABLE alerts ADD COLUMN onset TEXT;
+ALTER TABLE alerts ADD COLUMN detected_on TEXT;
+ALTER TABLE alerts ADD COLUMN size_low REAL;
+ALTER TABLE alerts ADD COLUMN size_high REAL;
+ALTER TABLE alerts ADD COLUMN percent_of_tolerance REAL;
+ALTER TABLE alerts ADD COLUMN evidence REAL;
+DROP INDEX alerts_char_factor;
+CREATE INDEX alerts_char_factor ON alerts(characteristic_id, factor, kind, state);
+
+CREATE TABLE detector_progress (
+    characteristic_id INTEGER PRIMARY KEY REFERENCES characteristics(id),
+    through_day       TEXT NOT NULL,
+    dirty_from        TEXT,
+    fingerprint       TEXT NOT NULL
+) STRICT;
+
+CREATE TABLE detector_days (
+    characteristic_id INTEGER NOT NULL REFERENCES characteristics(id),
+    day               TEXT NOT NULL,
+    factor            TEXT NOT NULL,
+    level             TEXT NOT NULL,
+    kind              TEXT NOT NULL CHECK (kind IN ('mean', 'spread')),
+    s_hi REAL NOT NULL, s_lo REAL NOT NULL, onset_hi INTEGER NOT NULL, onset_lo INTEGER NOT NULL,
+    w_hi REAL NOT NULL, wc_hi REAL NOT NULL, w_lo REAL NOT NULL, wc_lo REAL NOT NULL,
+    alarm INTEGER NOT NULL, detected INTEGER NOT NULL, alarm_onset INTEGER NOT NULL,
+    aw REAL NOT NULL, awc REAL NOT NULL,
+    used INTEGER NOT NULL, threshold REAL, evidence REAL, size REAL, size_low REAL,
+    size_high REAL, ref_sd REAL,
+    PRIMARY KEY (characteristic_id, day, factor, level, kind)
+) STRICT, WITHOUT ROWID;
+
+CREATE TRIGGER buckets_dirty_insert AFTER INSERT ON buckets BEGIN
+    UPDATE detector_progress SET dirty_from = NEW.day
+    WHERE characteristic_id = NEW.characteristic_id AND through_day >= NEW.day
+      AND (dirty_from IS NULL OR dirty_from > NEW.day);
+END;
+CREATE TRIGGER buckets_dirty_update AFTER UPDATE ON buckets BEGIN
+    UPDATE detector_progress SET dirty_from = NEW.day
+    WHERE characteristic_id = NEW.characteristic_id AND through_day >= NEW.day
+      AND (dirty_from IS NULL OR dirty_from > NEW.day);
+END;
+CREATE TRIGGER buckets_dirty_delete AFTER DELETE ON buckets BEGIN
+    UPDATE detector_progress SET dirty_from = OLD.day
+    WHERE characteristic_id = OLD.characteristic_id AND through_day >= OLD.day
+      AND (dirty_from IS NULL OR dirty_from > OLD.day);
+END
+"""
+
+
+def _migrate_to_4(conn: sqlite3.Connection) -> None:
+    # Sequential detectors: their per-day state, how far each characteristic is advanced (and
+    # the earliest day a write has touched since: triggers on buckets record it, so every write
+    # path, present or future, marks the detectors for recomputation), and what alerts say.
+    for stmt in _split_triggers(_DETECTORS):
+        conn.execute(stmt)
+
+
+def _split_triggers(script: str) -> list[str]:
+    """Split a script on ';' at the end of a line, keeping trigger bodies (``BEGIN ... END``)
+    whole."""
+    out, buf = [], []
+    for line in script.strip().splitlines():
+        buf.append(line)
+        text = "\n".join(buf).strip()
+        inside = text.upper().startswith("CREATE TRIGGER") and not text.upper().endswith("END;") \
+            and not text.upper().endswith("END")
+        if line.rstrip().endswith(";") and not inside:
+            out.append(text.rstrip(";"))
+            buf = []
+    if "\n".join(buf).strip():
+        out.append("\n".join(buf).strip().rstrip(";"))
+    return [s for s in out if s]
+
+
 # MIGRATIONS[v] brings a store from schema version v-1 to v. Run in order inside one
 # BEGIN IMMEDIATE transaction by ``migrate``. Never edit a released step; add a new one.
 MIGRATIONS: dict[int, Callable[[sqlite3.Connection], None]] = {
     1: _migrate_to_1,
     2: _migrate_to_2,
     3: _migrate_to_3,
+    4: _migrate_to_4,
 }
 SCHEMA_VERSION = max(MIGRATIONS)
 

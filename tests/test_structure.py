@@ -19,8 +19,7 @@ MAX_LINES = 400
 # ceiling) and leaves this list once it is under MAX_LINES.
 KNOWN_LONG = {
     "store/importer.py": 746,
-    "stats/monitor.py": 664,
-    "tui/services/review_engine.py": 624,
+    "stats/monitor.py": 621,
     "store/lots.py": 448,
 }
 

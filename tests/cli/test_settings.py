@@ -20,9 +20,9 @@ def test_settings_set_list_reset_round_trip(cli, db):
 def test_settings_refuses_bad_values_and_stores_nothing(cli, db):
     with Store.open(db) as store:
         before = list(store.conn.iterdump())
-    bad = cli("settings", "set", "review.alert_k", "5", "--db", db)  # default alert_m is 3
+    bad = cli("settings", "set", "detect.spread_ratio", "0.9", "--db", db)
     assert bad.exit_code == 2
-    assert "review.alert_k = 5 exceeds review.alert_m = 3" in bad.output
+    assert "detect.spread_ratio = 0.9: must exceed 1" in bad.output
     unknown = cli("settings", "set", "review.colour", "red", "--db", db)
     assert unknown.exit_code == 2 and "unknown setting 'review.colour'" in unknown.output
     not_a_number = cli("settings", "set", "review.window_days", "four", "--db", db)

@@ -7,7 +7,7 @@ import html
 import json
 import re
 import shutil
-from datetime import timedelta
+from datetime import date, timedelta
 
 import pytest
 from click.testing import CliRunner
@@ -30,8 +30,8 @@ def quiet_store(demo_replay, tmp_path):
 
 def test_review_exit_codes(demo_copy, demo_replay, quiet_store):
     last = demo_replay.reviews[-1].as_of.isoformat()
-    early = (demo_replay.onset - timedelta(days=14)).isoformat()
-    # before the drift: nothing open, 0 even with --fail-on-alert
+    early = (demo_replay.start + timedelta(days=10)).isoformat()
+    # before any group has the history the detectors need: nothing open, 0 with --fail-on-alert
     r = run(quiet_store, "review", "--as-of", early, "--fail-on-alert")
     assert r.exit_code == 0, r.output
     # the replayed store has the RB-2 alert open
@@ -71,7 +71,10 @@ def test_review_json_contract(demo_copy, demo_replay):
     for key in ("k", "n_total", "f", "p", "welch_f", "welch_p", "q", "omega_squared",
                 "largest_shift", "detectable_shift", "alert_state", "status", "excluded"):
         assert key in first
-    assert d["open_alerts"] == 1 and d["caution"] == CAUTION
+    # RB-2 (mean), Riverbend (mean and spread: one comparison) and the night shift (spread)
+    assert d["open_alerts"] == 3 and d["caution"] == CAUTION
+    assert first["detector_group"] == "RB-2" and first["detector_kind"] == "mean"
+    assert first["detector_evidence"] > 1
 
 
 def test_dry_run_records_nothing(quiet_store, demo_replay):
@@ -98,12 +101,12 @@ def test_report_contains_each_alert_table(demo_copy, demo_replay, tmp_path, suff
     text = out.read_text(encoding="utf-8")
     assert "ANOVA table" in text and "Between groups" in text
     name = "fill_volume" if suffix == "html" else "fill\\_volume"  # Markdown escapes _
-    assert f"Alert 1: {name} by line" in text
+    assert re.search(rf"Alert \d+: {re.escape(name)} by line", text)
     assert "Games-Howell" in text and "Capability" in text
     assert "FDR family: 12 comparison(s)" in text
     assert (html.escape(CAUTION) if suffix == "html" else CAUTION) in text
     if suffix == "html":
-        assert text.count("<svg") == 1
+        assert text.count("<svg") == 3  # a trend chart per open alert's comparison
         # opens offline: nothing fetched (no scripts, stylesheets or images from elsewhere)
         assert not re.search(r"<script|<link|<img|@import|src=|url\((?!#)", text, re.I)
         assert not re.search(r'href="https?:', text)
@@ -119,9 +122,11 @@ def test_report_escapes_user_text(tmp_path):
     entries = []
     for d in range(28):
         for i, line in enumerate(["<b>L1</b>", "L|2", "L3"]):
-            v = 10 + (2 if line == "L3" else 0) + 0.1 * ((d * 7 + i) % 5)
-            entries.append(LotEntry("x", [f"{v:.1f}"], {"site": "A", "line": line, "shift": "n"},
-                                    measured_at=f"2026-03-{1 + d:02d}T08:00:00Z"))
+            for j in range(3):  # three lots a day: the detectors need within-day spread
+                v = 10 + (2 if line == "L3" and d >= 20 else 0) + 0.1 * ((d * 7 + i + j) % 5)
+                entries.append(LotEntry("x", [f"{v:.1f}"], {"site": "A", "line": line,
+                                                            "shift": "n"},
+                                        measured_at=f"2026-03-{1 + d:02d}T{8 + j:02d}:00:00Z"))
     s.log_lots(entries)
     s.close()
     html_out, md_out = tmp_path / "r.html", tmp_path / "r.md"
@@ -156,8 +161,19 @@ def test_trend_table_and_chart(demo_copy, demo_replay):
 
 def test_alerts_list_show_ack(demo_copy):
     r = run(demo_copy, "alerts", "list", "--format", "json")
-    (a,) = json.loads(r.output)["alerts"]
-    assert a["state"] == "open" and a["groups"][0] == "RB-2"
+    items = json.loads(r.output)
+    # the contract (README): these keys on every item, ISO days, sizes in units
+    for item in items:
+        for key in ("id", "state", "characteristic", "factor", "groups", "kind", "direction",
+                    "detected_on", "onset", "size", "size_low", "size_high",
+                    "percent_of_tolerance"):
+            assert key in item
+        assert item["kind"] in ("mean", "spread") and isinstance(item["groups"], list)
+        assert date.fromisoformat(item["onset"]) <= date.fromisoformat(item["detected_on"])
+        assert item["size_low"] <= item["size"] <= item["size_high"]
+    (a,) = [i for i in items if i["factor"] == "line"]
+    assert a["state"] == "open" and a["groups"] == ["RB-2"] and a["kind"] == "mean"
+    assert a["direction"] == "higher" and a["unit"] == "mL"
     r = run(demo_copy, "alerts", "ack", str(a["id"]), "--by", "qe-lee", "--note", "valve checked")
     assert r.exit_code == 0
     r = run(demo_copy, "alerts", "show", str(a["id"]))
@@ -167,13 +183,13 @@ def test_alerts_list_show_ack(demo_copy):
 
 
 def test_report_for_an_earlier_week_shows_that_week(demo_copy, demo_replay, tmp_path):
-    """Reviews are recorded up to the end; a report on a week before the drift shows no alert
-    (states replayed to that date) and changes nothing."""
+    """Detectors are advanced to the end; a report on a week before the drift shows the
+    detectors as they were then (from the stored history) and changes nothing."""
+    before = run(demo_copy, "alerts", "list", "--format", "json").output
     out = tmp_path / "early.md"
     early = (demo_replay.onset - timedelta(days=21)).isoformat()
     r = run(demo_copy, "report", "--as-of", early, "--out", str(out))
     assert r.exit_code == 0, r.output
     text = out.read_text()
-    assert "Open alerts: 0." in text and "already recorded" in text
-    r = run(demo_copy, "alerts", "list", "--format", "json")
-    assert [a["state"] for a in json.loads(r.output)["alerts"]] == ["open"]
+    assert f"detector state shown as it was after {early}" in text
+    assert run(demo_copy, "alerts", "list", "--format", "json").output == before

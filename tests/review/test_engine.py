@@ -4,6 +4,7 @@ and the demo store's planted effects (store.demo.DEMO_EFFECTS)."""
 
 from __future__ import annotations
 
+import math
 import tempfile
 from datetime import UTC, date, datetime, timedelta
 from pathlib import Path
@@ -16,7 +17,6 @@ from hypothesis import strategies as st
 from lotwatch.stats import monitor as mon
 from lotwatch.store import LotEntry, Store
 from lotwatch.store import alerts as store_alerts
-from lotwatch.tui.caution import CAUTION
 from lotwatch.tui.services import review_engine as eng
 
 MONDAY = date(2026, 3, 2)
@@ -134,79 +134,11 @@ def _state(result, factor="site"):
     return c
 
 
-def test_lifecycle_open_hold_acknowledge_clear_reopen(tmp_path):
-    """Scripted weeks, 2-of-3 rule: effect in weeks 3-6 and 11-12 (worked by hand):
-    week 4 opens (3, 4), 5-8 hold, acknowledged after week 5, 9 clears (7, 8, 9 quiet),
-    12 reopens (11, 12). Events are recorded once each."""
-    store = _weekly_store(tmp_path / "s.sqlite", {3, 4, 5, 6, 11, 12}, 13)
-    states = {}
-    for wk in range(1, 14):
-        r = eng.run_review(store, as_of=_sunday(wk))
-        c = _state(r)
-        states[wk] = (c.alert_state, c.event)
-        if wk == 5:
-            store_alerts.acknowledge(store, c.alert_id, by="qe-anna", note="checking filler B")
-    assert states[3] == (None, None)
-    assert states[4] == ("open", "opened")
-    assert states[5] == ("open", "held")
-    assert states[6] == ("acknowledged", "held")
-    assert states[8] == ("acknowledged", "held")
-    assert states[9] == ("cleared", "cleared")
-    assert states[10] == ("cleared", None)
-    assert states[11] == ("cleared", None)
-    assert states[12] == ("open", "reopened")
-    alerts = store_alerts.list_alerts(store)
-    site_alerts = [a for a in alerts if a.factor == "site"]
-    assert len(site_alerts) == 1 and site_alerts[0].groups[0] == "B"
-    assert site_alerts[0].direction == "higher"
-    events = [e.event for e in store_alerts.alert_history(store, site_alerts[0].id)]
-    assert events == ["opened", "held", "acknowledged", "held", "held", "held", "cleared",
-                      "reopened", "held"]
-    ack = [e for e in store_alerts.alert_history(store, site_alerts[0].id)
-           if e.event == "acknowledged"][0]
-    assert (ack.by, ack.note) == ("qe-anna", "checking filler B")
-    opened = store_alerts.alert_history(store, site_alerts[0].id)[0]
-    assert opened.details["text"].endswith(CAUTION)
-    # earlier reviews record nothing; their states are the rule replayed up to their date
-    n_events = store.conn.execute("SELECT count(*) FROM alert_events").fetchone()[0]
-    replayed = {wk: _state(eng.run_review(store, as_of=_sunday(wk))).alert_state
-                for wk in (3, 4, 6, 9, 12)}
-    assert replayed == {3: None, 4: "open", 6: "open", 9: "cleared", 12: "open"}
-    assert store.conn.execute("SELECT count(*) FROM alert_events").fetchone()[0] == n_events
-    assert opened.details["family_size"] == 2  # site and line; shift has one level only
-    store.close()
-
-
-def test_rerunning_a_review_records_nothing_new(tmp_path):
-    store = _weekly_store(tmp_path / "s.sqlite", {2, 3, 4}, 5)
-    for wk in range(1, 5):
-        eng.run_review(store, as_of=_sunday(wk))
-    n_events = store.conn.execute("SELECT count(*) FROM alert_events").fetchone()[0]
-    again = eng.run_review(store, as_of=_sunday(4))
-    assert store.conn.execute("SELECT count(*) FROM alert_events").fetchone()[0] == n_events
-    assert _state(again).alert_state == "open" and _state(again).event is None
-    # an earlier review changes nothing and says so
-    old = eng.run_review(store, as_of=_sunday(1))
-    assert not old.recorded and old.notes
-    assert store.conn.execute("SELECT count(*) FROM alert_events").fetchone()[0] == n_events
-    store.close()
-
-
-def test_one_week_signal_does_not_open(tmp_path):
-    """K-of-M hysteresis on a store: a single week with the effect never opens a 2-of-3 alert."""
-    store = _weekly_store(tmp_path / "s.sqlite", {3, 7}, 9)
-    for wk in range(1, 10):
-        r = eng.run_review(store, as_of=_sunday(wk))
-        assert _state(r).alert_state is None
-        assert _state(r).signal == (wk in (3, 7))
-    assert store_alerts.list_alerts(store) == []
-    store.close()
-
-
 def test_practical_gate_stops_tiny_significant_difference(tmp_path):
-    """Site B is 0.1 g higher in every week: highly significant with 10 lots a week at sd 0.2...
-    but below the gate of 1/8 of the 4 g tolerance (0.5 g), so no alert."""
-    store = _weekly_store(tmp_path / "s.sqlite", set(range(1, 9)), 8, shift=0.4, min_shift=None,
+    """Site B is 0.2 g higher in every week: highly significant with 10 lots a week at sd 0.2...
+    but below the gate of 1/8 of the 4 g tolerance (0.5 g), so no signal and no alert (the mean
+    detector, designed for 0.5 g, drifts down at a shift under half of it)."""
+    store = _weekly_store(tmp_path / "s.sqlite", set(range(1, 9)), 8, shift=0.2, min_shift=None,
                           lsl=48, usl=52)
     store.set_setting("review.window", "trailing")  # 28 days: 40 lots per site
     r = eng.run_review(store, as_of=_sunday(8))
@@ -260,40 +192,50 @@ def test_incremental_latest_window_matches_full_review(tmp_path, named):
 
 
 def test_demo_review_finds_the_drifting_line_and_nothing_else(demo_replay):
-    """store.demo.DEMO_EFFECTS: line RB-2's fill_volume drifts up from week 18; every other
-    characteristic × factor has no mean difference. The review opens exactly one alert,
-    fill_volume by line naming RB-2 (higher), after the onset; no signal before the onset; the
-    implied site effect (Riverbend) is the only other comparison allowed a signal."""
-    from lotwatch.store.demo import DEMO_EFFECTS
+    """store.demo.DEMO_EFFECTS: line RB-2's fill_volume drifts up from week 18 by 0.15 mL a week
+    (its size passes the 0.5 mL minimum shift on day 119 + 0.5/0.15 x 7 = 142.3); night-shift
+    cap_torque has a wider spread from the start. The weekly reviews (detectors advanced to each
+    Sunday) open: RB-2 higher (mean) detected within 7 days of that day, the night shift as
+    spread, and nothing else but the effects the drift implies for site Riverbend."""
+    from lotwatch.store.demo import DEMO_EFFECTS, DRIFT_PER_WEEK, DRIFT_START_DAY
 
-    drift = {(e.characteristic, e.factor): e.level for e in DEMO_EFFECTS if e.kind == "mean_drift"}
-    assert drift == {("fill_volume", "line"): "RB-2", ("fill_volume", "site"): "Riverbend"}
-    for r in demo_replay.reviews:
-        for c in r.comparisons:
-            key = (c.characteristic, c.factor)
-            if c.signal:
-                assert key in drift, f"unexpected signal {key} at {r.as_of}"
-                assert c.largest_shift_group == drift[key] and c.direction == "higher"
-                assert r.as_of > demo_replay.onset
-    alerts = store_alerts.list_alerts(Store.open(demo_replay.path, read_only=True))
-    assert [(a.characteristic, a.factor, a.state, a.groups[0], a.direction) for a in alerts] == [
-        ("fill_volume", "line", "open", "RB-2", "higher")]
+    allowed = {(e.characteristic, e.factor, e.level) for e in DEMO_EFFECTS if e.factor}
+    with Store.open(demo_replay.path, read_only=True) as store:
+        alerts = store_alerts.list_alerts(store)
+    for a in alerts:
+        assert (a.characteristic, a.factor, a.groups[0]) in allowed, a
+    got = {(a.characteristic, a.factor, a.kind): a for a in alerts}
+    rb2 = got[("fill_volume", "line", "mean")]
+    assert (rb2.groups, rb2.direction, rb2.state) == (["RB-2"], "higher", "open")
+    passes = demo_replay.start + timedelta(days=math.ceil(DRIFT_START_DAY + 0.5 / DRIFT_PER_WEEK * 7))
+    detected = date.fromisoformat(rb2.detected_on)
+    assert demo_replay.onset < detected <= passes + timedelta(days=7)
+    assert demo_replay.onset <= date.fromisoformat(rb2.onset) < detected
+    night = got[("cap_torque", "shift", "spread")]
+    assert (night.groups, night.direction) == (["night"], "wider")
+    assert ("cap_torque", "shift", "mean") not in got
+    for key in got:
+        assert key[:2] in {("fill_volume", "line"), ("fill_volume", "site"),
+                           ("cap_torque", "shift")}, key
     opened = [r for r in demo_replay.reviews
-              if any(c.event == "opened" for c in r.comparisons)]
-    assert len(opened) == 1
-    assert demo_replay.onset < opened[0].as_of <= demo_replay.onset + timedelta(weeks=8)
+              if any(c.event == "opened" and c.factor == "line" for c in r.comparisons)]
+    assert len(opened) == 1 and opened[0].as_of >= detected
 
 
 def test_demo_unequal_spread_routes_to_welch(demo_replay):
     """Night-shift cap_torque has sd 0.20 against 0.08 (DEMO_EFFECTS 'spread'): the review's
     variance check (Bartlett from sums) reads Welch, the battery's Brown-Forsythe flags it and
-    recommends Welch with Games-Howell; the mean is unchanged, so no alert."""
+    recommends Welch with Games-Howell; the mean is unchanged, so the alert is a spread one."""
     last = demo_replay.reviews[-1]
     (c,) = [c for c in last.comparisons if (c.characteristic, c.factor) == ("cap_torque", "shift")]
     assert c.test == "Welch" and c.bartlett_p < 1e-6
-    assert c.alert_state is None and not c.signal
+    assert c.alert_state == "open" and not c.signal
+    assert (c.detector_kind, c.detector_group, c.detector_direction) == ("spread", "night", "wider")
     with Store.open(demo_replay.path, read_only=True) as store:
+        kinds = {a.kind for a in store_alerts.list_alerts(store)
+                 if (a.characteristic, a.factor) == ("cap_torque", "shift")}
         d = eng.comparison_detail(store, "cap_torque", "shift", as_of=last.as_of)
+    assert kinds == {"spread"}
     b = d.battery
     assert b.brown_forsythe.p < 0.05
     assert (b.recommendation.test, b.recommendation.posthoc) == ("Welch ANOVA", "Games-Howell")

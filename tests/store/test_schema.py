@@ -358,7 +358,7 @@ def test_failed_upgrade_leaves_store_as_it_was(store_path: Path,
 
 def test_an_older_store_is_upgraded_on_open_and_keeps_its_data(store_path: Path) -> None:
     """A store at schema version 1 (before the bucket day index, the lot counts and the plant
-    zone) gains migrations 2 and 3 when opened for writing, with its measurements intact and
+    zone) gains migrations 2 to 4 when opened for writing, with its measurements intact and
     its days unmoved (versioned migrations: common practice)."""
     import sqlite3
 
@@ -369,6 +369,16 @@ def test_an_older_store_is_upgraded_on_open_and_keeps_its_data(store_path: Path)
         s.log_lots([LotEntry("fill", ["500.1", "500.3"], {"site": "A", "line": "1", "shift": "x"},
                              lot="L1", measured_at="2026-11-30T03:00:00Z")])
     conn = sqlite3.connect(store_path)
+    # undo migrations 4 (detectors), 3 (lots, zone) and 2 (day index) by hand: a version-1 file
+    for trig in ("insert", "update", "delete"):
+        conn.execute(f"DROP TRIGGER buckets_dirty_{trig}")
+    conn.execute("DROP TABLE detector_days")
+    conn.execute("DROP TABLE detector_progress")
+    conn.execute("DROP INDEX alerts_char_factor")
+    for col in ("kind", "onset", "detected_on", "size_low", "size_high",
+                "percent_of_tolerance", "evidence"):
+        conn.execute(f"ALTER TABLE alerts DROP COLUMN {col}")
+    conn.execute("CREATE INDEX alerts_char_factor ON alerts(characteristic_id, factor, state)")
     conn.execute("DROP INDEX buckets_day")
     conn.execute("ALTER TABLE buckets DROP COLUMN lots")
     conn.execute("DELETE FROM settings WHERE key = 'plant.time_zone'")
@@ -382,6 +392,7 @@ def test_an_older_store_is_upgraded_on_open_and_keeps_its_data(store_path: Path)
         names = {r[0] for r in s.conn.execute("SELECT name FROM sqlite_master WHERE type='index'")}
         assert "buckets_day" in names
         assert s.plant_zone == "UTC"  # an old store keeps UTC days: nothing moves
+        assert schema.has_table(s.conn, "detector_days")
         assert s.check().ok
         assert s.conn.execute("SELECT count(*) FROM measurements").fetchone()[0] == 1 + 1
         assert {r[-1] for r in s.bucket_frame().rows()} == {1}  # two replicates, one lot

@@ -48,7 +48,7 @@ _when_options = [
     click.option("--week", default=None, metavar="YYYY-Www",
                  help="Review the ISO week ending on its Sunday, e.g. 2026-W48."),
     click.option("--as-of", "as_of", default=None, metavar="DATE",
-                 help="Review windows ending on this day (default: today, UTC)."),
+                 help="Review up to this day (default: the latest day with data)."),
 ]
 
 
@@ -79,7 +79,8 @@ def _run(fn, *args, **kwargs):
 @store_errors
 def review_command(week: str | None, as_of: str | None, fmt: str, fail_on_alert: bool,
                    fdr: str | None, dry_run: bool, db_path: Path) -> None:
-    """Review every characteristic by every factor over rolling windows and update alerts.
+    """Advance the drift detectors to the latest day with data, record their alerts, and explain
+    every characteristic by every factor with the latest window's ANOVA family.
 
     Example: lotwatch review --week 2026-W48 --fail-on-alert
     """
@@ -195,17 +196,32 @@ def alerts_group() -> None:
     """List, show and acknowledge alerts (nothing is ever deleted)."""
 
 
+ALERT_JSON_KEYS = ("id", "state", "characteristic", "factor", "groups", "kind", "direction",
+                   "detected_on", "onset", "size", "size_low", "size_high",
+                   "percent_of_tolerance", "evidence", "unit", "opened_at", "updated_at",
+                   "last_window", "text")
+
+
+def _alert_item(a, unit: str, budget: float) -> dict:
+    """One alert as the JSON contract (README: "alerts list --format json")."""
+    from lotwatch.tui.services.alert_text import stored_alert_sentence
+
+    d = {k: getattr(a, k) for k in ALERT_JSON_KEYS if hasattr(a, k)}
+    d["unit"] = unit
+    d["text"] = stored_alert_sentence(a, unit, budget)
+    return {k: d.get(k) for k in ALERT_JSON_KEYS}
+
+
 @alerts_group.command("list")
 @click.option("--state", type=click.Choice(["open", "acknowledged", "cleared", "active"]),
               default=None, help="Only alerts in this state (active = open or acknowledged).")
 @click.option("--format", "fmt", type=click.Choice(["text", "json"]), default="text",
-              show_default=True, help="A line per alert, or JSON.")
+              show_default=True, help="A line per alert, or a JSON list (keys in the README).")
 @db_option
 @store_errors
 def alerts_list(state: str | None, fmt: str, db_path: Path) -> None:
     """Alerts, most recently changed first."""
-    from dataclasses import asdict
-
+    from lotwatch.stats.detect.settings import DetectorSettings
     from lotwatch.store import alerts as store_alerts
     from lotwatch.tui.caution import CAUTION
     from lotwatch.tui.render.report import fit
@@ -213,20 +229,23 @@ def alerts_list(state: str | None, fmt: str, db_path: Path) -> None:
 
     with open_store(db_path, read_only=True) as store:
         rows = store_alerts.list_alerts(store, state=state)
+        units = {c.name: c.unit for c in store.characteristics()}
+        budget = _run(DetectorSettings.from_lookup, store.get_setting).years_per_false_alert
     if fmt == "json":
-        click.echo(json.dumps({"alerts": [asdict(a) for a in rows], "caution": CAUTION},
-                              indent=2))
+        click.echo(json.dumps([_alert_item(a, units.get(a.characteristic, ""), budget)
+                               for a in rows], indent=2, allow_nan=False))
         return
     if not rows:
         click.echo("No alerts" + (f" in state {state}." if state else "."))
         return
-    click.echo(f"{'id':>4} {'state':<12} {'characteristic':<16} {'factor':<8} {'groups':<12} "
-               f"{'size':>7} {'q':>7} last window")
+    click.echo(f"{'id':>4} {'state':<12} {'characteristic':<14} {'factor':<7} {'kind':<6} "
+               f"{'group':<9} {'size':>7} {'%tol':>5} {'onset':<10} detected")
     for a in rows:
-        size = ("+" if a.direction == "higher" else "-") + fit(a.size, 6) if a.size else "-"
-        click.echo(f"{a.id:>4} {a.state:<12} {clean(a.characteristic, 16):<16} "
-                   f"{clean(a.factor, 8):<8} {clean(','.join(a.groups), 12):<12} "
-                   f"{size:>7} {fit(a.q, 7):>7} {clean(a.last_window or '', 22)}")
+        click.echo(f"{a.id:>4} {a.state:<12} {clean(a.characteristic, 14):<14} "
+                   f"{clean(a.factor, 7):<7} {a.kind:<6} "
+                   f"{clean(','.join(a.groups), 9):<9} {fit(a.size, 7):>7} "
+                   f"{fit(a.percent_of_tolerance, 5):>5} {(a.onset or '-'):<10} "
+                   f"{a.detected_on or '-'}")
     click.echo(CAUTION)
 
 
@@ -236,32 +255,39 @@ def alerts_list(state: str | None, fmt: str, db_path: Path) -> None:
 @store_errors
 def alerts_show(alert_id: int, db_path: Path) -> None:
     """One alert and its whole event trail."""
+    from lotwatch.stats.detect.settings import DetectorSettings
     from lotwatch.store import alerts as store_alerts
     from lotwatch.tui.caution import CAUTION
     from lotwatch.tui.render.safe_text import clean
+    from lotwatch.tui.services.alert_text import stored_alert_sentence
 
     with open_store(db_path, read_only=True) as store:
         a = store_alerts.get_alert(store, alert_id)
         events = store_alerts.alert_history(store, alert_id)
-    frac = f" ({a.size_fraction:.0%} of the tolerance)" if a.size_fraction else ""
-    size = f"{a.size:.4g}" if a.size is not None else "?"
-    click.echo(clean(f"Alert {a.id}: {a.characteristic} by {a.factor}, {a.state}"))
-    q = f"; q = {a.q:.3g}" if a.q is not None else ""
-    click.echo(clean(f"  groups: {', '.join(a.groups) or '-'}; {a.direction or 'differs'} "
-                          f"by {size}{frac}{q}"))
-    click.echo(clean(f"  opened {a.opened_at} in {a.opened_window}; last window "
-                          f"{a.last_window}"))
+        unit = store.characteristic(a.characteristic).unit
+        budget = _run(DetectorSettings.from_lookup, store.get_setting).years_per_false_alert
+    click.echo(clean(f"Alert {a.id}: {a.characteristic} by {a.factor}, {a.kind}, "
+                          f"{a.state}"))
+    for line in _wrap_plain(stored_alert_sentence(a, unit, budget)):
+        click.echo(clean("  " + line))
+    click.echo(clean(f"  opened {a.opened_at} ({a.opened_window}); last {a.last_window}"))
     click.echo("Events:")
     for e in events:
         line = f"  {e.at} {e.event}"
         if e.by:
             line += f" by {e.by}"
         if e.window:
-            line += f" in {e.window}"
+            line += f" ({e.window})"
         if e.note:
             line += f": {e.note}"
         click.echo(clean(line))
     click.echo(CAUTION)
+
+
+def _wrap_plain(text: str) -> list[str]:
+    import textwrap
+
+    return textwrap.wrap(text, 76) or [""]
 
 
 @alerts_group.command("ack")

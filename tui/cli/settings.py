@@ -1,4 +1,4 @@
-"""``lotwatch settings``: show and change the store's review settings (windows, alert rule, FDR)."""
+"""``lotwatch settings``: show and change the store's review settings (windows, FDR, detectors)."""
 
 from __future__ import annotations
 
@@ -13,25 +13,56 @@ _HELP = {
     "review.step_days": "days between successive trailing windows",
     "review.last_n": "lots per group in a last_n window",
     "review.min_lots": "groups with fewer lots in a window are left out of it",
-    "review.alert_k": "an alert needs the signal in K ...",
-    "review.alert_m": "... of the last M windows (and clears after M without)",
-    "review.fdr_level": "q-value at or below which a comparison counts as a signal",
+    "review.fdr_level": "q-value at or below which a window shows a signal (explanation)",
     "review.fdr_method": "bh (Benjamini-Hochberg) or by (Benjamini-Yekutieli)",
     "review.tolerance_fraction": "default minimum shift = this fraction of USL-LSL (a lotwatch default, not a standard)",
     "review.no_limits_gate": "without limits or --min-shift: detectable (80% power shift) or skip",
     "review.trend_windows": "windows shown in trend charts",
+    "detect.years_per_false_alert": "false-alert budget: one false alert per N comparison-years",
+    "detect.spread_ratio": "smallest growth of a group's SD over the rest's that matters (1.5 = +50%)",
+    "detect.trailing_days": "days of history that estimate each group's within-day spread",
+    "detect.warmup_days": "days with data a group needs before its detectors watch it",
+    "detect.dispersion_days": "days whose day-to-day changes estimate extra dispersion",
+    "detect.clear_days": "an alert clears after the group is back within the gate this many days",
+    "detect.no_limits_sigmas": "minimum shift in pooled SDs without limits or a min shift",
 }
 
 
-def _settings_class():
-    from lotwatch.stats.monitor import ReviewSettings
+class _AllSettings:
+    """The review's and the detectors' settings as one table of keys (each class validates its
+    own)."""
 
-    return ReviewSettings
+    def __init__(self) -> None:
+        from lotwatch.stats.detect import DetectorSettings
+        from lotwatch.stats.monitor import ReviewSettings
+
+        self.classes = (ReviewSettings, DetectorSettings)
+        self.KEYS = {k: v for c in self.classes for k, v in c.KEYS.items()}
+
+    def owner(self, key: str):
+        return next(c for c in self.classes if key in c.KEYS)
+
+    def __call__(self):
+        return _Merged([c() for c in self.classes])
+
+    def from_lookup(self, get):
+        return _Merged([c.from_lookup(get) for c in self.classes])
+
+
+class _Merged:
+    """One instance of each settings class."""
+
+    def __init__(self, parts) -> None:
+        self.parts = parts
+
+
+def _settings_class() -> _AllSettings:
+    return _AllSettings()
 
 
 @click.group("settings")
 def settings_group() -> None:
-    """Show and change this store's review settings (windows, alert rule, FDR)."""
+    """Show and change this store's review settings (windows, FDR, detectors)."""
 
 
 @settings_group.command("list")
@@ -44,8 +75,9 @@ def list_settings(db_path: Path) -> None:
     with open_store(db_path, read_only=True) as store:
         current = rs.from_lookup(store.get_setting)
         for key, name in rs.KEYS.items():
-            value = getattr(current, name)
-            mark = "" if value == getattr(defaults, name) else "  (changed from the default)"
+            value = getattr(next(p for p in current.parts if key in type(p).KEYS), name)
+            default = getattr(next(p for p in defaults.parts if key in type(p).KEYS), name)
+            mark = "" if value == default else "  (changed from the default)"
             click.echo(f"{key:<27} {value!s}{mark}\n    {_HELP.get(key, '')}")
 
 
@@ -82,7 +114,7 @@ def reset_setting(key: str, db_path: Path) -> None:
         raise UserError(f"unknown setting {key!r}; known: {', '.join(rs.KEYS)}")
     with open_store(db_path) as store:
         store.set_setting(key, None)
-    default = getattr(rs(), rs.KEYS[key])
+    default = getattr(rs.owner(key)(), rs.KEYS[key])
     click.echo(f"{key} = {default} (default)")
 
 

@@ -14,6 +14,7 @@ import textwrap
 from typing import Any
 
 from lotwatch.tui.caution import CAUTION
+from lotwatch.tui.render.detector_text import detector_cell, detector_summary, settings_sentence
 from lotwatch.tui.render.safe_text import clean
 
 WIDTH = 80
@@ -65,7 +66,7 @@ def _shift(c: Any, group_width: int) -> str:
 # (header, width, alignment); 79 characters with the separators
 _TEXT_COLS = (("char.", 11, "<"), ("by", 5, "<"), ("window", 9, "<"), ("k", 2, ">"),
               ("F", 6, ">"), ("p", 6, ">"), ("q", 6, ">"), ("ω²", 4, ">"),
-              ("shift grp", 10, "<"), ("det.", 5, ">"), ("alert", 5, "<"))
+              ("shift grp", 10, "<"), ("evid", 5, ">"), ("alert", 5, "<"))
 
 
 def _text_row(cells: list[str]) -> str:
@@ -86,20 +87,6 @@ def _wrap(text: str, indent: str = "") -> list[str]:
     return textwrap.wrap(text, WIDTH - 1, initial_indent=indent, subsequent_indent=indent) or [""]
 
 
-def settings_sentence(result: Any) -> str:
-    s = result.settings
-    if s.window == "trailing":
-        win = f"trailing {s.days}-day windows every {s.step_days} days"
-    elif s.window == "last_n":
-        win = f"the last {s.last_n} lots of each group, every {s.step_days} days"
-    else:
-        win = "ISO calendar weeks"
-    return (f"Windows: {win}; groups with fewer than {s.min_n} lots left out. An alert opens "
-            f"when q <= {result.fdr_level:g} and the largest shift reaches the practical gate in "
-            f"{s.alert_k} of the last {s.alert_m} windows, and clears after {s.alert_m} windows "
-            "without.")
-
-
 def render_review_text(result: Any) -> str:
     """The review as plain text, no line longer than 80 characters."""
     lines = [clean(f"lotwatch review as of {result.as_of.isoformat()}: {result.window_label}",
@@ -113,13 +100,14 @@ def render_review_text(result: Any) -> str:
         lines.append(_text_row([
             clean(c.characteristic), clean(c.factor), c.window_short, str(c.k),
             _f_cell(c, 6), fit(c.p_used, 6), fit(c.q, 6), _omega(c.omega_squared),
-            _shift(c, 4), fit(c.detectable_shift, 5), alert_tag(c)]))
+            _shift(c, 4), detector_cell(c), alert_tag(c)]))
     lines.append("")
     lines += _wrap("char.: characteristic; by: grouping factor. k: groups used. F: classical F; 'w' marks Welch's F, read where Bartlett's "
                    "test finds unequal spread (p is then Welch's). q: FDR-adjusted p. shift grp: "
                    "the largest difference of one group's mean from the mean of the others, "
-                   "and that group. det.: "
-                   "shift detectable with 80% power. alert: NEW/RE opened or reopened now, CLR "
+                   "and that group. evid: "
+                   "the strongest detector's statistic / threshold (1 or more: crossed), m mean, "
+                   "s spread. alert: NEW/RE opened or reopened now, CLR "
                    "cleared now, OPEN, ACK acknowledged.")
     lines += _status_lines(result, clean=clean)
     lines += _alert_lines(result, clean=clean)
@@ -185,7 +173,7 @@ def md_escape(s: str) -> str:
 
 def family_table_md(result: Any) -> list[str]:
     head = ["characteristic", "factor", "window", "k", "N", "test", "F", "p", "q", "ω²", "η²",
-            "largest shift", "group", "detectable shift", "gate", "alert"]
+            "largest shift", "group", "detectable shift", "gate", "detector", "alert"]
     lines = ["| " + " | ".join(head) + " |", "|" + "---|" * len(head)]
     for c in result.comparisons:
         f = c.welch_f if c.test == "Welch" else c.f
@@ -194,7 +182,7 @@ def family_table_md(result: Any) -> list[str]:
             str(c.k), str(c.n_total), c.test, fit(f, 8), fit(c.p_used, 8), fit(c.q, 8),
             _omega(c.omega_squared), fit(c.eta_squared, 6),
             fit(c.largest_shift, 8), md_escape(c.largest_shift_group or ""),
-            fit(c.detectable_shift, 8), fit(c.gate, 8),
+            fit(c.detectable_shift, 8), fit(c.gate, 8), md_escape(detector_summary(c)),
             alert_tag(c) or "-"]) + " |")
     return lines
 

@@ -32,14 +32,12 @@ def build_weekly_report(store, *, week: str | None = None, as_of=None,
 
     result = eng.run_review(store, week=week, as_of=as_of, fdr_method=fdr_method,
                             persist=persist)
-    latest = result.windows[-1].label
     sections, new, cleared = [], [], []
     for c in result.comparisons:
         events = store_alerts.alert_history(store, c.alert_id) if c.alert_id else []
-        in_window = [e for e in events if e.window == latest]
-        if any(e.event in ("opened", "reopened") for e in in_window):
+        if c.event in ("opened", "reopened"):  # recorded by this review's detector advance
             new.append(c)
-        if any(e.event == "cleared" for e in in_window):
+        if c.event == "cleared":
             cleared.append(c)
         if c.alert_state in ("open", "acknowledged"):
             detail = eng.comparison_detail(store, c.characteristic, c.factor, as_of=result.as_of,

@@ -1,0 +1,236 @@
+"""Day-by-day group-vs-rest contrasts from per-day sufficient statistics (pure numpy).
+
+For one characteristic, every *slot* (a level of a grouping factor) has per plant day ``n``,
+``S1 = sum d`` and ``S2 = sum d^2`` with ``d`` the integer units from the characteristic's
+origin (arrays of shape (slots, days)). The *rest* of a slot on a day is every other level of
+the same factor on that day, so a move of the whole plant changes a group and its rest alike and
+leaves the contrast alone.
+
+Within-day sums of squares ``SS = S2 - S1^2 / n`` (``df = n - 1``) are not inflated by a shift of
+a group's mean (the shift is constant within the day), so the spread estimates below are robust
+to the mean change being looked for. All quantities are in ``d`` units.
+
+Mean contrast (a two-sample z on the day's means)::
+
+    c_t = S1_g / n_g - S1_r / n_r,       v_t = s_g^2 / n_g + s_r^2 / n_r
+    s_g^2 = sum SS_g / sum df_g over the trailing L days before t (the group's own
+            within-day variance); s_r^2 the same pooled over the rest's levels. A group or rest
+            with fewer than 10 trailing degrees of freedom (one lot a day) uses the
+            day-to-day estimate of ``_sparse_variance`` instead.
+
+Spread contrast (log of the day's variance ratio; for normal data ``ln(s^2/sigma^2)`` has mean
+``psi(nu/2) - ln(nu/2)`` and variance ``psi'(nu/2)`` with ``nu`` the degrees of freedom, from
+the log of a scaled chi-square; Bartlett & Kendall 1946)::
+
+    u_t = ln(v_g + 1/12) - ln(v_r + 1/12) - [psi(nu_g/2) - ln(nu_g/2) - psi(nu_r/2) + ln(nu_r/2)]
+    var(u_t) = psi'(nu_g/2) + psi'(nu_r/2)
+
+with ``v_g = SS_g / nu_g`` the group's variance that day and ``v_r`` the rest's pooled within-level
+variance. The ``1/12`` (the variance of rounding to one resolution step, Sheppard) keeps the log
+finite for coarse gauges and pulls the ratio toward 1, i.e. errs toward silence.
+
+Extra dispersion: skewed values and correlated lots make the standardised contrasts vary more
+than the normal theory says. ``phi`` is estimated from the day-to-day differences of the
+standardised contrast over trailing days (a change of level adds one large difference, which the
+median ignores): ``phi = (median |z_t - z_{t-1}| / 0.6745)^2 / 2`` (0.6745 is the normal
+quartile, so the median of |N(0, 2 phi)| is 0.6745 sqrt(2 phi)), less one standard error of that
+estimate (relative error about 2.33 / sqrt(m) for m differences), kept within [1, 9]: so a
+chance excess on normal data does not slow detection, and a real one is corrected.
+"""
+
+from __future__ import annotations
+
+import warnings
+from dataclasses import dataclass
+
+import numpy as np
+from lotwatch.stats.detect.settings import DetectorSettings
+from scipy import special
+
+MIN_DF = 10  # trailing degrees of freedom a group and its rest need before they are watched
+SHEPPARD = 1.0 / 12.0
+
+
+def _trailing(x: np.ndarray, length: int) -> np.ndarray:
+    """Sum of x over the ``length`` days before each day (excluding the day itself)."""
+    cs = np.zeros((x.shape[0], x.shape[1] + 1))
+    np.cumsum(x, axis=1, out=cs[:, 1:])
+    t = np.arange(x.shape[1])
+    return cs[:, t] - cs[:, np.maximum(t - length, 0)]
+
+
+def _trailing_median(x: np.ndarray, days: int, first: int) -> tuple[np.ndarray, np.ndarray]:
+    """Median and count of the finite values of x over the ``days`` days before each day t >=
+    first (excluding t); NaN and 0 before ``first``."""
+    S, T = x.shape
+    med = np.full((S, T), np.nan)
+    count = np.zeros((S, T))
+    if first >= T:
+        return med, count
+    padded = np.full((S, T + days), np.nan)
+    padded[:, days:] = x
+    # the window for day t covers days t-days .. t-1: padded positions t .. t+days-1
+    win = np.lib.stride_tricks.sliding_window_view(padded[:, first:T + days - 1], days, axis=1)
+    count[:, first:] = np.sum(np.isfinite(win), axis=2)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        med[:, first:] = np.nanmedian(win, axis=2)
+    return med, count
+
+
+def _successive(x: np.ndarray, valid: np.ndarray, f) -> np.ndarray:
+    """``f(previous, current, i_prev, i_cur)`` of each slot's consecutive valid days, placed on
+    the later day (NaN elsewhere)."""
+    out = np.full(x.shape, np.nan)
+    for s in range(x.shape[0]):
+        idx = np.flatnonzero(valid[s])
+        if idx.size > 1:
+            out[s, idx[1:]] = f(x[s, idx[:-1]], x[s, idx[1:]], idx[:-1], idx[1:], s)
+    return out
+
+
+def _dispersion(z: np.ndarray, valid: np.ndarray, days: int, first: int) -> np.ndarray:
+    """phi for each slot and day t >= first, from |z_t - z_prev| over the ``days`` days before
+    t (see the module docstring); 1 where fewer than 8 differences are available."""
+    diffs = _successive(z, valid, lambda a, b, *_: np.abs(b - a))
+    med, count = _trailing_median(diffs, days, first)
+    est = (med / 0.6744897501960817) ** 2 / 2.0
+    # a median-based variance has a relative standard error of about 2.33 / sqrt(count) (the
+    # median absolute deviation's efficiency is 37%): inflate only by what exceeds one error
+    est = est * (1.0 - 2.33 / np.sqrt(np.maximum(count, 1)))
+    return np.where(count >= 8, np.clip(np.nan_to_num(est, nan=1.0), 1.0, 9.0), 1.0)
+
+
+def _sparse_variance(n: np.ndarray, s1: np.ndarray, days: int) -> np.ndarray:
+    """A group's within-day variance when it has too few lots a day to measure it: from the
+    changes of its day means between consecutive days with data,
+    ``median(d^2 / (1/n_prev + 1/n_cur)) / 0.4549`` over the trailing days (0.4549 is the median
+    of chi-square with 1 df; the median keeps a step change from inflating it; day-to-day
+    movement of the whole plant inflates it, which errs toward silence). NaN with fewer than 8
+    changes."""
+    with np.errstate(invalid="ignore", divide="ignore"):
+        mean = s1 / np.where(n > 0, n, 1.0)
+    q = _successive(mean, n > 0, lambda a, b, i, j, s: (b - a) ** 2
+                    / (1.0 / n[s, i] + 1.0 / n[s, j]))
+    med, count = _trailing_median(q, days, 0)
+    return np.where(count >= 8, med / 0.454936423119572, np.nan)
+
+
+@dataclass
+class Contrasts:
+    """Per slot and day: the mean and spread contrasts, their variances and the design.
+
+    Arrays have shape (slots, days). ``mean_ok``/``spread_ok`` mark days that count.
+    """
+
+    c: np.ndarray  # mean contrast (d units)
+    v: np.ndarray  # its variance times phi_m (d units^2)
+    mean_ok: np.ndarray
+    delta: np.ndarray  # mean design shift / gate (d units)
+    u: np.ndarray  # log variance ratio, bias-corrected
+    var_u: np.ndarray  # its variance times phi_s
+    spread_ok: np.ndarray
+    phi_m: np.ndarray
+    phi_s: np.ndarray
+    a_typ_m: np.ndarray  # typical day's design shift in standard errors (threshold input)
+    a_typ_s: np.ndarray
+    days_per_year: np.ndarray  # the group's reporting days per year (trailing)
+    groups: np.ndarray  # watched levels in the slot's comparison (trailing)
+    ref_sd: np.ndarray  # the rest's trailing within-day SD (d units)
+    comp: np.ndarray | None = None  # (slots,) comparison of each slot
+    n: np.ndarray | None = None  # the day's values of the group, their sum (d units),
+    s1: np.ndarray | None = None  # and the trailing variances of the group and of its rest:
+    var_g: np.ndarray | None = None  # what the detector needs to set an alarmed group apart
+    var_r: np.ndarray | None = None  # from the rests of the others (``cusum.run``)
+
+
+def contrasts(n: np.ndarray, s1: np.ndarray, s2: np.ndarray, comp: np.ndarray,
+              gate_d: np.ndarray, skip: np.ndarray, settings: DetectorSettings,
+              first: int) -> Contrasts:
+    """Compute the contrasts for every slot and day (the dispersion from day ``first -
+    clear_days`` on, the days the detector or its clearing rule will read).
+
+    ``comp`` (slots,) is each slot's comparison (factor) index; ``gate_d`` (comparisons,) the
+    minimum mean shift in d units (NaN: ``no_limits_sigmas`` pooled SDs); ``skip``
+    (comparisons,) turns the mean detector of a comparison off.
+    """
+    n = np.asarray(n, dtype=np.float64)
+    s1 = np.asarray(s1, dtype=np.float64)
+    s2 = np.asarray(s2, dtype=np.float64)
+    S, T = n.shape
+    C = int(comp.max()) + 1 if S else 0
+    L = settings.trailing_days
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ss = np.where(n > 0, np.maximum(s2 - s1 * s1 / np.where(n > 0, n, 1.0), 0.0), 0.0)
+        df = np.maximum(n - 1.0, 0.0)
+
+        def total(x: np.ndarray) -> np.ndarray:
+            out = np.zeros((C, T))
+            np.add.at(out, comp, x)
+            return out[comp]
+
+        rn, rs1 = total(n) - n, total(s1) - s1
+        rss, rdf = total(ss) - ss, total(df) - df
+        has = (n > 0).astype(np.float64)
+        t_days = _trailing(has, L)
+        t_n, t_rn = _trailing(n, L), _trailing(rn, L)
+        t_rdays = _trailing((rn > 0).astype(np.float64), L)
+        t_ss, t_df = _trailing(ss, L), _trailing(df, L)
+        t_rss, t_rdf = _trailing(rss, L), _trailing(rdf, L)
+        # sparse groups (too few lots a day for a within-day spread): the day-to-day estimate,
+        # for the rest the median of its comparison's estimates
+        sparse = _sparse_variance(n, s1, L)
+        comp_sparse = np.full((C, T), np.nan)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)
+            for c_ in range(C):
+                comp_sparse[c_] = np.nanmedian(sparse[comp == c_], axis=0)
+        var_g = np.where(t_df >= MIN_DF, t_ss / t_df, np.where(np.isfinite(sparse), sparse,
+                                                                 comp_sparse[comp]))
+        var_r = np.where(t_rdf >= MIN_DF, t_rss / t_rdf, comp_sparse[comp])
+        warm = ((t_days >= settings.warmup_days) & np.isfinite(var_g) & np.isfinite(var_r)
+                & (var_g > 0) & (var_r > 0))
+        watched = np.zeros((C, T))
+        np.add.at(watched, comp, warm.astype(np.float64))
+        groups = np.maximum(watched[comp], 2.0)
+
+        # mean
+        mean_ok = warm & (n > 0) & (rn > 0) & ~skip[comp][:, None]
+        c = np.where(mean_ok, s1 / np.where(n > 0, n, 1.0) - rs1 / np.where(rn > 0, rn, 1.0), 0.0)
+        v0 = np.where(mean_ok, var_g / np.where(n > 0, n, 1.0) + var_r / np.where(rn > 0, rn, 1.0),
+                      1.0)
+        pooled_sd = np.where(t_df + t_rdf >= MIN_DF, np.sqrt((t_ss + t_rss) / (t_df + t_rdf)),
+                             np.sqrt(var_r))
+        gate = gate_d[comp][:, None]
+        delta = np.where(np.isnan(gate), settings.no_limits_sigmas * pooled_sd, gate)
+        z = c / np.sqrt(v0)
+        start_phi = max(first - settings.clear_days, 0)
+        phi_m = _dispersion(z, mean_ok, settings.dispersion_days, start_phi)
+
+        # spread
+        spread_ok = warm & (n >= 2) & (rdf >= 2)
+        nu_g = np.where(spread_ok, df, 2.0)
+        nu_r = np.where(spread_ok, rdf, 2.0)
+        vg = np.where(spread_ok, ss / nu_g, 1.0) + SHEPPARD
+        vr = np.where(spread_ok, rss / nu_r, 1.0) + SHEPPARD
+        bias = (special.digamma(nu_g / 2) - np.log(nu_g / 2)
+                - special.digamma(nu_r / 2) + np.log(nu_r / 2))
+        u = np.where(spread_ok, np.log(vg) - np.log(vr) - bias, 0.0)
+        var_u0 = special.polygamma(1, nu_g / 2) + special.polygamma(1, nu_r / 2)
+        zs = u / np.sqrt(var_u0)
+        phi_s = _dispersion(zs, spread_ok, settings.dispersion_days, start_phi)
+
+        # a typical day (the group's actual lot rate over the trailing days)
+        nbar_g = t_n / t_days
+        nbar_r = t_rn / t_rdays
+        a_typ_m = delta / np.sqrt(phi_m * (var_g / nbar_g + var_r / nbar_r))
+        nubar_g = np.maximum(nbar_g - 1.0, 1.0)
+        nubar_r = np.maximum(t_rdf / t_rdays, 2.0)
+        var_u_typ = special.polygamma(1, nubar_g / 2) + special.polygamma(1, nubar_r / 2)
+        a_typ_s = 2.0 * np.log(settings.spread_ratio) / np.sqrt(phi_s * var_u_typ)
+        days_per_year = 365.0 * t_days / L
+    return Contrasts(c=c, v=v0 * phi_m, mean_ok=mean_ok, delta=delta, u=u,
+                     var_u=var_u0 * phi_s, spread_ok=spread_ok, phi_m=phi_m, phi_s=phi_s,
+                     a_typ_m=a_typ_m, a_typ_s=a_typ_s, days_per_year=days_per_year,
+                     groups=groups, ref_sd=np.sqrt(var_r), comp=comp, n=n, s1=s1,
+                     var_g=var_g, var_r=var_r)

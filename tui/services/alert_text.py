@@ -1,0 +1,42 @@
+"""The sentences alerts carry (light: no statistics stack, so listing alerts starts fast)."""
+
+from __future__ import annotations
+
+from datetime import date
+from typing import Any
+
+from lotwatch.tui.caution import CAUTION
+from lotwatch.tui.render.numbers import num, signed
+
+
+def alert_sentence(characteristic: str, factor: str, groups: list[str], kind: str,
+                   direction: str | None, onset: date | str | None,
+                   detected_on: date | str | None, size: float | None, low: float | None,
+                   high: float | None, percent: float | None, unit: str,
+                   budget_years: float | None = None) -> str:
+    """The sentence an alert carries: group, mean or spread, direction, onset, size in units and
+    % of tolerance with its interval, detection day, and the caution."""
+    who = ", ".join(groups) if groups else "a group"
+    what = "mean" if kind == "mean" else "spread (SD)"
+    how = direction or "different"
+    size_s = f"{signed(size)} {unit}".rstrip() if size is not None else "an unknown amount"
+    interval = (f" (95% interval {num(low, 3)} to {num(high, 3)})"
+                if low is not None and high is not None else "")
+    pct = f", {num(percent, 3)}% of the tolerance" if percent is not None else ""
+    budget = (f" Thresholds allow one false alert per {num(budget_years, 4)} comparison-years."
+              if budget_years else "")
+    return (f"{characteristic} by {factor}: {who} {what} {how} than the rest since about "
+            f"{onset or '?'} (detected {detected_on or '?'}), by {size_s}{interval}{pct}."
+            f"{budget} {CAUTION}")
+
+
+def stored_alert_sentence(alert: Any, unit: str, budget_years: float | None = None) -> str:
+    """The sentence of a stored alert, with its id (see ``alert_sentence``)."""
+    if alert.state == "cleared":
+        return (f"alert {alert.id}: {alert.characteristic} by {alert.factor} "
+                f"({', '.join(alert.groups) or 'a group'}, {alert.kind}) cleared: back within "
+                f"the gate (last {alert.last_window or '?'}). {CAUTION}")
+    return f"alert {alert.id}: " + alert_sentence(
+        alert.characteristic, alert.factor, list(alert.groups), alert.kind, alert.direction,
+        alert.onset, alert.detected_on, alert.size, alert.size_low, alert.size_high,
+        alert.percent_of_tolerance, unit, budget_years)

@@ -1,0 +1,82 @@
+"""What a review reads: its settings, its day, the comparisons of the store and their window
+statistics from the bucket sums (headless; shared by the review, the trend and the detail)."""
+
+from __future__ import annotations
+
+import math
+from datetime import UTC, date, datetime
+from typing import Any
+
+from lotwatch.stats import monitor as mon
+from lotwatch.stats import weeks
+from lotwatch.stats.monitor import ReviewSettings
+
+
+def _f(x: Any) -> float | None:
+    if x is None:
+        return None
+    v = float(x)
+    return v if math.isfinite(v) else None
+
+
+def review_settings(store, *, fdr_method: str | None = None, fdr_level: float | None = None,
+                    window: str | None = None) -> ReviewSettings:
+    """The store's review settings, with per-run overrides; ``ValueError`` names a bad setting."""
+    s = ReviewSettings.from_lookup(store.get_setting)
+    changes: dict[str, Any] = {}
+    if window is not None:
+        changes["window"] = window
+    if fdr_method is not None:
+        changes["fdr_method"] = fdr_method.lower()
+    if fdr_level is not None:
+        changes["fdr_level"] = float(fdr_level)
+    if changes:
+        s = ReviewSettings(**{**s.__dict__, **changes}).validated()
+    return s
+
+
+def resolve_as_of(*, as_of: date | None = None, week: str | None = None) -> date:
+    """The review day: the Sunday of ``week``, else ``as_of``, else today (UTC)."""
+    if week is not None and as_of is not None:
+        raise ValueError("give either a week or an as-of date, not both")
+    if week is not None:
+        return weeks.parse_iso_week(week)[1]
+    if as_of is not None:
+        return as_of
+    return datetime.now(UTC).date()
+
+
+def comparisons_of(store, characteristic: str | None = None,
+                   factor: str | None = None) -> tuple[list[mon.Comparison], dict[str, Any]]:
+    """Every characteristic × factor of the store (or the one asked for), and the characteristics
+    by name."""
+    chars = {c.name: c for c in store.characteristics()}
+    if characteristic is not None:
+        chars = {characteristic: store.characteristic(characteristic)}
+    factors = [f.name for f in store.factors()]
+    if factor is not None:
+        if factor not in factors:
+            from lotwatch.store import NotFound
+
+            raise NotFound(f"no grouping factor named {factor!r}; factors: {', '.join(factors)}")
+        factors = [factor]
+    comps = [mon.Comparison(c.name, f, int(c.origin_units), float(c.resolution_value),
+                            lsl=c.lsl, usl=c.usl, min_shift=c.min_shift)
+             for c in chars.values() for f in factors]
+    return comps, chars
+
+
+def compute_windows(store, comps: list[mon.Comparison], windows: list[mon.Window],
+                    settings: ReviewSettings, *,
+                    characteristic: str | None = None,
+                    factor: str | None = None) -> mon.WindowStats:
+    """Window statistics for the comparisons over the windows, from the store's bucket sums."""
+    first, last = mon.window_span(windows, settings)
+    buckets = store.bucket_frame(characteristic=characteristic, factor=factor, since=first,
+                                 until=last)
+    if first is None:
+        first = buckets["day"].min() if buckets.height else last
+        first = min(first, last)
+    cube = mon.bucket_cube(buckets, comps, first_day=first, last_day=last)
+    sums = mon.window_sums(cube, windows, settings)
+    return mon.window_statistics(sums, min_n=settings.min_n, alpha=settings.alpha)
