@@ -243,21 +243,27 @@ def record_transitions(store, transitions: list[Transition], *, by: str | None =
 
 
 def acknowledge(store, alert_id: int, *, by: str, note: str = "") -> Alert:
-    """Mark an open alert as seen by ``by`` with a note (an acknowledged one may get a further
-    note). A cleared alert cannot be acknowledged. Returns the alert as written."""
+    """Mark an open alert as seen by ``by`` with a note (required: what was checked or done).
+    An acknowledged or cleared alert cannot be acknowledged again; the same rule holds for the
+    command line and the app (``store.rules``). Returns the alert as written."""
     who = (by or "").strip()
     if not who:
         raise Conflict("an acknowledgement needs a name: say who is acknowledging (--by NAME)")
+    if not (note or "").strip():
+        raise Conflict("an acknowledgement needs a note: say what you checked or did (--note)")
     stamp = format_stored(now_utc())
     with store.write():
         alert = get_alert(store, alert_id)
         if alert.state == "cleared":
             raise Conflict(f"alert {alert_id} is cleared (last window {alert.last_window}); "
                            "there is nothing to acknowledge")
+        if alert.state == "acknowledged":
+            raise Conflict(f"alert {alert_id} is already acknowledged; it stays so until the "
+                           "signal clears (see lotwatch alerts show)")
         store.conn.execute("UPDATE alerts SET state = 'acknowledged', updated_at = ? WHERE id = ?",
                            (stamp, alert.id))
         store.conn.execute(
             "INSERT INTO alert_events(alert_id, at, event, by, note, window, details) "
             "VALUES (?, ?, 'acknowledged', ?, ?, ?, '{}')",
-            (alert.id, stamp, who, note or "", alert.last_window))
+            (alert.id, stamp, who, note.strip(), alert.last_window))
     return get_alert(store, alert_id)

@@ -9,6 +9,7 @@ import math
 from typing import Any, cast
 
 from lotwatch.store.errors import BadInput, RowProblem
+from lotwatch.store.rules import characteristic_name_problem, factor_key_problem
 from lotwatch.store.text import unsafe_character
 from lotwatch.store.values import BadValue, canonical_resolution
 
@@ -18,8 +19,9 @@ CHARACTERISTIC_FIELDS = frozenset(
 
 
 def clean_name(name: object, what: str) -> str:
-    """``name`` stripped; BadInput when empty, over 80 characters or holding a character that
-    could disguise itself on a terminal (``store.text.unsafe_character``)."""
+    """``name`` stripped; BadInput when empty, over 80 characters, holding a character that
+    could disguise itself on a terminal (``store.text.unsafe_character``) or breaking the name
+    rules of ``store.rules`` for factors and characteristics."""
     text = str(name).strip() if name is not None else ""
     problem = None
     if not text:
@@ -28,6 +30,10 @@ def clean_name(name: object, what: str) -> str:
         problem = f"the {what} name is longer than 80 characters"
     elif (bad := unsafe_character(text)) is not None:
         problem = f"the {what} name contains {bad}"
+    elif what == "factor":
+        problem = factor_key_problem(text)
+    elif what == "characteristic":
+        problem = characteristic_name_problem(text)
     if problem:
         raise BadInput([RowProblem("command line", None, what, str(name), problem)])
     return text

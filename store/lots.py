@@ -24,8 +24,9 @@ from typing import TYPE_CHECKING
 from lotwatch.store.aggregates import Deltas
 from lotwatch.store.errors import BadInput, RowProblem
 from lotwatch.store.model import Characteristic, LogOutcome, LotEntry
+from lotwatch.store.rules import tag_key_problem, time_problem
 from lotwatch.store.text import unsafe_character
-from lotwatch.store.timeutil import BadTime, format_stored, now_utc
+from lotwatch.store.timeutil import BadTime, format_stored, now_utc, parse_stored
 from lotwatch.store.values import (
     MAX_ABS_D,
     BadValue,
@@ -119,6 +120,8 @@ def _prepare(i: int, e: LotEntry, chars: dict[str, Characteristic], now: datetim
                                      f"tag {k!r} is empty"))
         elif (bad := unsafe_character(k + v)) is not None:
             problems.append(_problem(e, k, v, f"tag {k!r} contains {bad}"))
+        elif (why := tag_key_problem(k)) is not None:
+            problems.append(_problem(e, k, v, why))
         elif k in tags and tags[k] != v:
             problems.append(_problem(e, k, v, f"tag {k!r} is given twice ({tags[k]!r} and {v!r})"))
         else:
@@ -136,6 +139,8 @@ def _prepare(i: int, e: LotEntry, chars: dict[str, Characteristic], now: datetim
     except (TypeError, ValueError, OverflowError) as exc:
         problems.append(_problem(e, "measured_at", e.measured_at, f"not a date/time ({exc})"))
         measured = ""
+    if measured and (why := time_problem(parse_stored(measured), now)) is not None:
+        problems.append(_problem(e, "measured_at", e.measured_at, why))
     units: list[int] = []
     rounded = 0
     column = e.column or "value"

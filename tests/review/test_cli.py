@@ -180,6 +180,11 @@ def test_alerts_list_show_ack(demo_copy):
     assert "acknowledged by qe-lee" in r.output and "valve checked" in r.output
     assert run(demo_copy, "alerts", "show", "999").exit_code == 2
     assert run(demo_copy, "alerts", "list", "--state", "acknowledged").output.count("RB-2") == 1
+    # the same rules as the app's form: no second acknowledgement, and a note is required
+    r = run(demo_copy, "alerts", "ack", str(a["id"]), "--by", "qe-kim", "--note", "again")
+    assert r.exit_code == 2 and "already acknowledged" in r.output
+    r = run(demo_copy, "alerts", "ack", str(a["id"]), "--by", "qe-kim", "--note", "  ")
+    assert r.exit_code == 2 and "needs a note" in r.output
 
 
 def test_report_for_an_earlier_week_shows_that_week(demo_copy, demo_replay, tmp_path):

@@ -10,18 +10,16 @@ from __future__ import annotations
 
 import re
 from collections.abc import Callable
-from datetime import UTC, datetime, timedelta
+from datetime import datetime
 
+from lotwatch.store.rules import MIN_YEAR
+from lotwatch.store.rules import time_problem as stored_time_problem
 from lotwatch.tui.render.safe_text import clean
 from lotwatch.tui.services.view_models import CharacteristicInfo
 from textual.validation import Function, ValidationResult, Validator
 
 _SPLIT = re.compile(r"[\s;]+")
 
-# Accept a timestamp up to this far ahead of the clock (clock skew between lab and terminal).
-FUTURE_SLACK = timedelta(minutes=10)
-# Earliest year the form accepts: older stamps are typing mistakes (common practice).
-MIN_YEAR = 1970
 # Decimal exponent beyond which a typed value is refused before any arithmetic (1e999999 would
 # overflow the decimal context); no measured quantity is near 10**30 in its own unit.
 MAX_EXPONENT = 30
@@ -93,10 +91,8 @@ def time_problem(text: str, now: datetime | None = None) -> str | None:
         return f"{clean(s, 20)} cannot be a measurement time; type e.g. 2026-11-30 14:05"
     if not MIN_YEAR <= t.year:
         return f"{clean(s, 20)} is before {MIN_YEAR}; type the year in full, e.g. 2026"
-    now = now or datetime.now(UTC)
-    if t > now + FUTURE_SLACK:
-        return f"{clean(s, 20)} is in the future"
-    return None
+    why = stored_time_problem(t, now)  # the store's rule: the same for every door
+    return None if why is None else f"{clean(s, 20)}: {why}"
 
 
 def spec_notes(text: str, ch: CharacteristicInfo) -> list[str]:

@@ -293,7 +293,7 @@ def _wrap_plain(text: str) -> list[str]:
 @alerts_group.command("ack")
 @click.argument("alert_id", type=int)
 @click.option("--by", "by", default=None, help="Who acknowledges (default: your login name).")
-@click.option("--note", default="", help="What was looked at or decided.")
+@click.option("--note", required=True, help="What was checked or done (required).")
 @db_option
 @store_errors
 def alerts_ack(alert_id: int, by: str | None, note: str, db_path: Path) -> None:
