@@ -15,7 +15,6 @@ Nothing is written unless every entry is good, except with ``skip_bad``.
 
 from __future__ import annotations
 
-import secrets
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 from datetime import datetime
@@ -24,6 +23,7 @@ from typing import TYPE_CHECKING
 from lotwatch.store.aggregates import Deltas
 from lotwatch.store.errors import BadInput, RowProblem
 from lotwatch.store.model import Characteristic, LogOutcome, LotEntry
+from lotwatch.store.plantzone import new_lot_code
 from lotwatch.store.rules import tag_key_problem, time_problem
 from lotwatch.store.text import unsafe_character
 from lotwatch.store.timeutil import BadTime, format_stored, now_utc, parse_stored
@@ -42,7 +42,6 @@ if TYPE_CHECKING:
 
 PROGRESS_EVERY = 10_000
 _CHUNK = 500  # parameters per IN (...) lookup, below SQLite's default limit
-_LOT_ALPHABET = "ABCDEFGHJKLMNPQRSTUVWXYZ23456789"  # no 0/O, 1/I
 
 
 @dataclass
@@ -58,19 +57,6 @@ class _Prepared:
     rounded: int
     row: int | None
     problems: list[RowProblem] = field(default_factory=list)
-
-
-def new_lot_code(taken: set[str], when: datetime | None = None, zone: str = "UTC") -> str:
-    """A readable, unique lot ID: ``L`` + plant-local date-time + random suffix
-    (L20261130-140500-K7QX2M), so the date in the ID is the plant day it was made on."""
-    from lotwatch.store.plantzone import zone as tz
-
-    stamp = (when or now_utc()).astimezone(tz(zone)).strftime("%Y%m%d-%H%M%S")
-    while True:
-        code = f"L{stamp}-" + "".join(secrets.choice(_LOT_ALPHABET) for _ in range(6))
-        if code not in taken:
-            taken.add(code)
-            return code
 
 
 def _row_of(e: LotEntry, value_index: int | None = None) -> int | None:

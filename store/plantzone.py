@@ -11,6 +11,7 @@ in one write transaction (``set_plant_zone``).
 from __future__ import annotations
 
 import os
+import secrets
 from datetime import UTC, datetime
 from functools import lru_cache
 from pathlib import Path
@@ -105,6 +106,20 @@ def day_function(name: str):
 def plant_day(stamp: str, name: str) -> str:
     """The plant-local calendar date of one stored UTC timestamp."""
     return day_function(name)(stamp)
+
+
+_LOT_ALPHABET = "ABCDEFGHJKLMNPQRSTUVWXYZ23456789"  # no 0/O, 1/I
+
+
+def new_lot_code(taken: set[str], when: datetime | None = None, zone_name: str = "UTC") -> str:
+    """A readable, unique lot ID: ``L`` + plant-local date-time + random suffix
+    (L20261130-140500-K7QX2M), so the date in the ID is the plant day it was made on."""
+    stamp = (when or datetime.now(UTC)).astimezone(zone(zone_name)).strftime("%Y%m%d-%H%M%S")
+    while True:
+        code = f"L{stamp}-" + "".join(secrets.choice(_LOT_ALPHABET) for _ in range(6))
+        if code not in taken:
+            taken.add(code)
+            return code
 
 
 def read_zone(conn: sqlite3.Connection) -> str:

@@ -11,8 +11,7 @@ from pathlib import Path
 
 import pytest
 from lotwatch.store import BadInput, LotEntry, Store
-from lotwatch.store.lots import new_lot_code
-from lotwatch.store.plantzone import machine_zone, plant_day
+from lotwatch.store.plantzone import machine_zone, new_lot_code, plant_day
 
 TAGS = {"site": "north", "line": "1", "shift": "night"}
 

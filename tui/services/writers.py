@@ -24,17 +24,17 @@ def log_draft(path: Path, draft: EntryDraft, by: str) -> LoggedLot:
     land on the same lot (the store draws one per entry otherwise).
     """
     from lotwatch.store import BadInput, LotEntry
-    from lotwatch.store.lots import new_lot_code
+    from lotwatch.store.plantzone import new_lot_code
     from lotwatch.tui.services.loaders import char_info
 
-    lot = draft.lot
-    if lot is None and len(draft.values) > 1:
-        lot = new_lot_code(set())
-    entries = [LotEntry(characteristic=name, values=list(values), tags=dict(draft.tags),
-                        lot=lot, measured_at=draft.measured_at, note=draft.note, by=by,
-                        source=SOURCE)
-               for name, values in draft.values.items()]
     with opened(path, False) as store:
+        lot = draft.lot
+        if lot is None and len(draft.values) > 1:
+            lot = new_lot_code(set(), zone_name=store.plant_zone)  # plant-local date in the ID
+        entries = [LotEntry(characteristic=name, values=list(values), tags=dict(draft.tags),
+                            lot=lot, measured_at=draft.measured_at, note=draft.note, by=by,
+                            source=SOURCE)
+                   for name, values in draft.values.items()]
         chars = {name: char_info(store.characteristic(name)) for name in draft.values}
         try:
             outcome = store.log_lots(entries)
