@@ -18,7 +18,7 @@ def store_path(tmp_path: Path) -> Path:
 
 @pytest.fixture
 def store(store_path: Path) -> Iterator[Store]:
-    s = Store.create(store_path)
+    s = Store.create(store_path, zone="UTC")  # fixed plant calendar: days equal UTC dates
     try:
         yield s
     finally:

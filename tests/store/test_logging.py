@@ -361,12 +361,13 @@ def test_measurements_frame(fill: Store) -> None:
 def test_generated_id_never_reuses_a_stored_one(fill: Store, entry,
                                                 monkeypatch: pytest.MonkeyPatch) -> None:
     import lotwatch.store.lots as lots
+    import lotwatch.store.plantzone as plantzone
 
     fixed = datetime(2026, 11, 30, 14, 5, tzinfo=UTC)
     monkeypatch.setattr(lots, "now_utc", lambda: fixed)
     fill.log_lots([entry("500.0", "L20261130-140500-AAAAAA")])
     draws = iter("AAAAAA" + "AAAAAA" + "BBBBBB")  # first draw repeats the stored ID
-    monkeypatch.setattr(lots.secrets, "choice", lambda alphabet: next(draws))
+    monkeypatch.setattr(plantzone.secrets, "choice", lambda alphabet: next(draws))
     out = fill.log_lots([entry("500.1")])
     assert out.lots == ["L20261130-140500-BBBBBB"]
     assert fill.check().ok
