@@ -46,6 +46,14 @@ class Deltas:
     def add_lot(self, key: BucketKey, sign: int = 1) -> None:
         self._d[key][3] += sign
 
+    def add_sums(self, key: BucketKey, n: int, sum_d: int, sum_d2: int, lots: int) -> None:
+        """Add a bucket's change already summed (the bulk import aggregates in polars)."""
+        cell = self._d[key]
+        cell[0] += n
+        cell[1] += sum_d
+        cell[2] += sum_d2
+        cell[3] += lots
+
     def add_measurement(self, characteristic_id: int, day: str, d: int,
                         factor_levels: Iterable[tuple[str, str]], sign: int = 1) -> None:
         for factor, level in factor_levels:

@@ -19,6 +19,9 @@ from functools import lru_cache
 MAX_ABS_D = 10_000_000
 
 _CTX = Context(prec=60)
+# Longest number text accepted: far beyond any instrument, and far below Python's limit of 4,300
+# digits for converting text to int (which would otherwise surface as a crash).
+MAX_NUMBER_CHARS = 100
 
 
 class BadValue(ValueError):
@@ -41,6 +44,9 @@ def parse_decimal(text: object) -> Decimal:
         s = str(text).strip()
         if not s:
             raise BadValue("the value is empty")
+        if len(s) > MAX_NUMBER_CHARS:
+            raise BadValue(f"the value has {len(s):,} characters; lotwatch reads numbers of at "
+                           f"most {MAX_NUMBER_CHARS} characters (check the value)")
         try:
             value = Decimal(s)
         except InvalidOperation:
@@ -107,7 +113,7 @@ def text_to_units(text: object, resolution: str, *,
     fast path (value * 10**k is the digit string; units = that / m); everything else, including
     values needing rounding, goes through ``decimal``. Both give identical results.
     """
-    if isinstance(text, str):
+    if isinstance(text, str) and len(text) <= MAX_NUMBER_CHARS:
         match = _PLAIN.match(text)
         if match:
             m, k = _scale(resolution)

@@ -1,18 +1,24 @@
-"""Import speed: ``lotwatch import`` of a long CSV, and the demo store build, against baselines
-measured in the same run.
+"""Import speed and memory: ``import_file`` of a long CSV against baselines measured in the same run.
 
-Run: cd /work/main && /work/venv/bin/python tests/bench/bench_import.py [--rows N]
+Run: python tests/bench/bench_import.py [--quick] [--rows N]
 
+Each measured import runs in a fresh child process, so its peak memory (``ru_maxrss``) is its own.
 Baselines:
-- reading the same file with ``polars.read_csv`` (all columns as text): the floor for reading it;
-- ``Store.log_lots`` on the same entries already built in memory: the floor for storing them.
-The import's own overhead (cleaning cells, timestamps, grouping rows into entries) is the
-difference. Goals: whole import >= 20,000 rows/s; demo build < 10 s.
+- reading the same file with ``polars.read_csv`` (all columns as text): the floor for reading;
+- a bare ``executemany`` of the same rows into a table shaped like ``measurements`` (no lots,
+  tags, audit rows or day sums): the floor for writing.
+A refused import (the same file with one bad cell in its last row) is timed against the real one.
+Goals (issue 13): >= 200,000 rows/s for a 1M-row file, peak memory < 1 GB, a refused import
+<= 10% of a real one. The demo store build is timed too (goal < 10 s).
 """
 
 from __future__ import annotations
 
 import argparse
+import json
+import resource
+import sqlite3
+import subprocess
 import sys
 import tempfile
 import time
@@ -23,74 +29,127 @@ sys.path.insert(0, str(ROOT))
 
 import numpy as np  # noqa: E402
 import polars as pl  # noqa: E402
-from lotwatch.store import Store  # noqa: E402
-from lotwatch.store.demo import build_demo_store  # noqa: E402
-from lotwatch.store.importer import ImportOptions, parse_import, store_import  # noqa: E402
 
 
-def make_csv(path: Path, rows: int) -> None:
+def make_csv(path: Path, rows: int, *, bad_last: bool = False) -> None:
+    """Two replicate values per lot, six lines, three shifts, one site; invented numbers."""
     rng = np.random.default_rng(3)
     units = np.rint(rng.normal(5000, 6, rows)).astype(np.int64)
-    minutes = np.arange(rows) // 2
-    pl.DataFrame({
-        "lot": [f"B{i // 2:07d}" for i in range(rows)],
-        "characteristic": "fill_volume",
-        "value": [f"{u // 10}.{u % 10}" for u in units],
-        "measured_at": [f"2026-11-{1 + (m // 1440) % 28:02d}T{(m // 60) % 24:02d}:{m % 60:02d}:00Z"
-                        for m in minutes],
-        "site": "S",
-        "line": [f"L{(i // 2) % 6}" for i in range(rows)],
-        "shift": [("early", "late", "night")[(i // 2) % 3] for i in range(rows)],
-    }).write_csv(path)
+    lot = np.arange(rows) // 2
+    minutes = lot
+    day = 1 + (minutes // 1440) % 28
+    lots = pl.Series("lot", lot).cast(pl.String).str.zfill(7)
+    frame = pl.DataFrame({
+        "lot": "B" + lots,
+        "characteristic": pl.Series(["fill_volume"] * rows),
+        "value": pl.Series(units // 10).cast(pl.String) + "." + pl.Series(units % 10).cast(pl.String),
+        "measured_at": ("2026-11-" + pl.Series(day).cast(pl.String).str.zfill(2) + "T"
+                        + pl.Series((minutes // 60) % 24).cast(pl.String).str.zfill(2) + ":"
+                        + pl.Series(minutes % 60).cast(pl.String).str.zfill(2) + ":00Z"),
+        "site": pl.Series(["S"] * rows),
+        "line": "L" + pl.Series(lot % 6).cast(pl.String),
+        "shift": pl.Series(np.array(["early", "late", "night"])[lot % 3]),
+    })
+    if bad_last:
+        frame = frame.with_columns(
+            pl.when(pl.int_range(pl.len()) == rows - 1).then(pl.lit("5OO.1"))
+            .otherwise(pl.col("value")).alias("value"))
+    frame.write_csv(path)
 
 
-def new_store(path: Path) -> Store:
-    s = Store.create(path)
-    s.add_characteristic("fill_volume", unit="mL", resolution="0.1", plausible=(400, 600))
-    return s
+def new_store(path: Path) -> None:
+    from lotwatch.store import Store
+
+    with Store.create(path) as s:
+        s.add_characteristic("fill_volume", unit="mL", resolution="0.1", plausible=(400, 600))
+
+
+def child(csv_path: str, db: str) -> None:
+    """Run one import and print its time, outcome and peak memory as JSON."""
+    import lotwatch.store.bulk  # noqa: F401  (modules and polars loaded before the clock starts)
+    from lotwatch.store import BadInput, Store
+    from lotwatch.store.importer import import_file
+
+    with Store.open(db) as store:
+        t = time.perf_counter()
+        try:
+            summary = import_file(store, csv_path)
+            outcome = f"stored {summary.stored}"
+        except BadInput as exc:
+            outcome = f"refused ({len(exc.problems)} problem)"
+        elapsed = time.perf_counter() - t
+    peak_mb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+    print(json.dumps({"seconds": elapsed, "outcome": outcome, "peak_mb": peak_mb}))
+
+
+def run_child(csv_path: Path, db: Path) -> dict:
+    out = subprocess.run([sys.executable, __file__, "--child", str(csv_path), str(db)],
+                         capture_output=True, text=True, check=True)
+    return json.loads(out.stdout.strip().splitlines()[-1])
+
+
+def bare_executemany(frame: pl.DataFrame, db: Path) -> float:
+    conn = sqlite3.connect(db)
+    conn.execute("PRAGMA journal_mode = WAL")
+    conn.execute("CREATE TABLE m (id INTEGER PRIMARY KEY, lot TEXT, characteristic TEXT, "
+                 "value TEXT, measured_at TEXT, site TEXT, line TEXT, shift TEXT) STRICT")
+    t = time.perf_counter()
+    with conn:
+        conn.executemany("INSERT INTO m(lot, characteristic, value, measured_at, site, line, "
+                         "shift) VALUES (?, ?, ?, ?, ?, ?, ?)", frame.iter_rows())
+    elapsed = time.perf_counter() - t
+    conn.close()
+    return elapsed
 
 
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__)
-    ap.add_argument("--rows", type=int, default=200_000)
+    ap.add_argument("--rows", type=int, default=None)
+    ap.add_argument("--quick", action="store_true", help="100,000 rows instead of 1,000,000")
+    ap.add_argument("--child", nargs=2, metavar=("CSV", "DB"), help=argparse.SUPPRESS)
     args = ap.parse_args()
+    if args.child:
+        child(*args.child)
+        return
+    rows = args.rows or (100_000 if args.quick else 1_000_000)
     with tempfile.TemporaryDirectory() as tmp:
         d = Path(tmp)
-        csv_path = d / "bench.csv"
-        make_csv(csv_path, args.rows)
+        good, bad = d / "good.csv", d / "bad.csv"
+        make_csv(good, rows)
+        make_csv(bad, rows, bad_last=True)
 
         t = time.perf_counter()
-        pl.read_csv(csv_path, infer_schema=False)
+        frame = pl.read_csv(good, infer_schema=False)
         t_read = time.perf_counter() - t
+        t_bare = bare_executemany(frame, d / "bare.sqlite")
+        del frame
 
-        store = new_store(d / "a.sqlite")
-        t = time.perf_counter()
-        parsed = parse_import(csv_path, ImportOptions(), factors=["site", "line", "shift"],
-                              characteristics=["fill_volume"])
-        t_parse = time.perf_counter() - t
-        t = time.perf_counter()
-        summary = store_import(store, parsed)
-        t_store = time.perf_counter() - t
-        store.close()
-        assert summary.stored == args.rows
+        new_store(d / "a.sqlite")
+        real = run_child(good, d / "a.sqlite")
+        new_store(d / "b.sqlite")
+        refused = run_child(bad, d / "b.sqlite")
+        again = run_child(good, d / "a.sqlite")  # re-import: every lot a duplicate
 
-        baseline = new_store(d / "b.sqlite")
-        t = time.perf_counter()
-        baseline.log_lots(parsed.entries)
-        t_log = time.perf_counter() - t
-        baseline.close()
+        from lotwatch.store.demo import build_demo_store
 
         t = time.perf_counter()
         build_demo_store(d / "demo.sqlite")
         t_demo = time.perf_counter() - t
 
-    total = t_parse + t_store
-    print(f"rows: {args.rows:,}")
-    print(f"read+parse: {t_parse:.2f} s (polars read_csv alone {t_read:.2f} s, "
-          f"ratio {t_parse / t_read:.1f}x)")
-    print(f"store:      {t_store:.2f} s (log_lots on prebuilt entries {t_log:.2f} s, "
-          f"ratio {t_store / t_log:.2f}x)")
-    print(f"whole import: {total:.2f} s = {args.rows / total:,.0f} rows/s (goal >= 20,000)")
+    rate = rows / real["seconds"]
+    print(f"rows: {rows:,} ({real['outcome']})")
+    print(f"baselines: polars.read_csv {t_read:.2f} s; bare executemany {t_bare:.2f} s "
+          f"({rows / t_bare:,.0f} rows/s)")
+    print(f"import: {real['seconds']:.2f} s = {rate:,.0f} rows/s "
+          f"({real['seconds'] / t_read:.0f}x read_csv, {real['seconds'] / t_bare:.1f}x bare "
+          f"executemany); goal >= 200,000 rows/s: {'met' if rate >= 200_000 else 'NOT met'}")
+    print(f"peak memory: {real['peak_mb']:,.0f} MB; goal < 1024 MB: "
+          f"{'met' if real['peak_mb'] < 1024 else 'NOT met'}")
+    share = refused["seconds"] / real["seconds"]
+    print(f"refused import (one bad cell, {refused['outcome']}): {refused['seconds']:.2f} s = "
+          f"{share:.1%} of the real one; goal <= 10%: {'met' if share <= 0.10 else 'NOT met'}")
+    print(f"re-import of the same file ({again['outcome']}): {again['seconds']:.2f} s, "
+          f"peak {again['peak_mb']:,.0f} MB")
     print(f"demo build: {t_demo:.2f} s (goal < 10 s)")
 
 

@@ -30,6 +30,19 @@ def _pairs(items: tuple[str, ...], option: str, left: str, right: str) -> dict[s
     return out
 
 
+def _years(text: str | None) -> tuple[int, int] | None:
+    if text is None:
+        return None
+    a, sep, b = text.partition("-")
+    try:
+        lo, hi = int(a), int(b)
+    except ValueError:
+        lo = hi = 0
+    if not sep or not 1 <= lo <= hi <= 9999:
+        raise UserError(f"--years {text!r}: write it as FROM-TO, e.g. 2000-2030")
+    return lo, hi
+
+
 def _show_progress(values: int) -> bool:
     if values >= PROGRESS_MIN_VALUES:
         return True
@@ -61,6 +74,13 @@ def _show_progress(values: int) -> bool:
                    "the file calls characteristic NAME by COLUMN (repeatable).")
 @click.option("--decimal-comma", is_flag=True,
               help="Values use a decimal comma (500,3); the delimiter is then guessed as ';'.")
+@click.option("--thousands", default=None, type=click.Choice([".", ",", " ", "'"]),
+              help="Thousands separator used in the values (e.g. '.' with --decimal-comma for "
+                   "1.250,5); without it a value like 1.250 under --decimal-comma is refused "
+                   "as ambiguous.")
+@click.option("--years", default=None, metavar="FROM-TO",
+              help="Plausible measurement years (default: 1970 to next year); rows dated "
+                   "outside are refused.")
 @click.option("--delimiter", default=None,
               help="Column delimiter (default: guessed from the header: , ; tab or |).")
 @click.option("--round", "round_values", is_flag=True,
@@ -76,7 +96,8 @@ def _show_progress(values: int) -> bool:
 def import_command(file: str, fmt: str, layout: str, lot_column: str, time_column: str,
                    value_column: str, characteristic_column: str, note_column: str,
                    tag_columns: tuple[str, ...], char_map: tuple[str, ...], decimal_comma: bool,
-                   delimiter: str | None, round_values: bool, skip_bad: bool, by: str | None,
+                   thousands: str | None, years: str | None, delimiter: str | None,
+                   round_values: bool, skip_bad: bool, by: str | None,
                    db_path: Path) -> None:
     """Import lot measurements from FILE (CSV or Parquet).
 
@@ -100,18 +121,19 @@ def import_command(file: str, fmt: str, layout: str, lot_column: str, time_colum
         note_column=note_column,
         tag_columns=_pairs(tag_columns, "--tag-column", "KEY", "COLUMN"),
         characteristic_map=_pairs(char_map, "--characteristic-map", "COLUMN", "NAME"),
-        decimal_comma=decimal_comma, delimiter=delimiter, round_values=round_values,
-        skip_bad=skip_bad, by=by,
+        decimal_comma=decimal_comma, thousands=thousands, delimiter=delimiter,
+        round_values=round_values, skip_bad=skip_bad, by=by, years=_years(years),
     )
     with open_store(db_path) as store:
         parsed = parse_import(
             Path(file), options,
             factors=[f.name for f in store.factors()],
             characteristics=[c.name for c in store.characteristics()],
+            zone=store.plant_zone,
         )
         for note in parsed.notes:
-            click.echo(f"Note: {note}")
-        total = sum(len(e.values) for e in parsed.entries)
+            click.echo(plain(f"Note: {note}"))  # notes quote header names: cleaned
+        total = parsed.value_count
         try:
             if _show_progress(total) and not (parsed.problems and not skip_bad):
                 with click.progressbar(length=total, label=f"Storing {total:,} values",

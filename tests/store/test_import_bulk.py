@@ -1,0 +1,214 @@
+"""The import's bulk path (store.bulk): no write lock for a refused import, bounded transactions that
+never split a lot, a re-run that completes an interrupted import, and the input checks added for
+ambiguous separators, mixed encodings, implausible years, huge cells, absurd widths and repeated
+rows.
+
+Sources: SQLite's locking (BEGIN IMMEDIATE takes the RESERVED lock; a second writer gets
+SQLITE_BUSY after its timeout, sqlite.org/lang_transaction.html); UTF-8 well-formedness (RFC 3629,
+section 4); Python's int-string conversion limit of 4,300 digits (docs.python.org, "Integer string
+conversion length limitation"); decimal comma with '.' grouping thousands (common practice in
+many European locales).
+"""
+
+from __future__ import annotations
+
+import sqlite3
+from pathlib import Path
+
+import pytest
+from lotwatch.store import BadInput, Store, StoreLocked, bulk
+from lotwatch.store.importer import FileRefused, ImportOptions, import_file
+
+HEADER = "lot,characteristic,value,measured_at,site,line,shift"
+
+
+@pytest.fixture
+def lab(tmp_path: Path):
+    s = Store.create(tmp_path / "lab.sqlite", timeout=0.3)
+    s.add_characteristic("fill_volume", unit="mL", resolution="0.1", plausible=(0, 5000))
+    try:
+        yield s
+    finally:
+        s.close()
+
+
+def rows(n: int, start: int = 0, value: str = "500.1") -> str:
+    return "".join(f"L{i // 2:05d},fill_volume,{value},2026-11-03T08:15:00Z,S,L{i // 2 % 3},e\n"
+                   for i in range(start, start + n))
+
+
+def write(path: Path, text: str, encoding: str = "utf-8") -> Path:
+    path.write_bytes(text.encode(encoding))
+    return path
+
+
+def dump(store: Store) -> list[str]:
+    return list(store.conn.iterdump())
+
+
+@pytest.fixture
+def locker(lab: Store):
+    """Another connection holding the store's write lock (BEGIN IMMEDIATE) until released."""
+    conn = sqlite3.connect(lab.path, timeout=0.1, isolation_level=None)
+    conn.execute("BEGIN IMMEDIATE")
+    yield conn
+    conn.execute("ROLLBACK")
+    conn.close()
+
+
+def test_refused_import_never_waits_for_the_write_lock(lab, tmp_path, locker):
+    f = write(tmp_path / "bad.csv", HEADER + "\n" + rows(40) + "X,fill_volume,5OO.1,"
+              "2026-11-03T08:15:00Z,S,L,e\n")
+    with pytest.raises(BadInput) as err:  # not StoreLocked: the lock was never asked for
+        import_file(lab, f)
+    assert [(p.row, p.column, p.value) for p in err.value.problems] == [(41, "value", "5OO.1")]
+
+
+def test_a_good_import_does_wait_for_the_write_lock(lab, tmp_path, locker):
+    # the control for the test above: the same situation with a good file reaches the lock
+    f = write(tmp_path / "good.csv", HEADER + "\n" + rows(40))
+    with pytest.raises(StoreLocked):
+        import_file(lab, f)
+
+
+def test_store_problems_are_found_without_the_write_lock(lab, tmp_path, locker):
+    f = write(tmp_path / "bad.csv", HEADER + "\n" + rows(4) + "Z,fill_volume,9999.9,"
+              "2026-11-03T08:15:00Z,S,L,e\n")
+    with pytest.raises(BadInput, match="plausible"):
+        import_file(lab, f)
+
+
+def test_transactions_are_bounded_and_never_split_a_lot(lab, tmp_path, monkeypatch):
+    monkeypatch.setattr(bulk, "CHUNK_VALUES", 7)
+    chunks: list[list[str]] = []
+    real = bulk._write_chunk
+
+    def spy(store, part, *args):
+        chunks.append(part.entries.explode("units")["lot"].to_list())
+        return real(store, part, *args)
+
+    monkeypatch.setattr(bulk, "_write_chunk", spy)
+    f = write(tmp_path / "many.csv", HEADER + "\n" + rows(60))
+    summary = import_file(lab, f)
+    assert summary.stored == 60
+    assert len(chunks) > 1 and max(map(len, chunks)) <= 7 + 1  # a lot finishing a chunk
+    owners = {}
+    for i, lots in enumerate(chunks):
+        for lot in lots:
+            assert owners.setdefault(lot, i) == i  # each lot in exactly one transaction
+    assert lab.check().ok
+
+
+def test_interrupted_import_keeps_whole_lots_and_a_rerun_completes_it(lab, tmp_path,
+                                                                      monkeypatch):
+    monkeypatch.setattr(bulk, "CHUNK_VALUES", 10)
+    real = bulk._write_chunk
+    calls = []
+
+    def dies_on_third(*args):
+        calls.append(1)
+        if len(calls) == 3:
+            raise KeyboardInterrupt  # what Ctrl-C does in the middle of a transaction
+        return real(*args)
+
+    monkeypatch.setattr(bulk, "_write_chunk", dies_on_third)
+    f = write(tmp_path / "big.csv", HEADER + "\n" + rows(50))
+    with pytest.raises(KeyboardInterrupt):
+        import_file(lab, f)
+    assert lab.check().ok
+    per_lot = lab.conn.execute("SELECT count(*) FROM measurements GROUP BY lot_id").fetchall()
+    assert {n for (n,) in per_lot} == {2} and len(per_lot) == 10  # two whole transactions
+    monkeypatch.setattr(bulk, "_write_chunk", real)
+    again = import_file(lab, f)
+    assert (again.stored, again.duplicates) == (30, 20)
+    assert lab.conn.execute("SELECT count(*) FROM measurements").fetchone()[0] == 50
+    assert lab.check().ok
+
+
+def test_decimal_comma_refuses_ambiguous_thousands(lab, tmp_path):
+    f = write(tmp_path / "dc.csv", "lot;characteristic;value;measured_at;site;line;shift\n"
+              "A;fill_volume;980,5;2026-11-03T08:15:00Z;S;L;e\n"
+              "B;fill_volume;1.250;2026-11-03T08:15:00Z;S;L;e\n")
+    before = dump(lab)
+    with pytest.raises(BadInput) as err:
+        import_file(lab, f, ImportOptions(decimal_comma=True))
+    [p] = err.value.problems
+    assert (p.row, p.column, p.value) == (2, "value", "1.250") and "ambiguous" in p.reason
+    assert dump(lab) == before
+    # declared: '.' groups thousands, so 1.250 is one thousand two hundred fifty
+    summary = import_file(lab, f, ImportOptions(decimal_comma=True, thousands="."))
+    assert summary.stored == 2
+    values = sorted(lab.measurements_frame()["value_text"].to_list())
+    assert values == ["1250.0", "980.5"]
+
+
+def test_file_mixing_utf8_and_latin1_is_refused_naming_the_bad_line(lab, tmp_path):
+    text = (HEADER + "\n" + "A,fill_volume,500.1,2026-11-03T08:15:00Z,Münster,L,e\n").encode()
+    text += "B,fill_volume,500.1,2026-11-03T08:15:00Z,Münster,L,e\n".encode("latin-1")
+    f = tmp_path / "mixed.csv"
+    f.write_bytes(text)
+    before = dump(lab)
+    with pytest.raises(FileRefused) as err:
+        import_file(lab, f)
+    assert "mixed.csv" in str(err.value) and "line 3" in str(err.value)
+    assert "line 2 is UTF-8" in str(err.value)
+    assert dump(lab) == before
+
+
+@pytest.mark.parametrize("stamp", ["0999-06-01T08:00:00Z", "2999-01-01T00:00:00Z"])
+def test_implausible_years_are_refused(lab, tmp_path, stamp):
+    f = write(tmp_path / "y.csv", HEADER + f"\nA,fill_volume,500.1,{stamp},S,L,e\n")
+    with pytest.raises(BadInput) as err:
+        import_file(lab, f)
+    [p] = err.value.problems
+    assert (p.row, p.column, p.value) == (1, "measured_at", stamp)
+    assert "outside the plausible range" in p.reason
+    assert import_file(lab, f, ImportOptions(years=(900, 3000))).stored == 1  # configurable
+
+
+def test_a_cell_with_thousands_of_digits_gets_a_clear_message(lab, tmp_path):
+    huge = "5" + "0" * 4400 + ".1"
+    f = write(tmp_path / "h.csv", HEADER + f"\nA,fill_volume,{huge},2026-11-03T08:15:00Z,S,L,e\n"
+              "B,fill_volume,0." + "0" * 4400 + "1,2026-11-03T08:15:00Z,S,L,e\n")
+    with pytest.raises(BadInput) as err:
+        import_file(lab, f)
+    assert [(p.row, p.column) for p in err.value.problems] == [(1, "value"), (2, "value")]
+    assert all("characters" in p.reason for p in err.value.problems)
+
+
+def test_log_refuses_a_value_with_thousands_of_digits(lab):
+    from lotwatch.store import LotEntry
+
+    with pytest.raises(BadInput, match="characters"):
+        lab.log_lots([LotEntry("fill_volume", ["0." + "0" * 4400 + "1"],
+                               {"site": "S", "line": "L", "shift": "e"})])
+
+
+def test_absurdly_wide_files_are_refused_before_reading(lab, tmp_path):
+    header = ",".join(f"c{i}" for i in range(100_000))
+    f = write(tmp_path / "wide.csv", header + "\n" + ",".join("1" * 1 for _ in range(100_000)))
+    with pytest.raises(FileRefused, match="100,000 columns"):
+        import_file(lab, f)
+
+
+def test_identical_rows_are_named_and_voiding_the_copy_makes_the_clean_file_a_duplicate(
+        lab, tmp_path):
+    line = "A,fill_volume,500.1,2026-11-03T08:15:00Z,S,L,e\n"
+    f = write(tmp_path / "dup.csv", HEADER + "\n" + line + "A,fill_volume,500.2,"
+              "2026-11-03T08:15:00Z,S,L,e\n" + line)
+    first = import_file(lab, f)
+    assert first.stored == 3
+    [note] = [n for n in first.notes if "repeat an earlier row" in n]
+    assert "rows 3" in note and "void" in note
+    # the clean file (without the copy) conflicts while the copy is live ...
+    clean = write(tmp_path / "clean.csv", HEADER + "\n" + line + "A,fill_volume,500.2,"
+                  "2026-11-03T08:15:00Z,S,L,e\n")
+    with pytest.raises(BadInput) as err:
+        import_file(lab, clean)
+    assert "void" in err.value.problems[0].reason  # says what the user can do
+    # ... and is a duplicate once the copy is voided (voided values are not compared)
+    copy = max(first.measurement_ids)
+    lab.void(copy, reason="copied row in the lab file")
+    again = import_file(lab, clean)
+    assert (again.stored, again.duplicates) == (0, 2)
+    assert lab.check().ok
