@@ -168,6 +168,7 @@ def check(store: Store) -> CheckReport:
                         f"raw rows give {_fmt_sums(fresh.get(key))}")
     if len(bad_keys) > 20:
         problems.append(f"... and {len(bad_keys) - 20} more bucket mismatches")
+    problems.extend(_format_problems(conn))
     problems.extend(_day_problems(conn))
     no_log = conn.execute(
         "SELECT m.id FROM measurements m WHERE NOT EXISTS "
@@ -180,6 +181,21 @@ def check(store: Store) -> CheckReport:
                        measurements=int(n_meas))
 
 
+_DAY_GLOB = "[0-9][0-9][0-9][0-9]-[01][0-9]-[0-3][0-9]"
+_STAMP_GLOB = _DAY_GLOB + "T[0-2][0-9]:[0-5][0-9]:[0-6][0-9]Z"
+
+
+def _format_problems(conn: sqlite3.Connection) -> list[str]:
+    """Every stored time must be in the stored form (``2026-11-30T14:05:00Z``, a four-digit
+    year) and every day ``YYYY-MM-DD``: text sorts as time only in that form."""
+    bad = conn.execute(
+        "SELECT id, measured_at, day, logged_at FROM measurements WHERE measured_at NOT GLOB ? "
+        "OR day NOT GLOB ? OR logged_at NOT GLOB ? LIMIT 20",
+        (_STAMP_GLOB, _DAY_GLOB, _STAMP_GLOB)).fetchall()
+    return [f"measurement {mid} has a malformed time or day (measured_at {at!r}, day {day!r}, "
+            f"logged_at {logged!r})" for mid, at, day, logged in bad]
+
+
 def _day_problems(conn: sqlite3.Connection) -> list[str]:
     """Every measurement's day must be the plant-local date of its ``measured_at``."""
     from lotwatch.store.plantzone import day_function, read_zone
@@ -187,7 +203,8 @@ def _day_problems(conn: sqlite3.Connection) -> list[str]:
     zone = read_zone(conn)
     day_of = day_function(zone)
     wrong = [(stamp, day) for stamp, day in conn.execute(
-        "SELECT DISTINCT measured_at, day FROM measurements") if day_of(stamp) != day]
+        "SELECT DISTINCT measured_at, day FROM measurements WHERE measured_at GLOB ?",
+        (_STAMP_GLOB,)) if day_of(stamp) != day]
     return [f"measurements taken at {stamp} are filed under day {day}; in the plant zone "
             f"{zone} that is {day_of(stamp)}" for stamp, day in wrong[:20]]
 

@@ -212,3 +212,47 @@ def test_identical_rows_are_named_and_voiding_the_copy_makes_the_clean_file_a_du
     again = import_file(lab, clean)
     assert (again.stored, again.duplicates) == (0, 2)
     assert lab.check().ok
+
+
+def test_bulk_days_and_lot_counts_follow_the_plant_zone_like_log_lots(lab, tmp_path):
+    # America/Chicago is UTC-6 on 3 November 2026 (US daylight time ended on 1 November; IANA tz
+    # database). 23:30 local on the 3rd is 05:30 UTC on the 4th, and stays on plant day the 3rd.
+    from lotwatch.store import LotEntry
+
+    lab.set_plant_zone("America/Chicago")
+    f = write(tmp_path / "z.csv", HEADER + "\n"
+              "A,fill_volume,500.1,2026-11-03 23:30,S,L,night\n"
+              "A,fill_volume,500.3,2026-11-03 23:30,S,L,night\n"
+              "B,fill_volume,500.2,2026-11-04T04:30:00Z,S,L,night\n")
+    import_file(lab, f)
+    rows = lab.conn.execute("SELECT measured_at, day FROM measurements ORDER BY id").fetchall()
+    assert rows == [("2026-11-04T05:30:00Z", "2026-11-03")] * 2 + [
+        ("2026-11-04T04:30:00Z", "2026-11-03")]
+    got = lab.conn.execute("SELECT factor, level, day, n, lots FROM buckets "
+                           "WHERE factor = 'shift'").fetchall()
+    assert got == [("shift", "night", "2026-11-03", 3, 2)]  # 3 values, 2 lots
+    # the row-by-row path stores the same lots the same way
+    other = Store.create(tmp_path / "other.sqlite")
+    other.add_characteristic("fill_volume", unit="mL", resolution="0.1", plausible=(0, 5000))
+    other.set_plant_zone("America/Chicago")
+    tags = {"site": "S", "line": "L", "shift": "night"}
+    other.log_lots([LotEntry("fill_volume", ["500.1", "500.3"], tags, lot="A",
+                             measured_at="2026-11-03 23:30"),
+                    LotEntry("fill_volume", ["500.2"], tags, lot="B",
+                             measured_at="2026-11-04T04:30:00Z")])
+    sql = "SELECT characteristic_id, factor, level, day, n, sum_d, sum_d2, lots FROM buckets"
+    assert sorted(lab.conn.execute(sql).fetchall()) == sorted(other.conn.execute(sql).fetchall())
+    other.close()
+    assert lab.check().ok
+
+
+def test_check_finds_malformed_stored_times(lab, tmp_path):
+    # A time stored before years were checked could have a three-digit year ("999-06-01T...");
+    # text compares as time only in the stored form, so check must say so (common practice).
+    f = write(tmp_path / "ok.csv", HEADER + "\nA,fill_volume,500.1,2026-11-03T08:15:00Z,S,L,e\n")
+    import_file(lab, f)
+    assert lab.check().ok
+    lab.conn.execute("UPDATE measurements SET measured_at = '999-06-01T08:15:00Z'")
+    report = lab.check()
+    assert not report.ok
+    assert any("malformed time" in p and "999-06-01T08:15:00Z" in p for p in report.problems)
