@@ -38,7 +38,6 @@ encoding is refused naming its first bad line.
 
 from __future__ import annotations
 
-import csv
 from collections.abc import Callable, Iterable
 from dataclasses import dataclass, field
 from datetime import UTC, datetime
