@@ -38,18 +38,12 @@ from lotwatch.store.transaction import DEFAULT_TIMEOUT, Session, translate_error
 
 if TYPE_CHECKING:
     import polars as pl
-    import sqlite_utils
 
 __all__ = ["DEFAULT_TIMEOUT", "Store", "login_name", "translate_error"]
 
 
 class Store(Session):
     """An open lotwatch store. Use ``Store.create`` / ``Store.open``; close it (or use ``with``)."""
-
-    def __init__(self, conn: sqlite3.Connection, path: Path, *, read_only: bool,
-                 immutable: bool = False, timeout: float = DEFAULT_TIMEOUT) -> None:
-        super().__init__(conn, path, read_only=read_only, immutable=immutable, timeout=timeout)
-        self._db: sqlite_utils.Database | None = None
 
     # ----------------------------------------------------------------- opening and closing
 
@@ -139,16 +133,6 @@ class Store(Session):
         """See ``Session.write``: ``BEGIN IMMEDIATE`` ... ``COMMIT`` (nested: a SAVEPOINT)."""
         with super().write():
             yield self
-
-    @property
-    def db(self) -> sqlite_utils.Database:
-        """A ``sqlite_utils.Database`` over the same connection (writes still need ``write()``)."""
-        if self._db is None:
-            import sqlite_utils
-
-            self._db = sqlite_utils.Database(self.conn, recursive_triggers=False,
-                                             execute_plugins=False)
-        return self._db
 
     # ----------------------------------------------------------------- catalog (store.catalog)
 

@@ -11,6 +11,7 @@ from pathlib import Path
 
 import lotwatch.store
 import pytest
+import sqlite_utils
 from lotwatch.store import (
     BadInput,
     Store,
@@ -42,7 +43,14 @@ def test_create_makes_strict_tables_wal_and_default_factors(store: Store, store_
     assert [(f.name, f.required) for f in store.factors()] == [
         ("site", True), ("line", True), ("shift", True)]
     assert store.info()["created_by"] == schema.LOTWATCH_VERSION
-    assert store.db.table("factors").count == 3  # sqlite-utils view over the same connection
+    # An independent reader (sqlite-utils, test extra) sees the same file: every table STRICT.
+    other = sqlite_utils.Database(store.path)
+    try:
+        assert other.table("factors").count == 3
+        assert all(other.table(t).strict for t in other.table_names()
+                   if not t.startswith("sqlite_"))
+    finally:
+        other.close()
 
 
 def test_strict_tables_refuse_wrong_types(store: Store) -> None:
