@@ -120,8 +120,7 @@ def run_battery(samples: Sequence[Any], names: Sequence[str], *, alpha: float = 
         raise ValueError(f"{len(samples)} samples but {len(names)} names")
     if lots is not None and len(lots) != len(samples):
         raise ValueError(f"{len(samples)} samples but {len(lots)} lot label lists")
-    lot_of = {str(nm): (None if lots is None else list(lab))
-              for nm, lab in zip(names, lots or [None] * len(names), strict=True)}
+    lot_of = {str(nm): (None if lots is None else list(lots[i])) for i, nm in enumerate(names)}
     if lsl is not None and usl is not None and not usl > lsl:
         raise ValueError(f"USL {usl} must be greater than LSL {lsl}")
     labels = [str(n) for n in names]

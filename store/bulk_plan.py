@@ -77,7 +77,8 @@ def _units(scales: list[int]) -> pl.Expr:
         digits = pl.when(pl.col("k") == k).then(
             pl.when(frac.str.len_chars() <= k).then(whole + frac.str.pad_end(k, "0"))
         ).otherwise(digits)
-    n = pl.when(plain & (digits.str.len_chars() <= 18)).then(digits.cast(pl.Int64, strict=False))
+    n: pl.Expr = pl.when(plain & (digits.str.len_chars() <= 18)).then(
+        digits.cast(pl.Int64, strict=False))
     n = pl.when(text.str.starts_with("-")).then(-n).otherwise(n)
     return pl.when(n % pl.col("m") == 0).then(n // pl.col("m")).alias("units")
 

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import re
 from datetime import UTC, datetime
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 from lotwatch.store.values import MAX_NUMBER_CHARS
 
@@ -92,7 +92,7 @@ def number_reason(decimal_comma: bool, thousands: str | None) -> pl.Expr:
 
     raw, num = pl.col("raw"), pl.col("num")
     ok = num.str.contains(NUMBER)
-    reason = pl.when(raw.str.len_chars() > MAX_NUMBER_CHARS).then(
+    reason: Any = pl.when(raw.str.len_chars() > MAX_NUMBER_CHARS).then(  # a when/then chain
         pl.format("the value has {} characters; lotwatch reads numbers of at most "
                   f"{MAX_NUMBER_CHARS} characters (check the cell)", raw.str.len_chars()))
     if decimal_comma and thousands is None:

@@ -16,6 +16,7 @@ baseline, and on a baseline line no longer reported (delete it: the baseline onl
 
 from __future__ import annotations
 
+import hashlib
 import os
 import re
 import subprocess
@@ -32,7 +33,9 @@ _ERROR = re.compile(r"^(?P<path>[^:]+):\d+(?::\d+)?: error: (?P<msg>.*?)\s*"
 
 
 def _source_tree() -> Path:
-    base = Path(tempfile.gettempdir()) / f"lotwatch-typecheck-{os.getuid()}"
+    # one folder per checkout (several worktrees may check at once on one machine)
+    tag = hashlib.sha256(str(ROOT).encode()).hexdigest()[:12]
+    base = Path(tempfile.gettempdir()) / f"lotwatch-typecheck-{os.getuid()}-{tag}"
     pkg = base / "lotwatch"
     pkg.mkdir(parents=True, exist_ok=True)
     for name in PACKAGES:

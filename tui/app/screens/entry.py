@@ -99,15 +99,15 @@ class LotEntryScreen(ModalScreen[None]):
                     yield Label(Text(label))
                     yield inp
                 for i, ch in enumerate(self.ordered):
-                    inp = ValuesInput(ch, id="values" if i == 0 else f"values-{i}")
-                    self._values.append(inp)
+                    vals = ValuesInput(ch, id="values" if i == 0 else f"values-{i}")
+                    self._values.append(vals)
                     if i == 0:
                         yield Label(Text(clean(ch.name, 12) + " *"))
-                        yield inp
+                        yield vals
                         yield from self._lot_fields()
                     else:
                         yield Label(Text(clean(ch.name, 14)))
-                        yield inp
+                        yield vals
                 if not self.ordered:
                     yield from self._lot_fields()
             yield Static("", id="info")
