@@ -155,8 +155,8 @@ class ReviewSettings:
                 problems.append(f"{name} = {getattr(self, name)}: must be at least {lo}")
         if not 0 < self.fdr_level < 1:
             problems.append(f"review.fdr_level = {self.fdr_level}: must be between 0 and 1")
-        if not 0 < self.tolerance_fraction <= 1:
-            problems.append(f"review.tolerance_fraction = {self.tolerance_fraction}: must be in (0, 1]")
+        from lotwatch.stats.settings_rules import combination_problems  # bounds, with reasons
+        problems += combination_problems(self)
         if problems:
             raise ValueError("; ".join(problems))
         return self
