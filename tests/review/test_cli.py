@@ -198,3 +198,22 @@ def test_report_for_an_earlier_week_shows_that_week(demo_copy, demo_replay, tmp_
     text = out.read_text()
     assert f"detector state shown as it was after {early}" in text
     assert run(demo_copy, "alerts", "list", "--format", "json").output == before
+
+
+def test_a_review_of_the_future_is_refused_and_records_nothing(demo_copy):
+    """Issue 11, item 8: a week that has not begun (or a later --as-of) is refused, exit 2."""
+    import sqlite3
+
+    def events() -> int:
+        conn = sqlite3.connect(demo_copy)
+        try:
+            return conn.execute("SELECT count(*) FROM alert_events").fetchone()[0]
+        finally:
+            conn.close()
+
+    before = events()
+    r = run(demo_copy, "review", "--week", "2099-W10")
+    assert r.exit_code == 2 and "has not begun" in r.output and "plant time" in r.output
+    r = run(demo_copy, "review", "--as-of", "2099-03-01")
+    assert r.exit_code == 2 and "in the future" in r.output
+    assert events() == before

@@ -29,7 +29,8 @@ def load_lots(path: Path, read_only: bool, request: LotsRequest) -> LotsView:
 
     with opened(path, read_only) as store:
         settings = review_settings(store, window=request.window)
-        day = resolve_as_of(week=request.week)
+        zone = store.plant_zone  # days and shown times are plant-local
+        day = resolve_as_of(week=request.week, zone=zone)
         win = mon.window_plan(day, settings, 1)[-1]
         ch = store.characteristic(request.characteristic)
         frame = store.measurements_frame(characteristic=request.characteristic,
@@ -50,7 +51,7 @@ def load_lots(path: Path, read_only: bool, request: LotsRequest) -> LotsView:
         original = format_units(int(r["original_units"]), ch.resolution)
         values.append(LotValue(
             measurement_id=int(r["id"]), lot=str(r["lot"]),
-            measured_at=format_local(r["measured_at"], "%Y-%m-%d %H:%M"),
+            measured_at=format_local(r["measured_at"], "%Y-%m-%d %H:%M", zone),
             value=current, original=original if original != current else None,
             voided=bool(r["voided"]), by=str(r["logged_by"] or ""), note=str(r["note"] or ""),
             outside_spec=_outside(float(r["value"]), ch.lsl, ch.usl)))
@@ -64,5 +65,6 @@ def value_history(path: Path, read_only: bool, measurement_id: int) -> list[Audi
 
     with opened(path, read_only) as store:
         trail = store.history(measurement_id)
-    return [AuditLine(action=e.action, at=format_local(e.at, "%Y-%m-%d %H:%M"), by=e.by,
+        zone = store.plant_zone  # times shown in plant time
+    return [AuditLine(action=e.action, at=format_local(e.at, "%Y-%m-%d %H:%M", zone), by=e.by,
                       old=e.old_value, new=e.new_value, reason=e.reason) for e in trail]

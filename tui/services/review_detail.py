@@ -62,7 +62,7 @@ def trend(store, characteristic: str, factor: str, *, as_of: date | None = None,
     ``window`` overrides the kind (trailing | last_n | week), ``windows`` the count.
     """
     settings = review_settings(store, window=window)
-    day = resolve_as_of(as_of=as_of, week=week)
+    day = resolve_as_of(as_of=as_of, week=week, zone=store.plant_zone)
     plan = mon.window_plan(day, settings, windows or settings.trend_windows)
     comps, chars = comparisons_of(store, characteristic, factor)
     ws = compute_windows(store, comps, plan, settings, characteristic=characteristic,
@@ -116,7 +116,7 @@ def comparison_detail(store, characteristic: str, factor: str, *, as_of: date | 
     from lotwatch.stats import run_battery
 
     settings = review_settings(store, window=window)
-    day = resolve_as_of(as_of=as_of, week=week)
+    day = resolve_as_of(as_of=as_of, week=week, zone=store.plant_zone)
     tr = trend(store, characteristic, factor, as_of=day, window=window)
     latest = tr.windows[-1]
     ch = tr.characteristic
@@ -158,7 +158,7 @@ class LatestWindow:
         self.settings = review_settings(store)
         if self.settings.window == "last_n":
             raise ValueError("incremental updates need a trailing or week window")
-        self.as_of = resolve_as_of(as_of=as_of)
+        self.as_of = resolve_as_of(as_of=as_of, zone=store.plant_zone)
         self.window = mon.window_plan(self.as_of, self.settings, 1)[0]
         self.reload()
 

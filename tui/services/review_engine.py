@@ -224,7 +224,7 @@ def run_review(store, *, as_of: date | None = None, week: str | None = None,
     settings = review_settings(store, fdr_method=fdr_method, fdr_level=fdr_level)
     dset = detection.detector_settings(store)
     explicit = as_of is not None or week is not None
-    day = resolve_as_of(as_of=as_of, week=week)
+    day = resolve_as_of(as_of=as_of, week=week, zone=store.plant_zone)
     record = persist and not getattr(store, "read_only", False)
     notes: list[str] = []
     events: dict[tuple[str, str], str] = {}

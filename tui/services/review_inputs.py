@@ -35,15 +35,34 @@ def review_settings(store, *, fdr_method: str | None = None, fdr_level: float | 
     return s
 
 
-def resolve_as_of(*, as_of: date | None = None, week: str | None = None) -> date:
-    """The review day: the Sunday of ``week``, else ``as_of``, else today (UTC)."""
+def plant_today(zone: str | None) -> date:
+    """Today's date in the plant zone (UTC when the store does not say)."""
+    from zoneinfo import ZoneInfo
+
+    return datetime.now(UTC).astimezone(ZoneInfo(zone or "UTC")).date()
+
+
+def resolve_as_of(*, as_of: date | None = None, week: str | None = None,
+                  zone: str | None = None) -> date:
+    """The review day: the Sunday of ``week``, else ``as_of``, else today (plant time).
+
+    A week that has not begun or a day after today is refused (``ValueError``): a review of the
+    future would describe data that does not exist. The current week is allowed."""
     if week is not None and as_of is not None:
         raise ValueError("give either a week or an as-of date, not both")
+    today = plant_today(zone)
     if week is not None:
-        return weeks.parse_iso_week(week)[1]
+        monday, sunday = weeks.parse_iso_week(week)
+        if monday > today:
+            raise ValueError(f"week {week.strip().upper()} has not begun (today is "
+                             f"{today.isoformat()}, plant time); review a week up to this one")
+        return sunday
     if as_of is not None:
+        if as_of > today:
+            raise ValueError(f"{as_of.isoformat()} is in the future (today is "
+                             f"{today.isoformat()}, plant time)")
         return as_of
-    return datetime.now(UTC).date()
+    return today
 
 
 def comparisons_of(store, characteristic: str | None = None,
