@@ -46,11 +46,12 @@ def write_plan(store: Store, plan: Plan, *, source: str, skip_bad: bool,
     ids: list[int] = []
     lots = 0
     now_s = format_stored(now_utc())
+    required = [f.name for f in store.factors() if f.required]
     for (_,), chunk in entries.partition_by("_chunk", as_dict=True, maintain_order=True).items():
         part = Plan(entries=chunk.drop("_chunk", "_n"), tag_keys=plan.tag_keys, problems=[],
                     duplicates=0, refused_values=0, rounded=0)
         with store.write():
-            lot_ids = _judge_stored(store.conn, part, source)
+            lot_ids = _judge_stored(store.conn, part, source, required)
             if part.problems and not skip_bad:
                 raise BadInput(plan.problems + part.problems, stored_nothing=not ids)
             plan.problems += part.problems

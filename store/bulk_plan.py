@@ -62,24 +62,26 @@ def _char_table(chars: list[Characteristic]) -> pl.DataFrame:
         "origin": pl.Int64, "lo": pl.Int64, "hi": pl.Int64})
 
 
-def _units(scales: list[int]) -> pl.Expr:
+def _units() -> pl.Expr:
     """Exact units of plain decimal text (``-12.30``) at scale m / 10**k, null when the text
-    is not plain, has more decimals than k, more than 18 digits, or is not a multiple of m (those
-    go through ``values.text_to_units`` for the exact reason). ``scales``: the k in use."""
+    is not plain, has more decimals than k or more than 15 digits, or is not a multiple of m
+    (those go through ``values.text_to_units`` for the exact reason).
+
+    With at most k decimals the text is N / 10**k for an integer N; with |N| < 10**15 < 2**53
+    the nearest double to the text, times 10**k, is within far less than 0.5 of N (one rounding
+    in the parse, relative error <= 2**-53, and one in the product), so rounding it gives N
+    exactly (IEEE 754 round-to-nearest; Goldberg 1991, "What every computer scientist should
+    know about floating-point arithmetic", section 1.2)."""
     import polars as pl
 
     text = pl.col("value")
-    plain = text.str.contains(r"^-?\d+(?:\.\d+)?$")
-    whole = text.str.extract(r"^-?(\d+)", 1)
-    frac = text.str.extract(r"\.(\d+)$", 1).fill_null("")
-    digits = pl.lit(None, pl.String)
-    for k in scales:  # a file holds a few characteristics: one branch per decimal count
-        digits = pl.when(pl.col("k") == k).then(
-            pl.when(frac.str.len_chars() <= k).then(whole + frac.str.pad_end(k, "0"))
-        ).otherwise(digits)
-    n: pl.Expr = pl.when(plain & (digits.str.len_chars() <= 18)).then(
-        digits.cast(pl.Int64, strict=False))
-    n = pl.when(text.str.starts_with("-")).then(-n).otherwise(n)
+    plain = text.str.contains(r"^-?\d{1,15}(?:\.\d{1,15})?$")
+    point = text.str.find(".", literal=True)
+    decimals = pl.when(point.is_null()).then(0).otherwise(text.str.len_bytes() - point - 1)
+    digits = text.str.len_bytes() - text.str.starts_with("-").cast(pl.UInt32) - (decimals > 0)
+    fits = plain & (decimals <= pl.col("k")) & (digits - decimals + pl.col("k") <= 15)
+    n: pl.Expr = (text.cast(pl.Float64, strict=False) * pl.lit(10.0).pow(pl.col("k"))).round(0)
+    n = pl.when(fits).then(n.cast(pl.Int64))
     return pl.when(n % pl.col("m") == 0).then(n // pl.col("m")).alias("units")
 
 
@@ -94,10 +96,8 @@ def _value_checks(vals: pl.DataFrame) -> pl.DataFrame:
         | (pl.col("lo").is_not_null() & (scaled < pl.col("lo")))
         | (pl.col("hi").is_not_null() & (scaled > pl.col("hi")))
         | ((u - pl.col("origin")).abs() > MAX_ABS_D)
-        | (pl.col("lot").str.len_chars() > 100) | pl.col("lot").str.contains(_UNSAFE.pattern)
     )
-    scales = [int(k) for k in vals["k"].drop_nulls().unique().to_list()]
-    return vals.with_columns(_units(scales)).with_columns(flag.alias("flag"))
+    return vals.with_columns(_units()).with_columns(flag.alias("flag"))
 
 
 def plan_values(store: Store, values: pl.DataFrame, tag_keys: list[str], *, source: str,
@@ -111,18 +111,9 @@ def plan_values(store: Store, values: pl.DataFrame, tag_keys: list[str], *, sour
     zone = store.plant_zone
     required = [f.name for f in factors if f.required]
     tags = [TAG + k for k in tag_keys]
-    unsafe_tag = pl.lit(False)
-    for k, c in zip(tag_keys, tags, strict=True):
-        unsafe_tag = unsafe_tag | pl.col(c).str.contains(_UNSAFE.pattern).fill_null(False)
-        if _UNSAFE.search(k):
-            unsafe_tag = pl.lit(True)
-    missing_required = pl.lit(False)
-    for k in required:
-        missing_required = missing_required | (
-            pl.col(TAG + k).is_null() if k in tag_keys else pl.lit(True))
     vals = values.join(_char_table(chars), on="characteristic", how="left",
                        maintain_order="left")
-    vals = _value_checks(vals).with_columns((pl.col("flag") | unsafe_tag).alias("flag"))
+    vals = _value_checks(vals)
     at = pl.col("measured_at").fill_null(pl.lit(now_s).str.to_datetime(
         STORED_FORMAT, time_zone="UTC", time_unit="us")).dt.truncate("1s")
     # the bucket day is the plant-local date of the time (store.plantzone)
@@ -134,9 +125,14 @@ def plan_values(store: Store, values: pl.DataFrame, tag_keys: list[str], *, sour
         pl.col("column").first(),
         pl.col("note").drop_nulls().unique(maintain_order=True).str.join("; ").alias("note"),
         pl.col("flag").any(), pl.col("origin").first(), *(pl.col(c).first() for c in tags)))
-    entries = entries.with_columns(
-        (pl.col("flag") | missing_required).alias("flag"),
-        pl.col("note").replace("", None))
+    # lot IDs and tags are checked once per entry, not once per value
+    bad_lot = (pl.col("lot").str.len_chars() > 100) | pl.col("lot").str.contains(_UNSAFE.pattern)
+    for k, c in zip(tag_keys, tags, strict=True):
+        bad_lot = bad_lot | pl.col(c).str.contains(_UNSAFE.pattern).fill_null(False)
+        if _UNSAFE.search(k):
+            bad_lot = pl.lit(True)
+    entries = entries.with_columns(pl.col("note").replace("", None),
+                                   (pl.col("flag") | bad_lot).alias("flag"))
     flagged = entries.filter(pl.col("flag"))
     good = entries.filter(~pl.col("flag"))
     problems: list[RowProblem] = []
@@ -153,19 +149,15 @@ def plan_values(store: Store, values: pl.DataFrame, tag_keys: list[str], *, sour
                 problems += p
                 refused_values += len(r["value"])
                 continue
-            missing = [k for k in required if k not in p.tags]
-            if missing:
-                problems.append(_missing(e, missing, required))
-                refused_values += len(r["value"])
-                continue
             rounded += p.rounded
             rescued.append({**r, "units": list(p.units), "flag": False})
-    if rescued:
-        good = pl.concat([good, pl.DataFrame(rescued, schema=good.schema)])
+    if rescued:  # back in file order
+        good = pl.concat([good, pl.DataFrame(rescued, schema=good.schema)]).sort(
+            pl.col("rows").list.first())
     plan = Plan(entries=good.drop("flag", "value"), tag_keys=tag_keys, problems=problems,
                 duplicates=0, refused_values=refused_values, rounded=rounded,
                 values=int(vals.height))
-    _judge_stored(store.conn, plan, source)
+    _judge_stored(store.conn, plan, source, required)
     return plan
 
 
@@ -188,10 +180,11 @@ def _stored_lots(conn, codes: list[str]) -> dict[str, int]:
         (json.dumps(codes),)).fetchall())
 
 
-def _judge_stored(conn, plan: Plan, source: str) -> dict[str, int]:
-    """Entries of lots already stored: tags must agree, values equal to the stored ones (the
-    values as first logged, or those not voided) are duplicates, other values are refused.
-    Entries of required tags judged on the lot's stored plus new tags. Returns the stored lots'
+def _judge_stored(conn, plan: Plan, source: str, required: list[str]) -> dict[str, int]:
+    """Entries of lots already stored: tags must agree; values equal to the stored ones (the
+    values as first logged, or those not voided) are duplicates, other values are refused. Every
+    remaining entry must carry each required factor, in the file or stored with its lot. All by
+    joins in polars; Python writes the message of each refused entry. Returns the stored lots'
     ids; ``plan.entries`` keeps only what is to be written."""
     import polars as pl
 
@@ -199,57 +192,68 @@ def _judge_stored(conn, plan: Plan, source: str) -> dict[str, int]:
     if entries.height == 0:
         return {}
     lot_ids = _stored_lots(conn, entries["lot"].unique().to_list())
-    if not lot_ids:
-        return {}
+    known = pl.DataFrame({"lot": list(lot_ids), "lot_id": list(lot_ids.values())},
+                         schema={"lot": pl.String, "lot_id": pl.Int64})
+    e = entries.with_row_index("_e").join(known, on="lot", how="left", maintain_order="left")
     ids = json.dumps(sorted(lot_ids.values()))
-    stored_tags: dict[int, dict[str, str]] = {i: {} for i in lot_ids.values()}
-    for lot_id, key, value in conn.execute(
-            "SELECT lot_id, key, value FROM lot_tags WHERE lot_id IN "
-            "(SELECT value FROM json_each(?))", (ids,)):
-        stored_tags[lot_id][key] = value
-    first: dict[tuple[int, int], list[int]] = {}
-    live: dict[tuple[int, int], list[int]] = {}
-    for lot_id, cid, orig, voided in conn.execute(
-            "SELECT lot_id, characteristic_id, original_units, voided FROM measurements "
-            "WHERE lot_id IN (SELECT value FROM json_each(?)) ORDER BY lot_id, "
-            "characteristic_id, seq", (ids,)):
-        first.setdefault((lot_id, cid), []).append(orig)
-        if not voided:
-            live.setdefault((lot_id, cid), []).append(orig)
-    chars = {r[0]: r[1] for r in conn.execute("SELECT id, resolution FROM characteristics")}
-    keep = []
-    for r in entries.iter_rows(named=True):
-        lot_id = lot_ids.get(r["lot"])
-        if lot_id is None:
-            keep.append(True)
-            continue
-        e = _entry({**r, "value": r["units"]}, plan.tag_keys, source)
-        old = stored_tags[lot_id]
-        clash = [(k, old[k], v) for k, v in e.tags.items() if k in old and old[k] != v]
-        units = list(r["units"])
-        res = chars[r["cid"]]
-        keep.append(False)
-        if clash:
-            k, was, new = clash[0]
-            plan.problems.append(_problem(e, k, new, f"lot {r['lot']!r} is stored with "
-                                          f"{k}={was!r}; this entry says {k}={new!r}"))
-            plan.refused_values += len(units)
-            continue
-        stored = first.get((lot_id, r["cid"]))
-        if stored is None:
-            keep[-1] = True
-            continue
-        if units in (stored, live.get((lot_id, r["cid"]), [])):
-            plan.duplicates += len(units)
-            continue
-        was = ", ".join(format_units(u, res) for u in stored)
-        now_v = ", ".join(format_units(u, res) for u in units)
-        plan.problems.append(_problem(
-            e, r["column"] or "value", now_v,
-            f"lot {r['lot']!r} already has {r['characteristic']} = {was}; this entry has "
-            f"{now_v}. Stored values change only by a correction: if the file is right, "
-            "correct or void the stored values (lotwatch history, correct, void) and import "
-            "again; if the store is right, remove the row from the file"))
-        plan.refused_values += len(units)
-    plan.entries = entries.filter(pl.Series(keep, dtype=pl.Boolean))
+    stored_tags = pl.DataFrame(conn.execute(
+        "SELECT lot_id, key, value FROM lot_tags WHERE lot_id IN (SELECT value FROM json_each(?))",
+        (ids,)).fetchall() if lot_ids else [], orient="row",
+        schema={"lot_id": pl.Int64, "key": pl.String, "stored": pl.String})
+    for k in dict.fromkeys([*plan.tag_keys, *required]):
+        e = e.join(stored_tags.filter(pl.col("key") == k).select("lot_id", pl.col("stored")
+                                                                  .alias("__st:" + k)),
+                   on="lot_id", how="left", maintain_order="left")
+    clash = pl.lit(False)
+    for k in plan.tag_keys:
+        clash = clash | (pl.col(TAG + k) != pl.col("__st:" + k)).fill_null(False)
+    missing = pl.lit(False)
+    for k in required:
+        here = pl.col(TAG + k).is_not_null() if k in plan.tag_keys else pl.lit(False)
+        missing = missing | (~here & pl.col("__st:" + k).is_null())
+    stored_meas = pl.DataFrame(conn.execute(
+        "SELECT lot_id, characteristic_id, original_units, voided FROM measurements "
+        "WHERE lot_id IN (SELECT value FROM json_each(?)) ORDER BY lot_id, characteristic_id, "
+        "seq", (ids,)).fetchall() if lot_ids else [], orient="row",
+        schema={"lot_id": pl.Int64, "cid": pl.Int64, "u": pl.Int64, "voided": pl.Int64})
+    per_entry = stored_meas.group_by("lot_id", "cid", maintain_order=True).agg(
+        pl.col("u").alias("first"), pl.col("u").filter(pl.col("voided") == 0).alias("live"))
+    e = e.join(per_entry, on=["lot_id", "cid"], how="left", maintain_order="left")
+    has = pl.col("first").is_not_null()
+    same = pl.col("units").eq_missing(pl.col("first")) | pl.col("units").eq_missing(pl.col("live"))
+    e = e.with_columns(pl.when(clash).then(pl.lit("clash"))
+                       .when(has & same).then(pl.lit("duplicate"))
+                       .when(has).then(pl.lit("conflict"))
+                       .when(missing).then(pl.lit("missing")).alias("_fate"))
+    plan.duplicates += int(e.filter(pl.col("_fate") == "duplicate")["units"].list.len().sum())
+    refused = e.filter(pl.col("_fate").is_in(["clash", "conflict", "missing"]))
+    if refused.height:
+        chars = {r[0]: r[1] for r in conn.execute("SELECT id, resolution FROM characteristics")}
+        for r in refused.iter_rows(named=True):
+            plan.problems.append(_refusal(r, plan.tag_keys, required, chars, source))
+            plan.refused_values += len(r["units"])
+    plan.entries = entries.filter(e["_fate"].is_null())
     return lot_ids
+
+
+def _refusal(r: dict, tag_keys: list[str], required: list[str], resolution: dict[int, str],
+             source: str) -> RowProblem:
+    """The message for one refused entry of ``_judge_stored`` (the words of ``log_lots``)."""
+    e = _entry({**r, "value": r["units"]}, tag_keys, source)
+    if r["_fate"] == "clash":
+        k = next(k for k in tag_keys if r[TAG + k] is not None and r["__st:" + k] is not None
+                 and r[TAG + k] != r["__st:" + k])
+        return _problem(e, k, r[TAG + k], f"lot {r['lot']!r} is stored with {k}="
+                        f"{r['__st:' + k]!r}; this entry says {k}={r[TAG + k]!r}")
+    if r["_fate"] == "missing":
+        gone = [k for k in required if r.get(TAG + k) is None and r["__st:" + k] is None]
+        return _missing(e, gone, required)
+    res = resolution[r["cid"]]
+    was = ", ".join(format_units(u, res) for u in r["first"])
+    now_v = ", ".join(format_units(u, res) for u in r["units"])
+    return _problem(
+        e, r["column"] or "value", now_v,
+        f"lot {r['lot']!r} already has {r['characteristic']} = {was}; this entry has {now_v}. "
+        "Stored values change only by a correction: if the file is right, correct or void the "
+        "stored values (lotwatch history, correct, void) and import again; if the store is "
+        "right, remove the row from the file")

@@ -103,8 +103,10 @@ def parse_values(frame: pl.DataFrame, layout: Layout, source: str) -> ParsedValu
         return ParsedValues(None, [], [], 0, 0, notes)
 
     # Identical rows (every cell equal): suspected copies, kept as replicates but named.
-    cells = pl.struct(pl.exclude(ROW))
-    repeated = clean.filter(~cells.is_first_distinct())
+    # rows hashed first (cheap); only rows whose hash repeats are compared cell by cell
+    hashed = clean.drop(ROW).hash_rows()
+    maybe = clean.filter(hashed.is_duplicated())
+    repeated = maybe.filter(~pl.struct(pl.exclude(ROW)).is_first_distinct())
     if repeated.height:
         shown = ", ".join(str(r) for r in repeated[ROW].head(10).to_list())
         more = " ..." if repeated.height > 10 else ""
@@ -145,7 +147,9 @@ def parse_values(frame: pl.DataFrame, layout: Layout, source: str) -> ParsedValu
         work = work.with_columns(pl.lit(None, pl.Datetime("us", "UTC")).alias("at"))
 
     # tags: every row of a lot carries the tags of the lot's first row
-    for key, col in layout.tags.items():
+    consistent = (not layout.tags or work.select(layout.lot, *layout.tags.values()).n_unique()
+                  == work[layout.lot].n_unique())
+    for key, col in ([] if consistent else layout.tags.items()):
         marked = work.with_columns(
             pl.col(col).first().over(layout.lot).alias("_first"),
             pl.col(ROW).first().over(layout.lot).alias("_first_row"))

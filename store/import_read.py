@@ -33,14 +33,14 @@ class FileRefused(StoreError):
     """The file as a whole cannot be imported (unreadable, empty, missing a column ...)."""
 
 
-def _decode(path: Path, data: bytes, notes: list[str]) -> str:
+def _decode(path: Path, data: bytes, notes: list[str]) -> tuple[str, bool]:
     """Text of a CSV file: UTF-8 (with or without BOM), UTF-16 with a BOM (spreadsheets'
-    "Unicode text"), or Latin-1 throughout (with a note). A file that is partly UTF-8 and partly
+    "Unicode text"), or Latin-1 throughout (with a note); and whether the bytes were UTF-8. A file that is partly UTF-8 and partly
     something else is refused naming its first bad line: read either way, some of its text would
     be stored mangled (a false extra group in every review)."""
     if data[:2] in (b"\xff\xfe", b"\xfe\xff"):
         try:
-            return data.decode("utf-16")
+            return data.decode("utf-16"), False
         except UnicodeDecodeError:
             raise FileRefused(f"{path.name}: starts like UTF-16 text but cannot be decoded "
                               "as UTF-16; save it as CSV (UTF-8)") from None
@@ -50,7 +50,7 @@ def _decode(path: Path, data: bytes, notes: list[str]) -> str:
             "Save it as CSV (UTF-8) or Parquet and import that."
         )
     try:
-        return data.decode("utf-8-sig")
+        return data.decode("utf-8-sig"), True
     except UnicodeDecodeError as exc:
         line = data[: exc.start].count(b"\n") + 1
         utf8 = _UTF8_MULTIBYTE.search(data)
@@ -65,7 +65,7 @@ def _decode(path: Path, data: bytes, notes: list[str]) -> str:
             f"{path.name} is not valid UTF-8 (first bad byte on line {line}); "
             "it was read as Latin-1 (ISO-8859-1). Check accented text after import."
         )
-        return data.decode("latin-1")
+        return data.decode("latin-1"), False
 
 
 def _guess_delimiter(header: str) -> str:
@@ -118,8 +118,13 @@ def read_frame(path: Path, fmt: str, delimiter: str | None, notes: list[str]) ->
         _refuse_pattern_names(path, frame)
         return _parquet_as_text(frame)
 
-    text = _decode(path, data, notes)
+    text, was_utf8 = _decode(path, data, notes)
     first_line = text.split("\n", 1)[0]
+    # Plain UTF-8 goes to polars as read (no second copy of a large file); anything decoded
+    # from another encoding goes as UTF-8.
+    utf8 = data[3:] if data[:3] == b"\xef\xbb\xbf" else data
+    if was_utf8 is False:
+        utf8 = text.encode("utf-8")
     guessed = delimiter is None
     delimiter = delimiter or _guess_delimiter(first_line)
     _refuse_width(path, first_line.count(delimiter) + 1)
@@ -127,7 +132,7 @@ def read_frame(path: Path, fmt: str, delimiter: str | None, notes: list[str]) ->
         notes.append(f"columns are separated by {delimiter!r} (guessed from the header)")
     try:
         frame = pl.read_csv(
-            io.BytesIO(text.encode("utf-8")),
+            io.BytesIO(utf8),
             infer_schema=False,
             separator=delimiter,
             quote_char='"',
@@ -152,8 +157,11 @@ def read_frame(path: Path, fmt: str, delimiter: str | None, notes: list[str]) ->
     if len(names) == frame.width:
         frame = frame.rename(dict(zip(frame.columns, names, strict=True)))
     _refuse_pattern_names(path, frame)
-    # undo the formula neutralisation of lotwatch's CSV export ("'=x" -> "=x"; store.export)
-    return frame.with_columns(pl.col(c).str.replace(_NEUTRALISED, "$1") for c in frame.columns)
+    # undo the formula neutralisation of lotwatch's CSV export ("'=x" -> "=x"; store.export),
+    # only in columns that have a cell starting with a quote (a regex over every cell is slow)
+    quoted = frame.select(pl.col(c).str.starts_with("'").any() for c in frame.columns).row(0)
+    return frame.with_columns(pl.col(c).str.replace(_NEUTRALISED, "$1")
+                              for c, q in zip(frame.columns, quoted, strict=True) if q)
 
 
 def _refuse_width(path: Path, width: int) -> None:

@@ -256,3 +256,21 @@ def test_check_finds_malformed_stored_times(lab, tmp_path):
     report = lab.check()
     assert not report.ok
     assert any("malformed time" in p and "999-06-01T08:15:00Z" in p for p in report.problems)
+
+
+def test_rows_of_a_stored_lot_may_omit_its_required_tags(lab, tmp_path):
+    # DEVELOPERS.md, "Rules the store keeps": an entry for a stored lot may omit its tags
+    first = write(tmp_path / "a.csv", HEADER + "\nA,fill_volume,500.1,2026-11-03T08:15:00Z,S,L,e\n")
+    import_file(lab, first)
+    lab.add_characteristic("cap_torque", unit="N·m", resolution="0.01", plausible=(0, 5))
+    later = write(tmp_path / "b.csv", "lot,characteristic,value,measured_at\n"
+                  "A,cap_torque,2.05,2026-11-03T08:20:00Z\n"
+                  "NEW,cap_torque,2.05,2026-11-03T08:20:00Z\n")
+    with pytest.raises(BadInput) as err:
+        import_file(lab, later)
+    [p] = err.value.problems
+    assert p.row == 2 and "missing required tags" in p.reason  # only the new lot lacks them
+    kept = write(tmp_path / "c.csv", "lot,characteristic,value,measured_at\n"
+                 "A,cap_torque,2.05,2026-11-03T08:20:00Z\n")
+    assert import_file(lab, kept).stored == 1
+    assert lab.check().ok
