@@ -12,6 +12,8 @@ from datetime import UTC, date, datetime
 
 STORED_FORMAT = "%Y-%m-%dT%H:%M:%SZ"
 DISPLAY_FORMAT = "%Y-%m-%d %H:%M"
+# The calendar lotwatch can store and compute windows in (four-digit years, room for arithmetic).
+FIRST_YEAR, LAST_YEAR = 1000, 9000
 
 
 class BadTime(ValueError):
@@ -43,17 +45,66 @@ def to_utc(value: datetime | date | str, zone: str | None = None) -> datetime:
     elif isinstance(value, date):
         dt = datetime(value.year, value.month, value.day)
     elif isinstance(value, str):
-        dt = _parse_text(value)
+        dt = parse_typed(value)
     else:
         raise BadTime(f"{value!r} is not a date/time")
-    if dt.tzinfo is None or dt.tzinfo.utcoffset(dt) is None:
-        tz = _zone(zone)
-        # naive: interpret as local time (fold=0: the first of a repeated autumn hour)
-        dt = dt.astimezone() if tz is None else dt.replace(tzinfo=tz)
-    return dt.astimezone(UTC)
+    try:
+        if dt.tzinfo is None or dt.tzinfo.utcoffset(dt) is None:
+            tz = _zone(zone)
+            # naive: interpret as local time (fold=0: the first of a repeated autumn hour)
+            dt = dt.astimezone() if tz is None else dt.replace(tzinfo=tz)
+        return dt.astimezone(UTC)
+    except (OverflowError, ValueError):  # 0001-01-01 east of UTC, 9999-12-31 west of it
+        raise BadTime(f"{_shown(value)} is outside the range of dates lotwatch can store "
+                      f"(years {FIRST_YEAR} to {LAST_YEAR})") from None
 
 
-def _parse_text(text: str) -> datetime:
+def _shown(value: object) -> str:
+    return repr(value) if isinstance(value, str) else str(value)
+
+
+def check_year(day: date | datetime, shown: str | None = None) -> None:
+    """Refuse a day outside ``FIRST_YEAR``..``LAST_YEAR``: the stored text form needs four-digit
+    years, and window arithmetic near year 1 or 9999 leaves the calendar (``BadTime``).
+    ``shown`` is how the message names the input (default: the date)."""
+    if not FIRST_YEAR <= day.year <= LAST_YEAR:
+        raise BadTime(f"{shown or day.isoformat()[:10]} is outside the years {FIRST_YEAR} to "
+                      f"{LAST_YEAR} that lotwatch works with")
+
+
+def parse_day(text: str, what: str = "the date") -> date:
+    """A typed day ``YYYY-MM-DD`` within ``check_year``'s range, else ``BadTime`` saying why."""
+    try:
+        day = date.fromisoformat(text.strip())
+    except ValueError:
+        raise BadTime(f"{what} {text!r} is not a date; use YYYY-MM-DD, e.g. 2026-11-29") from None
+    check_year(day, f"{what} {text.strip()!r}")
+    return day
+
+
+def gap_note(naive: datetime, zone: str | None = None) -> str | None:
+    """If the wall-clock time ``naive`` does not exist in the zone (clocks put forward over it),
+    a sentence saying so and which instant ``to_utc`` stored for it; else None.
+
+    A time exists when converting it to UTC and back gives the same wall-clock time (zoneinfo
+    resolves a gap time with the offset in force before the change, PEP 495 fold=0)."""
+    if naive.tzinfo is not None:
+        return None
+    tz = _zone(zone)
+    try:
+        stored = to_utc(naive, zone)
+        back = stored.astimezone() if tz is None else stored.astimezone(tz)
+    except BadTime:
+        return None
+    if back.replace(tzinfo=None) == naive.replace(microsecond=0):
+        return None
+    where = zone or "this computer's time zone"
+    return (f"{naive:%Y-%m-%d %H:%M} does not exist in {where} (the clocks were put forward); "
+            f"stored as {back:%Y-%m-%d %H:%M} local time ({stored:%Y-%m-%d %H:%M} UTC)")
+
+
+def parse_typed(text: str) -> datetime:
+    """The date/time as typed (naive when it carries no offset); ``BadTime`` if unreadable."""
     s = text.strip()
     if not s:
         raise BadTime("the date/time is empty")
@@ -71,8 +122,11 @@ def _parse_text(text: str) -> datetime:
 
 
 def format_stored(value: datetime | date | str, zone: str | None = None) -> str:
-    """The stored text form (UTC, whole seconds, ``Z``); naive input is taken in ``zone``."""
-    return to_utc(value, zone).replace(microsecond=0).strftime(STORED_FORMAT)
+    """The stored text form (UTC, whole seconds, ``Z``); naive input is taken in ``zone``.
+    ``BadTime`` outside ``FIRST_YEAR``..``LAST_YEAR`` (the form would not sort as time)."""
+    utc = to_utc(value, zone)
+    check_year(utc, _shown(value))
+    return utc.replace(microsecond=0).strftime(STORED_FORMAT)
 
 
 def parse_stored(text: str) -> datetime:

@@ -51,7 +51,34 @@ def parse_decimal(text: object) -> Decimal:
             raise BadValue(f"{s!r} is not a number") from None
     if not value.is_finite():
         raise BadValue(f"{text!s} is not a finite number")
+    _check_size(value)
     return value
+
+
+# Bounds on a typed number: far past any gauge, and small enough that ``to_units`` divides
+# exactly in its 60-digit context (a value of 1e999999 would overflow it; one of 1e-999999
+# would underflow to 0 and be stored as zero without a word).
+MAX_EXPONENT = 30
+MAX_DIGITS = 30
+
+
+def _check_size(value: Decimal) -> None:
+    if value.is_zero():
+        return
+    significant = len("".join(map(str, value.as_tuple().digits)).rstrip("0"))
+    if value.adjusted() > MAX_EXPONENT:
+        raise BadValue(f"{_short(value)} is too large for a measurement "
+                       f"(more than {MAX_EXPONENT + 1} digits before the point)")
+    if value.adjusted() < -MAX_EXPONENT:
+        raise BadValue(f"{_short(value)} is too small for a measurement "
+                       f"(more than {MAX_EXPONENT} zeros after the point)")
+    if significant > MAX_DIGITS:
+        raise BadValue(f"{_short(value)} has more than {MAX_DIGITS} significant digits")
+
+
+def _short(value: Decimal) -> str:
+    text = str(value)
+    return text if len(text) <= 40 else f"{text[:20]}...{text[-12:]}"
 
 
 @lru_cache(maxsize=256)

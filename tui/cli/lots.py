@@ -62,7 +62,7 @@ def log_command(characteristic: str, values: tuple[str, ...], tags: tuple[str, .
     Example: lotwatch log fill_volume 500.2 499.8 --tag site=North --tag line=L2 --tag shift=early
     """
     from lotwatch.store import LotEntry
-    from lotwatch.store.timeutil import BadTime, now_utc, to_utc
+    from lotwatch.store.timeutil import BadTime, check_year, gap_note, now_utc, parse_typed, to_utc
 
     for v in values:
         if v.startswith("--"):
@@ -72,6 +72,8 @@ def log_command(characteristic: str, values: tuple[str, ...], tags: tuple[str, .
         zone = store.plant_zone
         try:
             measured_at = to_utc(at, zone) if at else now_utc()
+            check_year(measured_at, repr(at))
+            gap = gap_note(parse_typed(at), zone) if at else None
         except BadTime as exc:
             raise UserError(f"--at: {exc}") from None
         entry = LotEntry(characteristic=characteristic, values=list(values), tags=parsed_tags,
@@ -88,6 +90,8 @@ def log_command(characteristic: str, values: tuple[str, ...], tags: tuple[str, .
     click.echo("Measurement id(s): " + ", ".join(str(i) for i in ids))
     if outcome.rounded:
         click.echo(f"{outcome.rounded} value(s) rounded to the resolution")
+    if gap:
+        click.echo(f"Note: --at {gap}")
 
 
 @click.command("correct", context_settings=_VALUES_SETTINGS)

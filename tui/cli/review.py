@@ -26,20 +26,26 @@ def open_store(db_path: Path, *, read_only: bool = False):  # -> store.Store
 def _as_of(value: str | None) -> date | None:
     if value is None:
         return None
+    from lotwatch.store.timeutil import BadTime, parse_day
+
     try:
-        return date.fromisoformat(value.strip())
-    except ValueError:
-        raise UserError(f"--as-of {value!r}: expected a date such as 2026-11-29") from None
+        return parse_day(value, "--as-of")
+    except BadTime as exc:
+        raise UserError(str(exc)) from None
 
 
 def _check_week(value: str | None) -> str | None:
     if value is None:
         return None
     from lotwatch.stats.weeks import parse_iso_week
+    from lotwatch.store.timeutil import check_year
 
+    shown = f"week {value.strip()!r}"
     try:
-        parse_iso_week(value)
-    except ValueError as exc:
+        check_year(parse_iso_week(value)[0], shown)
+    except OverflowError:  # the week's Sunday is past year 9999
+        raise UserError(f"--week: {shown} is at the end of the calendar") from None
+    except ValueError as exc:  # BadTime is a ValueError
         raise UserError(f"--week: {exc}") from None
     return value.strip().upper()
 
