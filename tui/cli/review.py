@@ -140,17 +140,35 @@ def report_command(week: str | None, as_of: str | None, out: Path, fdr: str | No
     wk = _check_week(week)
     if day is not None and wk is not None:
         raise UserError("give either --week or --as-of, not both")
+    def write(rep) -> None:
+        import os
+        import tempfile
+
+        text = report_markdown(rep) if suffix == ".md" else report_html(rep)
+        tmp = None
+        try:
+            fd, tmp = tempfile.mkstemp(prefix=f".{out.name}.", suffix=".part",
+                                       dir=out.parent if str(out.parent) else ".")
+            with os.fdopen(fd, "w", encoding="utf-8") as fh:
+                fh.write(text)
+            os.chmod(tmp, 0o644)  # mkstemp makes 0600; a report is meant to be shared
+            os.replace(tmp, out)
+        except OSError as exc:
+            if tmp is not None and os.path.isfile(tmp):
+                os.unlink(tmp)
+            raise UserError(f"--out {out}: cannot write ({exc.strerror or exc})") from None
+
     with open_store(db_path, read_only=dry_run) as store:
-        rep = _run(build_weekly_report, store, week=wk, as_of=day, fdr_method=fdr,
-                   persist=not dry_run)
-    text = report_markdown(rep) if suffix == ".md" else report_html(rep)
-    tmp = out.with_name(out.name + ".part")
-    try:
-        tmp.write_text(text, encoding="utf-8")
-        tmp.replace(out)
-    except OSError as exc:
-        tmp.unlink(missing_ok=True)
-        raise UserError(f"--out {out}: cannot write ({exc.strerror or exc})") from None
+        if dry_run:
+            rep = _run(build_weekly_report, store, week=wk, as_of=day, fdr_method=fdr,
+                       persist=False)
+            write(rep)
+        else:
+            # one transaction: the review's alert changes are committed only once the report
+            # is written, so a report that fails (or is interrupted) records nothing
+            with store.write():
+                rep = _run(build_weekly_report, store, week=wk, as_of=day, fdr_method=fdr)
+                write(rep)
     click.echo(f"wrote {out} ({len(rep.sections)} alert(s), "
                f"{rep.result.family_size} comparison(s) in the family)")
 

@@ -93,20 +93,31 @@ def trend_chart_text(tr: Any, *, width: int = 80, height: int = 20) -> str:
     return "\n".join(line.rstrip() for line in text.splitlines())
 
 
-def trend_chart_svg(tr: Any) -> str:
-    """matplotlib line chart of each group's mean per window, grand mean and spec limits, as an
-    inline SVG element (text as paths: no fonts or other files needed)."""
+def literal(text: object) -> str:
+    """User text for a matplotlib label, shown as typed: ``$`` escaped so a name such as
+    ``$x^{$`` is not parsed as mathtext (matplotlib's "Writing mathematical expressions":
+    an escaped dollar sign is a literal one)."""
+    return str(text).replace("$", r"\$")
+
+
+def trend_figure(tr: Any):  # -> matplotlib.figure.Figure
+    """The trend chart as a matplotlib figure (``trend_chart_svg`` draws it). Every group is in
+    the legend: labels are passed explicitly, since matplotlib leaves out of an automatic legend
+    any label starting with "_"."""
     from matplotlib.figure import Figure
 
     ser = trend_series(tr)
     fig = Figure(figsize=(7.5, 3.6), dpi=96)
     ax = fig.add_subplot()
     x = list(range(len(ser.labels)))
+    handles, names = [], []
     for lv in ser.levels:
         ys = [m if m is not None else float("nan") for m in ser.means[lv]]
-        ax.plot(x, ys, marker="o", markersize=3, linewidth=1.2, label=lv)
-    ax.plot(x, [g if g is not None else float("nan") for g in ser.grand], color="black",
-            linewidth=2, linestyle="--", label="grand mean")
+        handles += ax.plot(x, ys, marker="o", markersize=3, linewidth=1.2)
+        names.append(literal(lv))
+    handles += ax.plot(x, [g if g is not None else float("nan") for g in ser.grand],
+                       color="black", linewidth=2, linestyle="--")
+    names.append("grand mean")
     for lim, name in ((tr.lsl, "LSL"), (tr.usl, "USL"), (tr.target, "target")):
         if lim is not None:
             ax.axhline(lim, color="firebrick" if name != "target" else "grey", linewidth=1,
@@ -116,11 +127,19 @@ def trend_chart_svg(tr: Any) -> str:
                         va="bottom", ha="left" if at_left else "right")
     step = max(1, len(x) // 6)
     ax.set_xticks(x[::step], ser.labels[::step], fontsize=7)
-    ax.set_ylabel(tr.characteristic.unit or "value", fontsize=8)
-    ax.set_title(f"{tr.characteristic.name} by {tr.factor}: mean per window", fontsize=9)
-    ax.legend(fontsize=7, ncol=min(4, len(ser.levels) + 1), loc="best")
+    ax.set_ylabel(literal(tr.characteristic.unit or "value"), fontsize=8)
+    ax.set_title(literal(f"{tr.characteristic.name} by {tr.factor}: mean per window"),
+                 fontsize=9)
+    ax.legend(handles, names, fontsize=7, ncol=min(4, len(ser.levels) + 1), loc="best")
     ax.tick_params(labelsize=7)
     fig.tight_layout()
+    return fig
+
+
+def trend_chart_svg(tr: Any) -> str:
+    """matplotlib line chart of each group's mean per window, grand mean and spec limits, as an
+    inline SVG element (text as paths: no fonts or other files needed)."""
+    fig = trend_figure(tr)
     buf = io.StringIO()
     fig.savefig(buf, format="svg", metadata={"Date": None})
     svg = buf.getvalue()
