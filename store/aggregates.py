@@ -154,6 +154,10 @@ def check(store: Store) -> CheckReport:
     integrity = [r[0] for r in conn.execute("PRAGMA integrity_check").fetchall()]
     if integrity != ["ok"]:
         problems.extend(f"integrity: {msg}" for msg in integrity[:20])
+        # the rows of a damaged file cannot be trusted (or even typed): compare nothing more
+        problems.append("the store file is damaged; the sums were not compared. Restore it "
+                        "from a backup (see lotwatch restore)")
+        return CheckReport(False, problems, 0, 0)
     for table, rowid, parent, _fk in conn.execute("PRAGMA foreign_key_check").fetchall()[:20]:
         problems.append(f"foreign key: {table} row {rowid} points to a missing {parent} row")
     # A few thousand rows each way: compare in Python after one pass of the recomputation.

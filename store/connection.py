@@ -58,12 +58,15 @@ class Store(Session):
 
             zone = check_zone(zone)
         p = Path(path).expanduser()
-        conn = opening.create_file(p, timeout)
-        store = cls(conn, p, read_only=False, timeout=timeout)
+        if p.exists() or p.is_symlink():
+            raise StoreExists(f"{p} already exists; open it, or choose another file name")
+        # Built complete under a temporary name and linked into place, so an interrupted init
+        # leaves no half-made (or empty) file at ``p`` for the next init to trip over.
+        tmp = opening.temporary_name(p)
+        conn = opening.create_file(tmp, timeout)
+        store = cls(conn, tmp, read_only=False, timeout=timeout)
         try:
             with store.write():
-                if schema.user_version(conn) != 0 or schema.has_table(conn, "store_info"):
-                    raise StoreExists(f"{p} was created by someone else just now; open it instead")
                 now = format_stored(now_utc())
                 schema.migrate(conn, now=now)
                 from lotwatch.store.plantzone import machine_zone, write_zone
@@ -73,14 +76,13 @@ class Store(Session):
                     "INSERT INTO factors(name, required, created_at) VALUES (?, 1, ?)",
                     [(name, now) for name in schema.DEFAULT_FACTORS],
                 )
-        except StoreExists:
-            store.close()
-            raise
         except BaseException:
             store.close()
-            opening.remove_quietly(p)
+            opening.remove_quietly(tmp)
             raise
-        return store
+        store.close()
+        opening.link_into_place(tmp, p)
+        return cls.open(p, timeout=timeout)
 
     @classmethod
     def open(cls, path: str | Path, *, read_only: bool = False,
@@ -245,7 +247,12 @@ class Store(Session):
         from lotwatch.store.aggregates import check
 
         with self.mapped():
-            return check(self)
+            try:
+                return check(self)
+            except sqlite3.DatabaseError as exc:
+                # damage SQLite's page checks pass, e.g. a flipped bit in text (no longer UTF-8)
+                return CheckReport(False, [f"the store file is damaged ({exc}); restore it from "
+                                           "a backup (see lotwatch restore)"], 0, 0)
 
     def bucket_frame(self, *, characteristic: str | None = None, factor: str | None = None,
                      since: date | None = None, until: date | None = None) -> pl.DataFrame:

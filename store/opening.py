@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import os
 import sqlite3
+import stat
 from pathlib import Path
 
 from lotwatch.store import schema
@@ -47,10 +48,34 @@ def remove_quietly(p: Path) -> None:
             pass
 
 
+_KINDS = ((stat.S_ISFIFO, "a FIFO (named pipe)"), (stat.S_ISCHR, "a character device"),
+          (stat.S_ISBLK, "a block device"), (stat.S_ISSOCK, "a socket"))
+
+
+def refuse_special(p: Path) -> None:
+    """Before SQLite touches ``p``: StoreMissing when nothing is there, StoreCorrupt for a folder,
+    FIFO, device or socket (opening a FIFO would wait forever for a writer; a device is not a
+    file lotwatch should write or advise deleting). Symbolic links are followed."""
+    try:
+        st = os.stat(p)
+    except FileNotFoundError:
+        raise StoreMissing(f"no store at {p}") from None
+    except OSError as exc:
+        raise StoreReadOnly(f"cannot reach {p}: {exc.strerror or exc}") from None
+    if stat.S_ISDIR(st.st_mode):
+        raise StoreCorrupt(f"{p} is a folder, not a lotwatch store file")
+    for test, kind in _KINDS:
+        if test(st.st_mode):
+            raise StoreCorrupt(f"{p} is {kind}, not a store file; lotwatch did not touch it. "
+                               "Give the path of a store file (--db PATH or $LOTWATCH_DB), or "
+                               "create one with: lotwatch init PATH")
+
+
 def create_file(p: Path, timeout: float) -> sqlite3.Connection:
-    """Make the empty file ``p`` (and its folders) and return a WAL-mode connection to it.
-    Refuses if anything exists at ``p`` (StoreExists)."""
-    if p.exists():
+    """Make the empty file ``p`` (and its folders) and return a rollback-journal connection to
+    it (``Store.create`` builds the store in a file of a temporary name, then links it into
+    place). Refuses if anything exists at ``p`` (StoreExists)."""
+    if p.exists() or p.is_symlink():
         raise StoreExists(f"{p} already exists; open it, or choose another file name")
     try:
         p.parent.mkdir(parents=True, exist_ok=True)
@@ -67,11 +92,33 @@ def create_file(p: Path, timeout: float) -> sqlite3.Connection:
         raise StoreReadOnly(f"cannot create {p}: {exc.strerror}") from None
     try:
         conn = connect(p, "rw", timeout)
-        conn.execute("PRAGMA journal_mode = WAL")
     except sqlite3.Error as exc:
         remove_quietly(p)
         raise translate_error(exc, p) or exc from None
     return conn
+
+
+def temporary_name(p: Path) -> Path:
+    """A hidden name beside ``p`` for building a new store before it appears under ``p``."""
+    return p.with_name(f".{p.name}.{os.getpid()}-{os.urandom(3).hex()}.creating")
+
+
+def link_into_place(tmp: Path, p: Path) -> None:
+    """Give the finished store ``tmp`` its name ``p`` atomically, never replacing a file that
+    appeared at ``p`` meanwhile (StoreExists); ``tmp`` is gone afterwards."""
+    try:
+        os.link(tmp, p)  # atomic "create only if absent"
+    except FileExistsError:
+        remove_quietly(tmp)
+        raise StoreExists(f"{p} was created by someone else just now; open it instead") from None
+    except OSError:  # a file system without hard links: rename (atomic, but replaces)
+        if p.exists():
+            remove_quietly(tmp)
+            raise StoreExists(f"{p} was created by someone else just now; open it instead") \
+                from None
+        os.replace(tmp, p)
+        return
+    remove_quietly(tmp)
 
 
 def open_file(p: Path, *, read_only: bool, timeout: float) -> tuple[sqlite3.Connection, bool]:
@@ -79,10 +126,7 @@ def open_file(p: Path, *, read_only: bool, timeout: float) -> tuple[sqlite3.Conn
     ``immutable``: a read-only open of a WAL store whose folder is not writable (SQLite cannot
     create the ``-shm`` file) falls back to SQLite's immutable mode, which does not see changes
     other processes make while it is open."""
-    if not p.exists():
-        raise StoreMissing(f"no store at {p}")
-    if p.is_dir():
-        raise StoreCorrupt(f"{p} is a folder, not a lotwatch store file")
+    refuse_special(p)
     immutable = False
     conn: sqlite3.Connection | None = None
     try:
@@ -103,6 +147,12 @@ def open_file(p: Path, *, read_only: bool, timeout: float) -> tuple[sqlite3.Conn
         raise translate_error(exc, p) or StoreCorrupt(
             f"{p} could not be read as a lotwatch store: {exc}"
         ) from None
+    except UnicodeDecodeError as exc:  # SQLite's error text quotes damaged, non-UTF-8 bytes
+        if conn is not None:
+            conn.close()
+        detail = exc.object.decode("utf-8", "replace") if isinstance(exc.object, bytes) else ""
+        raise StoreCorrupt(f"{p} is damaged and cannot be read ({detail}); restore it from a "
+                           "backup (see lotwatch restore)") from None
     return conn, immutable
 
 

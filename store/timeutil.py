@@ -20,6 +20,10 @@ class BadTime(ValueError):
     """A timestamp that cannot be understood; ``str()`` says what is expected."""
 
 
+class OutOfCalendar(BadTime):
+    """A readable date outside the years lotwatch works with (``FIRST_YEAR``..``LAST_YEAR``)."""
+
+
 def now_utc() -> datetime:
     """The current time, aware, in UTC, to the whole second."""
     return datetime.now(UTC).replace(microsecond=0)
@@ -55,7 +59,7 @@ def to_utc(value: datetime | date | str, zone: str | None = None) -> datetime:
             dt = dt.astimezone() if tz is None else dt.replace(tzinfo=tz)
         return dt.astimezone(UTC)
     except (OverflowError, ValueError):  # 0001-01-01 east of UTC, 9999-12-31 west of it
-        raise BadTime(f"{_shown(value)} is outside the range of dates lotwatch can store "
+        raise OutOfCalendar(f"{_shown(value)} is outside the range of dates lotwatch can store "
                       f"(years {FIRST_YEAR} to {LAST_YEAR})") from None
 
 
@@ -68,8 +72,8 @@ def check_year(day: date | datetime, shown: str | None = None) -> None:
     years, and window arithmetic near year 1 or 9999 leaves the calendar (``BadTime``).
     ``shown`` is how the message names the input (default: the date)."""
     if not FIRST_YEAR <= day.year <= LAST_YEAR:
-        raise BadTime(f"{shown or day.isoformat()[:10]} is outside the years {FIRST_YEAR} to "
-                      f"{LAST_YEAR} that lotwatch works with")
+        raise OutOfCalendar(f"{shown or day.isoformat()[:10]} is outside the years "
+                            f"{FIRST_YEAR} to {LAST_YEAR} that lotwatch works with")
 
 
 def parse_day(text: str, what: str = "the date") -> date:

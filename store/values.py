@@ -51,7 +51,7 @@ def parse_decimal(text: object) -> Decimal:
             raise BadValue(f"{s!r} is not a number") from None
     if not value.is_finite():
         raise BadValue(f"{text!s} is not a finite number")
-    _check_size(value)
+    _check_size(value, str(text).strip())
     return value
 
 
@@ -62,22 +62,26 @@ MAX_EXPONENT = 30
 MAX_DIGITS = 30
 
 
-def _check_size(value: Decimal) -> None:
+class OutOfRange(BadValue):
+    """A number too large, too small or too long to be a measurement (``_check_size``)."""
+
+
+def _check_size(value: Decimal, typed: str) -> None:
     if value.is_zero():
         return
     significant = len("".join(map(str, value.as_tuple().digits)).rstrip("0"))
+    shown = _short(typed)
     if value.adjusted() > MAX_EXPONENT:
-        raise BadValue(f"{_short(value)} is too large for a measurement "
-                       f"(more than {MAX_EXPONENT + 1} digits before the point)")
+        raise OutOfRange(f"{shown} is too large to be a measurement "
+                         f"(more than {MAX_EXPONENT + 1} digits before the point)")
     if value.adjusted() < -MAX_EXPONENT:
-        raise BadValue(f"{_short(value)} is too small for a measurement "
-                       f"(more than {MAX_EXPONENT} zeros after the point)")
+        raise OutOfRange(f"{shown} is too small to be a measurement "
+                         f"(more than {MAX_EXPONENT} zeros after the point)")
     if significant > MAX_DIGITS:
-        raise BadValue(f"{_short(value)} has more than {MAX_DIGITS} significant digits")
+        raise OutOfRange(f"{shown} has more than {MAX_DIGITS} significant digits")
 
 
-def _short(value: Decimal) -> str:
-    text = str(value)
+def _short(text: str) -> str:
     return text if len(text) <= 40 else f"{text[:20]}...{text[-12:]}"
 
 

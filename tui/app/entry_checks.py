@@ -32,7 +32,13 @@ def split_values(text: str) -> list[str]:
 
 def value_problems(text: str, ch: CharacteristicInfo | None) -> list[str]:
     """Every problem of the values field, in words (empty when the values can be stored)."""
-    from lotwatch.store.values import BadValue, FinerThanResolution, parse_decimal, to_units
+    from lotwatch.store.values import (
+        BadValue,
+        FinerThanResolution,
+        OutOfRange,
+        parse_decimal,
+        to_units,
+    )
 
     if ch is None:
         return ["choose a characteristic first"]
@@ -45,6 +51,9 @@ def value_problems(text: str, ch: CharacteristicInfo | None) -> list[str]:
         shown = clean(v, 20)
         try:
             d = parse_decimal(v)
+        except OutOfRange as exc:
+            problems.append(clean(str(exc), 80))
+            continue
         except BadValue:
             hint = " (use a decimal point, not a comma)" if "," in v else ""
             problems.append(f"{shown!r} is not a number{hint}")
@@ -77,13 +86,15 @@ def _bound(x: float | None) -> str:
 
 def time_problem(text: str, now: datetime | None = None) -> str | None:
     """None when the time is empty ("now"), or a readable local/ISO time not in the future."""
-    from lotwatch.store.timeutil import BadTime, to_utc
+    from lotwatch.store.timeutil import BadTime, OutOfCalendar, to_utc
 
     s = text.strip()
     if not s or s.lower() == "now":
         return None
     try:
         t = to_utc(s)
+    except OutOfCalendar:
+        return f"{clean(s, 20)} cannot be a measurement time; type e.g. 2026-11-30 14:05"
     except BadTime:
         return (f"{clean(s, 20)!r} is not a time; type e.g. 2026-11-30 14:05 (local time) "
                 "or leave it empty for now")

@@ -51,10 +51,16 @@ def init_command(path: str | None, zone: str | None, db_path: Path) -> None:
     from lotwatch.store import Store
 
     target = Path(path).expanduser() if path else db_path
+    if target.exists() and not target.is_file():
+        raise UserError(f"{target} is not a regular file (a folder, device or pipe); "
+                        "choose another path for the store")
     if target.exists():
         raise UserError(f"{target} already exists; lotwatch init never overwrites a file. "
                         "Choose another path or remove the file yourself.")
-    target.parent.mkdir(parents=True, exist_ok=True)
+    try:
+        target.parent.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise UserError(f"cannot create the folder {target.parent}: {exc.strerror}") from None
     store = Store.create(target, zone=zone)
     try:
         factors = ", ".join(f.name + (" (required)" if f.required else "") for f in store.factors())
