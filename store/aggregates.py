@@ -20,7 +20,9 @@ from collections import defaultdict
 from collections.abc import Iterable
 from typing import TYPE_CHECKING, Any
 
+from lotwatch.store.errors import StoreError
 from lotwatch.store.model import CheckReport
+from lotwatch.store.values import MAX_ABS_D
 
 if TYPE_CHECKING:
     from lotwatch.store.connection import Store
@@ -69,6 +71,9 @@ class Deltas:
 
     def apply(self, conn: sqlite3.Connection) -> None:
         rows = [(*k, *v) for k, v in self._d.items() if v != [0, 0, 0, 0]]
+        for r in rows:
+            if max(abs(x) for x in r[4:]) > INT64_MAX:
+                raise _overflow(conn, r[:4])
         # A new row must satisfy the table's CHECKs before the UPSERT's conflict branch runs, so
         # only growing buckets go through INSERT ... ON CONFLICT; the others exist and UPDATE.
         def grows(r: tuple) -> bool:
@@ -76,14 +81,20 @@ class Deltas:
 
         grow = [r for r in rows if grows(r)]
         shrink = [(r[4], r[5], r[6], r[7], *r[:4]) for r in rows if not grows(r)]
-        conn.executemany(
-            "INSERT INTO buckets(characteristic_id, factor, level, day, n, sum_d, sum_d2, lots) "
-            "VALUES (?, ?, ?, ?, ?, ?, ?, ?) "
-            "ON CONFLICT(characteristic_id, factor, level, day) DO UPDATE SET "
-            "n = n + excluded.n, sum_d = sum_d + excluded.sum_d, "
-            "sum_d2 = sum_d2 + excluded.sum_d2, lots = lots + excluded.lots",
-            grow,
-        )
+        try:
+            conn.executemany(
+                "INSERT INTO buckets(characteristic_id, factor, level, day, n, sum_d, sum_d2, "
+                "lots) VALUES (?, ?, ?, ?, ?, ?, ?, ?) "
+                "ON CONFLICT(characteristic_id, factor, level, day) DO UPDATE SET "
+                "n = n + excluded.n, sum_d = sum_d + excluded.sum_d, "
+                "sum_d2 = sum_d2 + excluded.sum_d2, lots = lots + excluded.lots",
+                grow,
+            )
+        except sqlite3.IntegrityError as exc:
+            # SQLite turns an overflowing integer sum into a REAL, which the STRICT column refuses
+            if "REAL value in INTEGER column buckets." not in str(exc):
+                raise
+            raise _overflow(conn, _overflowing(conn, grow)) from None
         if shrink:
             cur = conn.executemany(
                 "UPDATE buckets SET n = n + ?, sum_d = sum_d + ?, sum_d2 = sum_d2 + ?, "
@@ -100,6 +111,78 @@ class Deltas:
                 [r[4:] for r in shrink],
             )
         self._d.clear()
+
+INT64_MAX = 2**63 - 1  # SQLite's INTEGER is a signed 64-bit number
+
+
+class SumsOverflow(StoreError):
+    """A write would take a day sum past SQLite's 64-bit integers; nothing was stored."""
+
+
+def capacity(max_abs_d: int) -> int:
+    """How many values one day sum (characteristic x level x day) holds when every value sits
+    ``max_abs_d`` resolution steps from the origin: sum d^2 <= n * max_abs_d^2 <= 2^63 - 1."""
+    return INT64_MAX // max(1, max_abs_d) ** 2
+
+
+def _overflowing(conn: sqlite3.Connection, grow: list[tuple]) -> tuple:
+    """The first bucket key whose stored sums plus the growing row pass INT64_MAX."""
+    for r in grow:
+        old = conn.execute("SELECT n, sum_d, sum_d2 FROM buckets WHERE characteristic_id = ? "
+                           "AND factor = ? AND level = ? AND day = ?", r[:4]).fetchone()
+        if old and any(abs(a + b) > INT64_MAX for a, b in zip(old, r[4:7], strict=True)):
+            return r[:4]
+    return grow[0][:4]
+
+
+def _overflow(conn: sqlite3.Connection, key: tuple) -> SumsOverflow:
+    cid, factor, level, day = key
+    row = conn.execute("SELECT name FROM characteristics WHERE id = ?", (cid,)).fetchone()
+    name = row[0] if row else f"characteristic {cid}"
+    return SumsOverflow(
+        f"too many extreme values of {name} for {factor} = {level} on {day}: the day's sum of "
+        f"squared deviations would pass SQLite's largest integer (2^63 - 1), so nothing was "
+        f"stored. A day and group holds at least {capacity(MAX_ABS_D):,} values at the "
+        f"extreme of {MAX_ABS_D:,} resolution steps from the origin (more when the values stay "
+        "nearer); check the values, or give the characteristic a plausible range "
+        "(lotwatch characteristic edit --plausible) so such values are refused as typing errors")
+
+
+def refuse_overflowing_plan(conn: sqlite3.Connection, entries: Any, factors: list[str],
+                            tag_prefix: str) -> None:
+    """Before an import writes anything: SumsOverflow if the file's values would take a day sum
+    (stored sums included) past INT64_MAX. ``entries`` is a polars frame with ``cid``, ``day``,
+    ``origin``, ``units`` (a list per row) and one ``tag_prefix + factor`` column per factor the
+    file carries; sums are taken in 128-bit integers so they cannot wrap."""
+    import polars as pl
+
+    cols = [f for f in factors if tag_prefix + f in entries.columns]
+    if not cols or entries.height == 0:
+        return
+    d = (pl.col("units").cast(pl.Int128) - pl.col("origin")).alias("d")
+    vals = entries.select("cid", "day", "origin", "units", *(tag_prefix + f for f in cols)
+                          ).explode("units").with_columns(d)
+    for f in cols:
+        sums = (vals.filter(pl.col(tag_prefix + f).is_not_null())
+                .group_by("cid", tag_prefix + f, "day")
+                .agg(pl.len().alias("n"), pl.col("d").sum().alias("s1"),
+                     (pl.col("d") ** 2).sum().alias("s2")))
+        # stored + new passes the limit only if one of the two is over half of it
+        half = INT64_MAX // 2
+        big = {r[:3]: r[3] for r in conn.execute(
+            "SELECT characteristic_id, level, day, sum_d2 FROM buckets WHERE factor = ? AND "
+            "sum_d2 > ?", (f, half))}
+        for cid, level, day, _n, _s1, s2 in sums.iter_rows():
+            if s2 > half or (cid, level, day) in big:
+                stored = big.get((cid, level, day))
+                if stored is None:
+                    row = conn.execute(
+                        "SELECT sum_d2 FROM buckets WHERE characteristic_id = ? AND factor = ? "
+                        "AND level = ? AND day = ?", (cid, f, level, day)).fetchone()
+                    stored = row[0] if row else 0
+                if stored + s2 > INT64_MAX:
+                    raise _overflow(conn, (cid, f, level, day))
+
 
 def lot_factor_levels(conn: sqlite3.Connection, lot_id: int) -> list[tuple[str, str]]:
     """(factor, level) pairs of a lot: its tags whose key is a grouping factor."""

@@ -167,7 +167,8 @@ def _write_chunk(store: Store, part: Plan, lot_ids: dict[str, int], now_s: str,
     sums = (meas.select("lot_id", "cid", "day", "d").join(levels, on="lot_id")
             .group_by("cid", "key", "value", "day")
             .agg(pl.len().alias("n"), pl.col("d").sum().alias("s1"),
-                 (pl.col("d") * pl.col("d")).sum().alias("s2"),
+                 # 128-bit: a 64-bit sum of squares would wrap around without a word
+                 (pl.col("d").cast(pl.Int128) ** 2).sum().alias("s2"),
                  pl.col("lot_id").n_unique().alias("lots")))
     # each new entry is a (lot, characteristic) not stored before, so its lot is new to its
     # bucket: the distinct lots of the chunk are the bucket's added lot count

@@ -16,6 +16,7 @@ from dataclasses import dataclass, field
 from math import ceil, floor
 from typing import TYPE_CHECKING, Any
 
+from lotwatch.store.aggregates import refuse_overflowing_plan
 from lotwatch.store.errors import RowProblem
 from lotwatch.store.lots import _prepare, _problem
 from lotwatch.store.model import Characteristic, LotEntry
@@ -158,6 +159,7 @@ def plan_values(store: Store, values: pl.DataFrame, tag_keys: list[str], *, sour
                 duplicates=0, refused_values=refused_values, rounded=rounded,
                 values=int(vals.height))
     _judge_stored(store.conn, plan, source, required)
+    refuse_overflowing_plan(store.conn, plan.entries, [f.name for f in factors], TAG)
     return plan
 
 
