@@ -209,7 +209,7 @@ def run_battery(samples: Sequence[Any], names: Sequence[str], *, alpha: float = 
             notes.append(f"{title}: not computed ({why}).")
     chosen = {"Tukey-Kramer": tukey, "Games-Howell": gh, "Dunn": dunn_pairs}.get(rec.posthoc, [])
     letters: dict[str, str] = {}
-    if can_compare:
+    if can_compare and chosen:  # no letters without the pairs they summarise
         letters = _guard(notes, "Compact letters",
                          lambda: _letters.compact_letters(
                              gnames, chosen, means={g.name: g.mean for g in groups}), {})

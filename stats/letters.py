@@ -38,8 +38,19 @@ def _absorb(columns: list[frozenset[int]]) -> list[frozenset[int]]:
     return [c for c in unique if not any(c < other for other in unique)]
 
 
+# Letters are a display for a handful of groups: beyond 26 groups (one alphabet) they are not
+# read, and the insert-and-absorb steps grow with the square of the columns per significant pair.
+MAX_LETTER_GROUPS = 26
+
+
 def letter_columns(k: int, significant: Sequence[tuple[int, int]]) -> list[frozenset[int]]:
-    """Piepho's insert-and-absorb on group indices 0..k-1; returns the letter columns."""
+    """Piepho's insert-and-absorb on group indices 0..k-1; returns the letter columns.
+    Raises ``ValueError`` beyond ``MAX_LETTER_GROUPS`` groups or when more than ``2 k + 52``
+    columns would be needed (the contrived patterns that grow exponentially)."""
+    if k > MAX_LETTER_GROUPS:
+        raise ValueError(f"letters are shown for up to {MAX_LETTER_GROUPS} groups, not {k:,}; "
+                         "read the pairwise table")
+    limit = 2 * k + 52
     columns = [frozenset(range(k))]
     for i, j in significant:
         new: list[frozenset[int]] = []
@@ -50,6 +61,9 @@ def letter_columns(k: int, significant: Sequence[tuple[int, int]]) -> list[froze
             else:
                 new.append(col)
         columns = _absorb(new)
+        if len(columns) > limit:
+            raise ValueError(f"this pattern of differences needs more than {limit} letters; "
+                             "read the pairwise table")
     return columns
 
 
