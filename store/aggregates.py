@@ -71,9 +71,9 @@ class Deltas:
 
     def apply(self, conn: sqlite3.Connection) -> None:
         rows = [(*k, *v) for k, v in self._d.items() if v != [0, 0, 0, 0]]
-        for r in rows:
-            if max(abs(x) for x in r[4:]) > INT64_MAX:
-                raise _overflow(conn, r[:4])
+        for key, sums in self._d.items():
+            if max(abs(x) for x in sums) > INT64_MAX:
+                raise _overflow(conn, key)
         # A new row must satisfy the table's CHECKs before the UPSERT's conflict branch runs, so
         # only growing buckets go through INSERT ... ON CONFLICT; the others exist and UPDATE.
         def grows(r: tuple) -> bool:
