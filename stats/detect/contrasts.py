@@ -30,12 +30,11 @@ variance. The ``1/12`` (the variance of rounding to one resolution step, Sheppar
 finite for coarse gauges and pulls the ratio toward 1, i.e. errs toward silence.
 
 Extra dispersion: skewed values and correlated lots make the standardised contrasts vary more
-than the normal theory says. ``phi`` is estimated from the day-to-day differences of the
-standardised contrast over trailing days (a change of level adds one large difference, which the
-median ignores): ``phi = (median |z_t - z_{t-1}| / 0.6745)^2 / 2`` (0.6745 is the normal
-quartile, so the median of |N(0, 2 phi)| is 0.6745 sqrt(2 phi)), less one standard error of that
-estimate (relative error about 2.33 / sqrt(m) for m differences), kept within [1, 9]: so a
-chance excess on normal data does not slow detection, and a real one is corrected.
+than the normal theory says. ``phi`` is estimated from the day-to-day changes of the
+standardised contrast over the trailing ``dispersion_days`` (a step or a ramp adds a few large
+changes, which are trimmed): the mean of the smallest 90% of ``(z_t - z_prev)^2``, divided by
+their expectation under N(0, 2): ``2 x 0.6231`` (the second moment of a standard normal below
+its 95% point of |X|), kept within [1, 9].
 """
 
 from __future__ import annotations
@@ -48,6 +47,7 @@ from lotwatch.stats.detect.settings import DetectorSettings
 from scipy import special
 
 MIN_DF = 10  # trailing degrees of freedom a group and its rest need before they are watched
+MIN_CHANGES = 14  # day-to-day changes the dispersion needs before a group is watched
 SHEPPARD = 1.0 / 12.0
 
 
@@ -89,16 +89,31 @@ def _successive(x: np.ndarray, valid: np.ndarray, f) -> np.ndarray:
     return out
 
 
+TRIM = 0.1  # share of the largest day-to-day changes left out of the dispersion estimate
+# E[X^2 | |X| <= q] for X ~ N(0, 1) and q its 95% point (1.6449): (0.9 - 2 q pdf(q)) / 0.9
+TRIMMED_SECOND_MOMENT = 0.6231
+
+
 def _dispersion(z: np.ndarray, valid: np.ndarray, days: int, first: int) -> np.ndarray:
-    """phi for each slot and day t >= first, from |z_t - z_prev| over the ``days`` days before
-    t (see the module docstring); 1 where fewer than 8 differences are available."""
-    diffs = _successive(z, valid, lambda a, b, *_: np.abs(b - a))
-    med, count = _trailing_median(diffs, days, first)
-    est = (med / 0.6744897501960817) ** 2 / 2.0
-    # a median-based variance has a relative standard error of about 2.33 / sqrt(count) (the
-    # median absolute deviation's efficiency is 37%): inflate only by what exceeds one error
-    est = est * (1.0 - 2.33 / np.sqrt(np.maximum(count, 1)))
-    return np.where(count >= 8, np.clip(np.nan_to_num(est, nan=1.0), 1.0, 9.0), 1.0)
+    """phi for each slot and day t >= first, from the changes z_t - z_prev over the ``days`` days
+    before t (see the module docstring); NaN (not watched yet) with fewer than MIN_CHANGES."""
+    diffs = _successive(z, valid, lambda a, b, *_: (b - a) ** 2)
+    S, T = z.shape
+    phi = np.ones((S, T))
+    if first >= T:
+        return phi
+    padded = np.full((S, T + days), np.nan)
+    padded[:, days:] = diffs
+    win = np.lib.stride_tricks.sliding_window_view(padded[:, first:T + days - 1], days, axis=1)
+    ordered = np.sort(win, axis=2)  # NaN last
+    count = np.sum(np.isfinite(win), axis=2)
+    keep = np.floor((1.0 - TRIM) * count)
+    used = np.arange(days)[None, None, :] < keep[:, :, None]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        est = np.where(used, ordered, 0.0).sum(axis=2) / keep / TRIMMED_SECOND_MOMENT / 2.0
+    phi[:, first:] = np.where(count >= MIN_CHANGES, np.clip(np.nan_to_num(est, nan=1.0), 1.0, 9.0),
+                              np.nan)
+    return phi
 
 
 def _sparse_variance(n: np.ndarray, s1: np.ndarray, days: int) -> np.ndarray:
@@ -206,6 +221,8 @@ def contrasts(n: np.ndarray, s1: np.ndarray, s2: np.ndarray, comp: np.ndarray,
         z = c / np.sqrt(v0)
         start_phi = max(first - settings.clear_days, 0)
         phi_m = _dispersion(z, mean_ok, settings.dispersion_days, start_phi)
+        mean_ok = mean_ok & np.isfinite(phi_m)
+        phi_m = np.nan_to_num(phi_m, nan=1.0)
 
         # spread
         spread_ok = warm & (n >= 2) & (rdf >= 2)
@@ -219,6 +236,8 @@ def contrasts(n: np.ndarray, s1: np.ndarray, s2: np.ndarray, comp: np.ndarray,
         var_u0 = special.polygamma(1, nu_g / 2) + special.polygamma(1, nu_r / 2)
         zs = u / np.sqrt(var_u0)
         phi_s = _dispersion(zs, spread_ok, settings.dispersion_days, start_phi)
+        spread_ok = spread_ok & np.isfinite(phi_s)
+        phi_s = np.nan_to_num(phi_s, nan=1.0)
 
         # a typical day (the group's actual lot rate over the trailing days)
         nbar_g = t_n / t_days
@@ -228,7 +247,10 @@ def contrasts(n: np.ndarray, s1: np.ndarray, s2: np.ndarray, comp: np.ndarray,
         nubar_r = np.maximum(t_rdf / t_rdays, 2.0)
         var_u_typ = special.polygamma(1, nubar_g / 2) + special.polygamma(1, nubar_r / 2)
         a_typ_s = 2.0 * np.log(settings.spread_ratio) / np.sqrt(phi_s * var_u_typ)
-        days_per_year = 365.0 * t_days / L
+        # reporting days per year over the trailing days the group has existed
+        first_seen = np.where((n > 0).any(axis=1), np.argmax(n > 0, axis=1), T)
+        span = np.clip(np.arange(T)[None, :] - first_seen[:, None], 1, L)
+        days_per_year = 365.0 * t_days / span
     return Contrasts(c=c, v=v0 * phi_m, mean_ok=mean_ok, delta=delta, u=u,
                      var_u=var_u0 * phi_s, spread_ok=spread_ok, phi_m=phi_m, phi_s=phi_s,
                      a_typ_m=a_typ_m, a_typ_s=a_typ_s, days_per_year=days_per_year,

@@ -30,7 +30,7 @@ class DetectorSettings:
     spread_ratio: float = 1.5
     trailing_days: int = 42
     warmup_days: int = 10
-    dispersion_days: int = 56
+    dispersion_days: int = 84
     clear_days: int = 14
     no_limits_sigmas: float = 1.0
 
