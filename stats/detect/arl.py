@@ -179,9 +179,11 @@ def decision_interval_markov(k: np.ndarray | float, arl: np.ndarray | float) -> 
     """
     k_b, a_b = np.broadcast_arrays(np.asarray(k, dtype=np.float64),
                                    np.asarray(arl, dtype=np.float64))
-    out = np.asarray(decision_interval(k_b, a_b), dtype=np.float64).copy()
+    out = np.empty(k_b.shape, dtype=np.float64)
     ks, hs, la = _table()
     big = k_b >= K_MIN
+    if (~big).any():
+        out[~big] = decision_interval(k_b[~big], a_b[~big])
     if not big.any():
         return out
     kk = np.minimum(k_b[big], K_MAX)

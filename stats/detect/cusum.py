@@ -219,6 +219,18 @@ def run(con: Contrasts, settings: DetectorSettings, first: int,
             fire_lo = ~alarmed & ok & (ev_lo > 1) & pass_lo if two_sided else np.zeros(S, bool)
             pick_lo = fire_lo & (~fire_hi | (ev_lo > ev_hi))
             pick_hi = fire_hi & ~pick_lo
+            if two_sided and con.comp is not None and (pick_hi | pick_lo).sum() > 1:
+                # one new mean alarm per comparison a day: the strongest (the others' rests
+                # hold it; they restart without it below and are judged again)
+                strength = np.where(pick_hi, ev_hi, np.where(pick_lo, ev_lo, -np.inf))
+                best = np.full(int(con.comp.max()) + 1, -np.inf)
+                np.maximum.at(best, con.comp, strength)
+                first = np.zeros(S, dtype=bool)
+                for c_ in np.flatnonzero(np.isfinite(best)):
+                    members = np.flatnonzero((con.comp == c_) & (strength == best[c_]))
+                    first[members[0]] = True
+                pick_hi &= first
+                pick_lo &= first
             for pick, side, sign in ((pick_hi, "hi", 1), (pick_lo, "lo", -1)):
                 if not pick.any():
                     continue

@@ -149,11 +149,16 @@ def raises(store: Store) -> dict[str, list[tuple]]:
     day index), from the stored detector days."""
     out: dict[str, list[tuple]] = {}
     o0 = DAY0.toordinal()
-    for name, factor, level, kind, det, onset in store.conn.execute(
-            "SELECT DISTINCT c.name, d.factor, d.level, d.kind, d.detected, d.alarm_onset "
-            "FROM detector_days d JOIN characteristics c ON c.id = d.characteristic_id "
-            "WHERE d.alarm != 0 ORDER BY d.detected"):
-        out.setdefault(name, []).append((factor, level, kind, int(det) - o0, int(onset) - o0))
+    rows = store.conn.execute(
+        "SELECT c.name, d.factor, d.level, d.kind, d.detected, d.alarm_onset, d.evidence, d.day "
+        "FROM detector_days d JOIN characteristics c ON c.id = d.characteristic_id "
+        "WHERE d.alarm != 0").fetchall()
+    for name, factor, level, kind, det, onset, ev, day in rows:
+        if date.fromisoformat(day).toordinal() == det:  # the day it was raised
+            out.setdefault(name, []).append((factor, level, kind, int(det) - o0,
+                                             int(onset) - o0, -(ev or 0.0)))
+    for v in out.values():
+        v.sort(key=lambda r: (r[3], r[5]))  # by day, then strongest evidence first
     return out
 
 
