@@ -225,12 +225,12 @@ def run(con: Contrasts, settings: DetectorSettings, first: int,
                 strength = np.where(pick_hi, ev_hi, np.where(pick_lo, ev_lo, -np.inf))
                 best = np.full(int(con.comp.max()) + 1, -np.inf)
                 np.maximum.at(best, con.comp, strength)
-                first = np.zeros(S, dtype=bool)
+                lead = np.zeros(S, dtype=bool)
                 for c_ in np.flatnonzero(np.isfinite(best)):
                     members = np.flatnonzero((con.comp == c_) & (strength == best[c_]))
-                    first[members[0]] = True
-                pick_hi &= first
-                pick_lo &= first
+                    lead[members[0]] = True
+                pick_hi &= lead
+                pick_lo &= lead
             for pick, side, sign in ((pick_hi, "hi", 1), (pick_lo, "lo", -1)):
                 if not pick.any():
                     continue
