@@ -1,6 +1,7 @@
-"""Rolling-window explanation: window plans, per-window group sums, vectorised one-way statistics
-over every window × comparison, family-wise false-discovery control and the practical gate.
-(Alerts come from the sequential detectors in ``stats.detect``.)
+"""Rolling-window explanation: vectorised one-way statistics over every window × comparison,
+family-wise false-discovery control and the practical gate. Window plans and sums live in
+``stats.windows``, the settings in ``stats.review_settings`` (both re-exported here). Alerts
+come from the sequential detectors in ``stats.detect``.
 
 Pure computation on numpy arrays and polars frames; no SQLite. A *comparison* is one
 characteristic × one grouping factor; a *window* is a span of days (or the last N lots of each
@@ -55,296 +56,30 @@ why BY is offered.
 from __future__ import annotations
 
 import math
-from collections.abc import Callable, Sequence
-from dataclasses import dataclass, field
-from datetime import date, timedelta
-from typing import TYPE_CHECKING
+from collections.abc import Sequence
+from dataclasses import dataclass
 
 import numpy as np
-from lotwatch.stats.weeks import iso_week_label
-
-if TYPE_CHECKING:
-    import polars as pl
-
-
-WINDOW_KINDS = ("trailing", "last_n", "week")
-FDR_METHODS = ("bh", "by")
-NO_LIMITS_GATES = ("detectable", "skip")
+from lotwatch.stats.review_settings import (  # noqa: F401  (re-exported)
+    FDR_METHODS,
+    NO_LIMITS_GATES,
+    WINDOW_KINDS,
+    ReviewSettings,
+)
+from lotwatch.stats.windows import (  # noqa: F401  (re-exported)
+    BucketCube,
+    Comparison,
+    GroupSums,
+    Window,
+    bucket_cube,
+    window_plan,
+    window_span,
+    window_sums,
+)
 
 NOT_ENOUGH = "not enough data"
 ZERO_VARIANCE = "zero within-group variance"
 OK = "ok"
-
-
-# --------------------------------------------------------------------------------------------
-# settings
-
-
-@dataclass(frozen=True)
-class ReviewSettings:
-    """How reviews are windowed and when a signal becomes an alert (this tool's defaults).
-
-    * ``window``: "trailing" (the last ``days`` days, evaluated every ``step_days``),
-      "last_n" (the last ``last_n`` lots of each group, rounded out to whole days, evaluated every
-      ``step_days``) or "week" (ISO calendar weeks, Monday to Sunday).
-    * ``min_n``: a group with fewer lots than this in a window is left out of that window.
-    * A window *signal* (shown beside the detectors, no longer what opens alerts): q ≤
-      ``fdr_level`` and the largest shift ≥ the practical gate.
-    * Practical gate: the characteristic's min_shift; else ``tolerance_fraction`` × (USL − LSL)
-      when both limits exist (1/8 is this tool's default, not a standard); else
-      ``no_limits_gate``: "detectable" (the shift must reach the window's 80%-power detectable
-      shift) or "skip" (no alerts for that characteristic).
-    """
-
-    window: str = "trailing"
-    days: int = 28
-    step_days: int = 7
-    last_n: int = 30
-    min_n: int = 5
-    fdr_level: float = 0.05
-    fdr_method: str = "bh"
-    tolerance_fraction: float = 0.125
-    no_limits_gate: str = "detectable"
-    trend_windows: int = 12
-    alpha: float = 0.05
-
-    KEYS = {  # settings-table key -> field
-        "review.window": "window",
-        "review.window_days": "days",
-        "review.step_days": "step_days",
-        "review.last_n": "last_n",
-        "review.min_lots": "min_n",
-        "review.fdr_level": "fdr_level",
-        "review.fdr_method": "fdr_method",
-        "review.tolerance_fraction": "tolerance_fraction",
-        "review.no_limits_gate": "no_limits_gate",
-        "review.trend_windows": "trend_windows",
-    }
-
-    @classmethod
-    def from_lookup(cls, get: Callable[[str], str | None]) -> ReviewSettings:
-        """Read every setting through ``get(key) -> text | None``; unset keys keep defaults.
-
-        Raises ``ValueError`` naming the key and the bad value.
-        """
-        values: dict[str, object] = {}
-        defaults = cls()
-        for key, name in cls.KEYS.items():
-            text = get(key)
-            if text is None or str(text).strip() == "":
-                continue
-            kind = type(getattr(defaults, name))
-            try:
-                values[name] = kind(str(text).strip())
-            except ValueError:
-                raise ValueError(f"setting {key} = {text!r}: expected {kind.__name__}") from None
-        return cls(**values).validated()
-
-    def validated(self) -> ReviewSettings:
-        """Return self, or raise ``ValueError`` saying which setting is out of range."""
-        problems = []
-        if self.window not in WINDOW_KINDS:
-            problems.append(f"review.window = {self.window!r}: use one of {', '.join(WINDOW_KINDS)}")
-        if self.fdr_method not in FDR_METHODS:
-            problems.append(f"review.fdr_method = {self.fdr_method!r}: use bh or by")
-        if self.no_limits_gate not in NO_LIMITS_GATES:
-            problems.append(f"review.no_limits_gate = {self.no_limits_gate!r}: use detectable or skip")
-        for name, lo in (("days", 1), ("step_days", 1), ("last_n", 2), ("min_n", 2),
-                         ("trend_windows", 1)):
-            if getattr(self, name) < lo:
-                problems.append(f"{name} = {getattr(self, name)}: must be at least {lo}")
-        if not 0 < self.fdr_level < 1:
-            problems.append(f"review.fdr_level = {self.fdr_level}: must be between 0 and 1")
-        from lotwatch.stats.settings_rules import combination_problems  # bounds, with reasons
-        problems += combination_problems(self)
-        if problems:
-            raise ValueError("; ".join(problems))
-        return self
-
-
-# --------------------------------------------------------------------------------------------
-# windows
-
-
-@dataclass(frozen=True)
-class Window:
-    """One evaluation window. ``start`` is None for "last_n" windows (start differs per group)."""
-
-    label: str  # full label, e.g. "28 days to 2026-11-29"
-    short: str  # at most 11 characters, e.g. "W48/28d"
-    start: date | None
-    end: date  # inclusive
-
-
-def _end_tag(end: date) -> str:
-    return iso_week_label(end)[5:] if end.isoweekday() == 7 else end.strftime("%m-%d")
-
-
-def window_plan(as_of: date, settings: ReviewSettings, count: int) -> list[Window]:
-    """The ``count`` windows ending at or before ``as_of``, oldest first (the last is the latest).
-
-    trailing: ends as_of, as_of − step, …; each spans ``days`` days up to its end inclusive.
-    last_n: same ends; each group's span starts where its last ``last_n`` lots begin.
-    week: the ISO week containing as_of (cut at as_of) and the ``count − 1`` weeks before it.
-    """
-    out: list[Window] = []
-    for i in range(count - 1, -1, -1):
-        if settings.window == "week":
-            monday = as_of - timedelta(days=as_of.isoweekday() - 1) - timedelta(weeks=i)
-            end = min(monday + timedelta(days=6), as_of)
-            lab = iso_week_label(monday)
-            out.append(Window(lab, lab[2:], monday, end))
-            continue
-        end = as_of - timedelta(days=i * settings.step_days)
-        if settings.window == "trailing":
-            start = end - timedelta(days=settings.days - 1)
-            out.append(Window(f"{settings.days} days to {end.isoformat()}",
-                              f"{_end_tag(end)}/{settings.days}d", start, end))
-        else:
-            out.append(Window(f"last {settings.last_n} lots to {end.isoformat()}",
-                              f"{_end_tag(end)}/L{settings.last_n}", None, end))
-    return out
-
-
-def window_span(windows: Sequence[Window], settings: ReviewSettings) -> tuple[date | None, date]:
-    """Days of bucket data the windows need: (first day or None for all history, last day)."""
-    end = max(w.end for w in windows)
-    if settings.window == "last_n":
-        return None, end
-    return min(w.start for w in windows if w.start is not None), end
-
-
-# --------------------------------------------------------------------------------------------
-# group sums per window
-
-
-@dataclass(frozen=True)
-class Comparison:
-    """One characteristic × factor, with what is needed to turn deviation sums into values."""
-
-    characteristic: str
-    factor: str
-    origin_units: int
-    resolution: float
-    lsl: float | None = None
-    usl: float | None = None
-    min_shift: float | None = None
-
-
-@dataclass
-class GroupSums:
-    """Per-window, per-comparison, per-group sums: arrays of shape (W, C, K); K = most levels."""
-
-    windows: list[Window]
-    comparisons: list[Comparison]
-    levels: list[list[str]]  # levels[c] = level names of comparison c (padded groups have n=0)
-    n: np.ndarray
-    s1: np.ndarray
-    s2: np.ndarray
-    first_day: list[list[list[date | None]]] = field(default_factory=list)  # last_n only [w][c][g]
-
-
-@dataclass
-class BucketCube:
-    """Day-wise cumulative sums of a bucket frame: cum[c, g, t] = sum over days < day0 + t."""
-
-    comparisons: list[Comparison]
-    levels: list[list[str]]
-    day0: date
-    cum_n: np.ndarray
-    cum_s1: np.ndarray
-    cum_s2: np.ndarray
-
-
-def bucket_cube(buckets: pl.DataFrame, comparisons: Sequence[Comparison], *, first_day: date,
-                last_day: date) -> BucketCube:
-    """Lay a bucket frame (characteristic, factor, level, day, n, sum_d, sum_d2) out as dense
-    day-wise cumulative sums for the given comparisons over [first_day, last_day].
-
-    The frame holds at most one row per characteristic, factor, level and day (the store's
-    primary key). Rows of other comparisons or outside the day range are ignored.
-    """
-    import polars as pl
-
-    comps = list(comparisons)
-    index = {(c.characteristic, c.factor): i for i, c in enumerate(comps)}
-    ndays = (last_day - first_day).days + 1
-    b = buckets.filter((pl.col("day") >= first_day) & (pl.col("day") <= last_day))
-    # Runs of equal (characteristic, factor, level): one run per key when the frame is sorted
-    # (as the store returns it); correct, only slower, when it is not. Keys are resolved once
-    # per run, so no string work is done per row.
-    keys = ["characteristic", "factor", "level"]
-    run = b.select(pl.struct(keys).rle_id().alias("r"))["r"].to_numpy() if b.height else \
-        np.zeros(0, dtype=np.int64)
-    heads = b[np.flatnonzero(np.r_[True, run[1:] != run[:-1]]) if b.height else [], keys]
-    level_sets: list[set[str]] = [set() for _ in comps]
-    run_key = []
-    for ch, fa, lv in heads.iter_rows():
-        c = index.get((str(ch), str(fa)), -1)
-        if c >= 0:
-            level_sets[c].add(str(lv))
-        run_key.append((c, str(lv)))
-    levels = [sorted(x) for x in level_sets]
-    lv_index = [{lv: g for g, lv in enumerate(x)} for x in levels]
-    kmax = max([len(x) for x in levels] + [1])
-    shape = (len(comps), kmax, ndays + 1)
-    cum_n = np.zeros(shape, dtype=np.int64)
-    cum_s1 = np.zeros(shape, dtype=np.int64)
-    cum_s2 = np.zeros(shape, dtype=np.int64)
-    if b.height:
-        run_c = np.array([c for c, _ in run_key], dtype=np.int64)
-        run_g = np.array([lv_index[c][lv] if c >= 0 else -1 for c, lv in run_key], dtype=np.int64)
-        ci, gi = run_c[run], run_g[run]
-        keep = ci >= 0
-        t = (b["day"].cast(pl.Int32).to_numpy() - _epoch_day(first_day)) + 1
-        ci, gi, t = ci[keep], gi[keep], t[keep]
-        # one bucket per (comparison, level, day), as the store's primary key guarantees:
-        # plain assignment, no accumulation needed
-        cum_n[ci, gi, t] = b["n"].to_numpy()[keep]
-        cum_s1[ci, gi, t] = b["sum_d"].to_numpy()[keep]
-        cum_s2[ci, gi, t] = b["sum_d2"].to_numpy()[keep]
-        np.cumsum(cum_n, axis=2, out=cum_n)
-        np.cumsum(cum_s1, axis=2, out=cum_s1)
-        np.cumsum(cum_s2, axis=2, out=cum_s2)
-    return BucketCube(comps, levels, first_day, cum_n, cum_s1, cum_s2)
-
-
-def _epoch_day(d: date) -> int:
-    return (d - date(1970, 1, 1)).days
-
-
-def window_sums(cube: BucketCube, windows: Sequence[Window], settings: ReviewSettings) -> GroupSums:
-    """Sum each group's buckets over each window (trailing/week: the window's days; last_n: the
-    fewest most-recent whole days holding at least ``last_n`` lots of that group)."""
-    ndays = cube.cum_n.shape[2] - 1
-    C, K = cube.cum_n.shape[:2]
-    W = len(windows)
-    # exclusive end index into the cumulative sums, clipped to the cube (0: window before data)
-    ends = np.clip(np.array([(w.end - cube.day0).days + 1 for w in windows]), 0, ndays)
-    if settings.window != "last_n":
-        starts = np.array([max((w.start - cube.day0).days, 0) for w in windows])  # type: ignore[operator]
-        starts = np.minimum(starts, ends)
-        n = cube.cum_n[:, :, ends] - cube.cum_n[:, :, starts]
-        s1 = cube.cum_s1[:, :, ends] - cube.cum_s1[:, :, starts]
-        s2 = cube.cum_s2[:, :, ends] - cube.cum_s2[:, :, starts]
-        return GroupSums(list(windows), cube.comparisons, cube.levels,
-                         np.moveaxis(n, 2, 0), np.moveaxis(s1, 2, 0), np.moveaxis(s2, 2, 0))
-    start_idx = np.zeros((W, C, K), dtype=np.int64)
-    for c in range(C):
-        for g in range(K):
-            cn = cube.cum_n[c, g]
-            target = cn[ends] - settings.last_n
-            s = np.searchsorted(cn, target, side="right") - 1
-            start_idx[:, c, g] = np.clip(s, 0, None)
-    ci = np.arange(C)[None, :, None]
-    gi = np.arange(K)[None, None, :]
-    ei = ends[:, None, None]
-    n = cube.cum_n[ci, gi, ei] - cube.cum_n[ci, gi, start_idx]
-    s1 = cube.cum_s1[ci, gi, ei] - cube.cum_s1[ci, gi, start_idx]
-    s2 = cube.cum_s2[ci, gi, ei] - cube.cum_s2[ci, gi, start_idx]
-    first = [[[cube.day0 + timedelta(days=int(start_idx[w, c, g])) if n[w, c, g] else None
-               for g in range(K)] for c in range(C)] for w in range(W)]
-    return GroupSums(list(windows), cube.comparisons, cube.levels, n, s1, s2, first)
 
 
 # --------------------------------------------------------------------------------------------
@@ -531,29 +266,22 @@ def detectable_shift(stats: WindowStats, *, alpha: float = 0.05, power: float = 
 def family_fdr(p: np.ndarray, method: str = "bh") -> tuple[np.ndarray, np.ndarray]:
     """Adjust each row of ``p`` (W, C) as its own family; NaN entries are not in the family.
 
-    BH adjusted p (Benjamini & Hochberg 1995): q_(i) = min_{j ≥ i} min(1, m·p_(j)/j);
-    BY (Benjamini & Yekutieli 2001) multiplies by c(m) = Σ_{i=1..m} 1/i.
+    BH adjusted p (Benjamini & Hochberg 1995): q_(i) = min_{j ≥ i} min(1, p_(j) / (j/m));
+    BY (Benjamini & Yekutieli 2001) multiplies by c(m) = Σ_{i=1..m} 1/i. Computed by
+    ``stats.multiple.adjust_pvalues`` (the one implementation), row by row.
     Returns (q, family_size per row).
     """
+    from lotwatch.stats.multiple import adjust_pvalues
+
     if method not in FDR_METHODS:
         raise ValueError(f"FDR method {method!r}: use bh or by")
     p2 = np.atleast_2d(np.asarray(p, dtype=np.float64))
     q = np.full_like(p2, np.nan)
     sizes = np.zeros(p2.shape[0], dtype=np.int64)
     for r in range(p2.shape[0]):
-        valid = np.flatnonzero(np.isfinite(p2[r]))
-        mfam = valid.size
-        sizes[r] = mfam
-        if mfam == 0:
-            continue
-        pv = p2[r, valid]
-        order = np.argsort(pv, kind="mergesort")
-        ranks = np.arange(1, mfam + 1, dtype=np.float64)
-        scale = mfam * (np.sum(1.0 / ranks) if method == "by" else 1.0)
-        adj = np.minimum.accumulate((pv[order] * scale / ranks)[::-1])[::-1]
-        out = np.empty(mfam)
-        out[order] = np.minimum(adj, 1.0)
-        q[r, valid] = out
+        res = adjust_pvalues(p2[r], method)
+        q[r] = res.q
+        sizes[r] = res.family_size
     return q, sizes
 
 

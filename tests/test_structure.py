@@ -18,7 +18,6 @@ MAX_LINES = 400
 # Modules still being split by other work this round; each may only shrink (its count is the
 # ceiling) and leaves this list once it is under MAX_LINES.
 KNOWN_LONG = {
-    "stats/monitor.py": 621,
     "store/lots.py": 448,
 }
 

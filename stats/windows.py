@@ -1,0 +1,197 @@
+"""Review windows and the group sums inside them, from the store's per-day bucket sums.
+
+A *window* is a span of days (or the last N lots of each group) ending on a given day; window sums
+are differences of day-wise cumulative sums, so a window costs O(1) per group whatever its length
+(see ``stats.monitor`` for the statistics computed from them). Pure numpy and polars.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+from datetime import date, timedelta
+from typing import TYPE_CHECKING
+
+import numpy as np
+from lotwatch.stats.review_settings import ReviewSettings
+from lotwatch.stats.weeks import iso_week_label
+
+if TYPE_CHECKING:
+    import polars as pl
+
+
+@dataclass(frozen=True)
+class Window:
+    """One evaluation window. ``start`` is None for "last_n" windows (start differs per group)."""
+
+    label: str  # full label, e.g. "28 days to 2026-11-29"
+    short: str  # at most 11 characters, e.g. "W48/28d"
+    start: date | None
+    end: date  # inclusive
+
+
+def _end_tag(end: date) -> str:
+    return iso_week_label(end)[5:] if end.isoweekday() == 7 else end.strftime("%m-%d")
+
+
+def window_plan(as_of: date, settings: ReviewSettings, count: int) -> list[Window]:
+    """The ``count`` windows ending at or before ``as_of``, oldest first (the last is the latest).
+
+    trailing: ends as_of, as_of − step, …; each spans ``days`` days up to its end inclusive.
+    last_n: same ends; each group's span starts where its last ``last_n`` lots begin.
+    week: the ISO week containing as_of (cut at as_of) and the ``count − 1`` weeks before it.
+    """
+    out: list[Window] = []
+    for i in range(count - 1, -1, -1):
+        if settings.window == "week":
+            monday = as_of - timedelta(days=as_of.isoweekday() - 1) - timedelta(weeks=i)
+            end = min(monday + timedelta(days=6), as_of)
+            lab = iso_week_label(monday)
+            out.append(Window(lab, lab[2:], monday, end))
+            continue
+        end = as_of - timedelta(days=i * settings.step_days)
+        if settings.window == "trailing":
+            start = end - timedelta(days=settings.days - 1)
+            out.append(Window(f"{settings.days} days to {end.isoformat()}",
+                              f"{_end_tag(end)}/{settings.days}d", start, end))
+        else:
+            out.append(Window(f"last {settings.last_n} lots to {end.isoformat()}",
+                              f"{_end_tag(end)}/L{settings.last_n}", None, end))
+    return out
+
+
+def window_span(windows: Sequence[Window], settings: ReviewSettings) -> tuple[date | None, date]:
+    """Days of bucket data the windows need: (first day or None for all history, last day)."""
+    end = max(w.end for w in windows)
+    if settings.window == "last_n":
+        return None, end
+    return min(w.start for w in windows if w.start is not None), end
+
+
+@dataclass(frozen=True)
+class Comparison:
+    """One characteristic × factor, with what is needed to turn deviation sums into values."""
+
+    characteristic: str
+    factor: str
+    origin_units: int
+    resolution: float
+    lsl: float | None = None
+    usl: float | None = None
+    min_shift: float | None = None
+
+
+@dataclass
+class GroupSums:
+    """Per-window, per-comparison, per-group sums: arrays of shape (W, C, K); K = most levels."""
+
+    windows: list[Window]
+    comparisons: list[Comparison]
+    levels: list[list[str]]  # levels[c] = level names of comparison c (padded groups have n=0)
+    n: np.ndarray
+    s1: np.ndarray
+    s2: np.ndarray
+    first_day: list[list[list[date | None]]] = field(default_factory=list)  # last_n only [w][c][g]
+
+
+@dataclass
+class BucketCube:
+    """Day-wise cumulative sums of a bucket frame: cum[c, g, t] = sum over days < day0 + t."""
+
+    comparisons: list[Comparison]
+    levels: list[list[str]]
+    day0: date
+    cum_n: np.ndarray
+    cum_s1: np.ndarray
+    cum_s2: np.ndarray
+
+
+def bucket_cube(buckets: pl.DataFrame, comparisons: Sequence[Comparison], *, first_day: date,
+                last_day: date) -> BucketCube:
+    """Lay a bucket frame (characteristic, factor, level, day, n, sum_d, sum_d2) out as dense
+    day-wise cumulative sums for the given comparisons over [first_day, last_day].
+
+    The frame holds at most one row per characteristic, factor, level and day (the store's
+    primary key). Rows of other comparisons or outside the day range are ignored.
+    """
+    import polars as pl
+
+    comps = list(comparisons)
+    index = {(c.characteristic, c.factor): i for i, c in enumerate(comps)}
+    ndays = (last_day - first_day).days + 1
+    b = buckets.filter((pl.col("day") >= first_day) & (pl.col("day") <= last_day))
+    # Runs of equal (characteristic, factor, level): one run per key when the frame is sorted
+    # (as the store returns it); correct, only slower, when it is not. Keys are resolved once
+    # per run, so no string work is done per row.
+    keys = ["characteristic", "factor", "level"]
+    run = b.select(pl.struct(keys).rle_id().alias("r"))["r"].to_numpy() if b.height else \
+        np.zeros(0, dtype=np.int64)
+    heads = b[np.flatnonzero(np.r_[True, run[1:] != run[:-1]]) if b.height else [], keys]
+    level_sets: list[set[str]] = [set() for _ in comps]
+    run_key = []
+    for ch, fa, lv in heads.iter_rows():
+        c = index.get((str(ch), str(fa)), -1)
+        if c >= 0:
+            level_sets[c].add(str(lv))
+        run_key.append((c, str(lv)))
+    levels = [sorted(x) for x in level_sets]
+    lv_index = [{lv: g for g, lv in enumerate(x)} for x in levels]
+    kmax = max([len(x) for x in levels] + [1])
+    shape = (len(comps), kmax, ndays + 1)
+    cum_n = np.zeros(shape, dtype=np.int64)
+    cum_s1 = np.zeros(shape, dtype=np.int64)
+    cum_s2 = np.zeros(shape, dtype=np.int64)
+    if b.height:
+        run_c = np.array([c for c, _ in run_key], dtype=np.int64)
+        run_g = np.array([lv_index[c][lv] if c >= 0 else -1 for c, lv in run_key], dtype=np.int64)
+        ci, gi = run_c[run], run_g[run]
+        keep = ci >= 0
+        t = (b["day"].cast(pl.Int32).to_numpy() - _epoch_day(first_day)) + 1
+        ci, gi, t = ci[keep], gi[keep], t[keep]
+        # one bucket per (comparison, level, day), as the store's primary key guarantees:
+        # plain assignment, no accumulation needed
+        cum_n[ci, gi, t] = b["n"].to_numpy()[keep]
+        cum_s1[ci, gi, t] = b["sum_d"].to_numpy()[keep]
+        cum_s2[ci, gi, t] = b["sum_d2"].to_numpy()[keep]
+        np.cumsum(cum_n, axis=2, out=cum_n)
+        np.cumsum(cum_s1, axis=2, out=cum_s1)
+        np.cumsum(cum_s2, axis=2, out=cum_s2)
+    return BucketCube(comps, levels, first_day, cum_n, cum_s1, cum_s2)
+
+
+def _epoch_day(d: date) -> int:
+    return (d - date(1970, 1, 1)).days
+
+
+def window_sums(cube: BucketCube, windows: Sequence[Window], settings: ReviewSettings) -> GroupSums:
+    """Sum each group's buckets over each window (trailing/week: the window's days; last_n: the
+    fewest most-recent whole days holding at least ``last_n`` lots of that group)."""
+    ndays = cube.cum_n.shape[2] - 1
+    C, K = cube.cum_n.shape[:2]
+    W = len(windows)
+    # exclusive end index into the cumulative sums, clipped to the cube (0: window before data)
+    ends = np.clip(np.array([(w.end - cube.day0).days + 1 for w in windows]), 0, ndays)
+    if settings.window != "last_n":
+        starts = np.array([max((w.start - cube.day0).days, 0) for w in windows])  # type: ignore[operator]
+        starts = np.minimum(starts, ends)
+        n = cube.cum_n[:, :, ends] - cube.cum_n[:, :, starts]
+        s1 = cube.cum_s1[:, :, ends] - cube.cum_s1[:, :, starts]
+        s2 = cube.cum_s2[:, :, ends] - cube.cum_s2[:, :, starts]
+        return GroupSums(list(windows), cube.comparisons, cube.levels,
+                         np.moveaxis(n, 2, 0), np.moveaxis(s1, 2, 0), np.moveaxis(s2, 2, 0))
+    start_idx = np.zeros((W, C, K), dtype=np.int64)
+    for c in range(C):
+        for g in range(K):
+            cn = cube.cum_n[c, g]
+            target = cn[ends] - settings.last_n
+            s = np.searchsorted(cn, target, side="right") - 1
+            start_idx[:, c, g] = np.clip(s, 0, None)
+    ci = np.arange(C)[None, :, None]
+    gi = np.arange(K)[None, None, :]
+    ei = ends[:, None, None]
+    n = cube.cum_n[ci, gi, ei] - cube.cum_n[ci, gi, start_idx]
+    s1 = cube.cum_s1[ci, gi, ei] - cube.cum_s1[ci, gi, start_idx]
+    s2 = cube.cum_s2[ci, gi, ei] - cube.cum_s2[ci, gi, start_idx]
+    first = [[[cube.day0 + timedelta(days=int(start_idx[w, c, g])) if n[w, c, g] else None
+               for g in range(K)] for c in range(C)] for w in range(W)]
+    return GroupSums(list(windows), cube.comparisons, cube.levels, n, s1, s2, first)
