@@ -90,6 +90,19 @@ def _no_free_space(path: Path) -> bool:
     return st.f_bavail * st.f_frsize < 64 * 1024
 
 
+# store_info key written by ``store.restore`` each time a backup is put in place
+RESTORE_KEY = "restore_token"
+
+
+def restore_token(conn: sqlite3.Connection) -> str | None:
+    """The store's current restore token (None before any restore, or for a file being made)."""
+    try:
+        row = conn.execute("SELECT value FROM store_info WHERE key = ?", (RESTORE_KEY,)).fetchone()
+    except (sqlite3.DatabaseError, UnicodeDecodeError):
+        return None
+    return row[0] if row else None
+
+
 class Session:
     """One open sqlite3 connection to a store file and the transactions on it."""
 
@@ -104,6 +117,7 @@ class Session:
         self._depth = 0
         self._closed = False
         self._identity = file_identity(path)
+        self._restored = restore_token(conn)
 
     def close(self) -> None:
         """Close the connection (idempotent). An open transaction is rolled back."""
@@ -192,6 +206,11 @@ class Session:
             raise StoreError(
                 f"{self.path} was replaced by another file while lotwatch had it open; nothing "
                 "was stored. Open the store again to work on the new file."
+            )
+        if restore_token(self.conn) != self._restored:
+            raise StoreError(
+                f"{self.path} was restored from a backup (lotwatch restore) while lotwatch had "
+                "it open; nothing was stored. Open the store again to work on what it now holds."
             )
 
     def _begin_immediate(self) -> None:

@@ -232,7 +232,32 @@ def export_command(fmt: str | None, characteristics: tuple[str, ...], since: str
         click.echo(f"Wrote {summary.rows:,} measurement(s) to {summary.path}", err=True)
 
 
+@click.command("restore")
+@click.argument("backup", type=click.Path(dir_okay=False, path_type=Path))
+@db_option
+@store_errors
+def restore_command(backup: Path, db_path: Path) -> None:
+    """Put the backup copy BACKUP back in place of the store, safely even while it is open.
+
+    Checks that BACKUP is an intact lotwatch store, keeps the store as it is now beside it
+    (NAME.before-restore-TIME.sqlite), then copies BACKUP in with SQLite's online backup. Never
+    copy a backup over the store file (cp) while lotwatch may have it open.
+
+    Example: lotwatch restore plant-2026-11-29.sqlite --db plant.sqlite
+    """
+    from lotwatch.store.restore import restore
+
+    done = restore(backup, db_path)
+    click.echo(plain(f"Restored {done.target} from {done.backup}: {done.lots:,} lots, "
+                     f"{done.measurements:,} measurements."))
+    if done.kept is not None:
+        click.echo(plain(f"The store as it was is kept in {done.kept}."))
+    click.echo("Any lotwatch window that had the store open refuses to write until it is opened "
+               "again.")
+
+
 def register(main: click.Group) -> None:
     """Add ``import`` and ``export`` to the ``lotwatch`` group."""
     main.add_command(import_command)
     main.add_command(export_command)
+    main.add_command(restore_command)

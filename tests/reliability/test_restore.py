@@ -1,0 +1,108 @@
+"""`lotwatch restore`: a backup put back in place of a store, even while a session has it open.
+
+SQLite's online backup API copies pages under the destination's locks, so other connections see
+the old or the new database, never a mixture (https://www.sqlite.org/backup.html); copying a file
+over an open WAL database instead corrupts it (https://www.sqlite.org/howtocorrupt.html, 1.3).
+A session that had the store open when it was restored refuses to write until reopened.
+"""
+
+from __future__ import annotations
+
+import sqlite3
+from pathlib import Path
+
+import pytest
+from lotwatch.store import LotEntry, Store, StoreError
+
+from tests.reliability.helpers import (
+    CHAR,
+    TAGS,
+    Snapshot,
+    assert_clean_refusal,
+    check_ok,
+    lot_value_counts,
+    make_store,
+    run_cli,
+)
+
+
+def _log(store: Store, *lots: str) -> None:
+    store.log_lots([LotEntry(CHAR, ["500.1"], TAGS, lot=lot) for lot in lots])
+
+
+def _backup(path: Path, to: Path) -> Path:
+    src = sqlite3.connect(path)
+    dst = sqlite3.connect(to)
+    try:
+        src.backup(dst)  # how a backup is made while the store is in use (sqlite3 ".backup")
+    finally:
+        src.close()
+        dst.close()
+    return to
+
+
+def test_restore_while_a_session_is_open(tmp_path: Path) -> None:
+    path = make_store(tmp_path / "plant.sqlite")
+    with Store.open(path) as s:
+        _log(s, "A1", "A2")
+    backup = _backup(path, tmp_path / "monday.sqlite")
+    session = Store.open(path)  # an interface left open on the store
+    try:
+        _log(session, "B1", "B2", "B3")
+        assert set(lot_value_counts(path)) == {"A1", "A2", "B1", "B2", "B3"}
+        res = run_cli("restore", backup, "--db", path)
+        assert res.returncode == 0, res.stdout + res.stderr
+        assert "2 lots" in res.stdout and "before-restore" in res.stdout
+        assert set(lot_value_counts(path)) == {"A1", "A2"}
+        check_ok(path)
+        before = Snapshot.of(path)
+        with pytest.raises(StoreError, match="restored from a backup"):
+            _log(session, "LATE")
+        assert Snapshot.of(path) == before
+    finally:
+        session.close()
+    (kept,) = tmp_path.glob("plant.before-restore-*.sqlite")
+    assert set(lot_value_counts(kept)) == {"A1", "A2", "B1", "B2", "B3"}
+    # a fresh process writes into the restored store as usual
+    res = run_cli("log", CHAR, "500.2", *(f"--tag={k}={v}" for k, v in TAGS.items()),
+                  "--lot", "C1", "--db", path)
+    assert res.returncode == 0, res.stdout + res.stderr
+    assert set(lot_value_counts(path)) == {"A1", "A2", "C1"}
+    check_ok(path)
+
+
+def test_restore_refuses_a_bad_backup_and_changes_nothing(tmp_path: Path) -> None:
+    path = make_store(tmp_path / "plant.sqlite")
+    with Store.open(path) as s:
+        _log(s, "A1")
+    before = Snapshot.of(path)
+    not_store = tmp_path / "notes.sqlite"
+    conn = sqlite3.connect(not_store)
+    conn.execute("CREATE TABLE t(x)")
+    conn.commit()
+    conn.close()
+    damaged = _backup(path, tmp_path / "damaged.sqlite")
+    data = bytearray(damaged.read_bytes())
+    data[4096:4104] = b"\xff" * 8  # the b-tree header of page 2 (page size 4096)
+    damaged.write_bytes(bytes(data))
+    text = tmp_path / "text.sqlite"
+    text.write_text("not a database at all\n" * 20)
+    for bad in (not_store, damaged, text, tmp_path / "missing.sqlite", path):
+        res = run_cli("restore", bad, "--db", path)
+        assert_clean_refusal(res)
+        assert res.returncode == 2
+        assert Snapshot.of(path) == before
+    assert not list(tmp_path.glob("*.before-restore-*"))
+
+
+def test_restore_into_a_missing_store_creates_it(tmp_path: Path) -> None:
+    path = make_store(tmp_path / "plant.sqlite")
+    with Store.open(path) as s:
+        _log(s, "A1")
+    backup = _backup(path, tmp_path / "b.sqlite")
+    target = tmp_path / "new" / "plant.sqlite"
+    target.parent.mkdir()
+    res = run_cli("restore", backup, "--db", target)
+    assert res.returncode == 0, res.stdout + res.stderr
+    assert set(lot_value_counts(target)) == {"A1"}
+    check_ok(target)
