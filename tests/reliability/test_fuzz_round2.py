@@ -50,6 +50,9 @@ TIMES = st.one_of(
                      "2026-02-29", "2024-02-29 12:00", "not a time", ""]),
     st.datetimes().map(lambda d: d.isoformat()),
 )
+GOOD_VALUES = st.sampled_from(["500.1", "499.9", "512.3", "450", "598.7"])
+GOOD_TIMES = st.sampled_from(["2026-11-20 08:00", "2026-03-29 03:30", "2026-10-25 02:30",
+                              "2026-11-20T08:00:00Z", "2025-12-31T23:59:59+14:00"])
 WEEKS = st.one_of(st.sampled_from(["0001-W01", "9999-W52", "9999-W53", "2026-W53", "2026-W00",
                                    "1970-W01", "2026-W48"]),
                   st.builds(lambda y, w: f"{y:04d}-W{w:02d}", st.integers(0, 9999),
@@ -71,7 +74,8 @@ def test_boundary_numbers_and_dates_on_the_command_line(tmp_path_factory) -> Non
     tags = [f"--tag={k}={v}" for k, v in TAGS.items()]
 
     @settings(max_examples=600, **SETTINGS)
-    @given(values=st.lists(NUMBERS, min_size=1, max_size=3), at=TIMES, week=WEEKS)
+    @given(values=st.lists(st.one_of(GOOD_VALUES, NUMBERS), min_size=1, max_size=3),
+           at=st.one_of(GOOD_TIMES, TIMES), week=WEEKS)
     def run(values: list[str], at: str, week: str) -> None:
         before = Snapshot.of(path)
         res = runner.invoke(main, ["log", CHAR, *values, *tags, "--at", at, "--db", str(path)])
@@ -80,6 +84,8 @@ def test_boundary_numbers_and_dates_on_the_command_line(tmp_path_factory) -> Non
         if res.exit_code != 0:
             COUNTS["log refused"] += 1
             assert Snapshot.of(path) == before
+        else:
+            COUNTS["log stored"] += 1
         for args in (["review", "--dry-run", "--week", week], ["review", "--dry-run", "--as-of",
                                                                   at[:10] or "x"]):
             COUNTS["review"] += 1
