@@ -18,7 +18,7 @@ MAX_LINES = 400
 # Modules still being split by other work this round; each may only shrink (its count is the
 # ceiling) and leaves this list once it is under MAX_LINES.
 KNOWN_LONG = {
-    "store/lots.py": 448,
+    "store/lots.py": 439,
 }
 
 
@@ -118,7 +118,6 @@ KNOWN_CYCLE_EDGES = {
     ("lotwatch.tui.app.screens.base", "lotwatch.tui.app.screens.help"),
     # plantzone rebuilds the buckets; aggregates reads the zone (function-level, store/)
     ("lotwatch.store.plantzone", "lotwatch.store.aggregates"),
-    # a function-level ``from lotwatch.store import LotEntry``; lotwatch.store.model breaks it
 }
 
 

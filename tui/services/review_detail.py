@@ -4,7 +4,7 @@
 from __future__ import annotations
 
 from dataclasses import dataclass
-from datetime import date, timedelta
+from datetime import date
 from typing import Any
 
 import numpy as np
@@ -223,12 +223,3 @@ class LatestWindow:
         self.stats = mon.window_statistics(sums, min_n=self.settings.min_n,
                                            alpha=self.settings.alpha)
         self.q, self.family_size = mon.family_fdr(self.stats.p_used, self.settings.fdr_method)
-
-
-def review_days(start: date, end: date, step: int = 7) -> list[date]:
-    """Review days from ``start`` to ``end`` every ``step`` days (for replaying weekly reviews)."""
-    out, d = [], start
-    while d <= end:
-        out.append(d)
-        d += timedelta(days=step)
-    return out

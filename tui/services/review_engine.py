@@ -40,7 +40,6 @@ from lotwatch.tui.services.review_detail import (  # noqa: F401  (re-exported fo
     LatestWindow,
     TrendResult,
     comparison_detail,
-    review_days,
     trend,
     window_values,
 )
