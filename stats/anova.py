@@ -213,10 +213,10 @@ def _finish(k: int, n_total: int, ssb: Number, ssw: Number, grand: float | None,
     f = _to_float(f_exact)
     p = float(special.fdtrc(dfb, dfw, f))
     if f_crit is not None and f > f_crit:
-        decision = (f"F = {fmt_num(f)} > F crit = {fmt_num(f_crit)}: the group means differ at "
+        decision = (f"F = {fmt_num(f)} > critical F {fmt_num(f_crit)}: the group means differ at "
                     f"alpha {alpha:g} ({fmt_p(p)}).")
     else:
-        decision = (f"F = {fmt_num(f)} <= F crit = {fmt_num(f_crit)}: no evidence at alpha "
+        decision = (f"F = {fmt_num(f)} <= critical F {fmt_num(f_crit)}: no evidence at alpha "
                     f"{alpha:g} that the group means differ ({fmt_p(p)}).")
     return AnovaTable(**base, **common, ms_within=_to_float(msw), f=f, p=p, resid_sd=_sqrt(msw),
                       status=OK, decision=decision)

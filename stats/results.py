@@ -80,7 +80,7 @@ class AnovaTable:
     r_squared: float | None
     resid_sd: float | None
     grand_mean: float | None
-    decision: str  # a sentence, e.g. "F = 4.21 > F crit = 3.10: the group means differ at alpha 0.05."
+    decision: str  # a sentence, e.g. "F = 4.21 > critical F 3.10: the group means differ at alpha 0.05."
     status: str = OK
     exact: bool = False  # True when computed from exact integer sums at a declared resolution
 

@@ -295,7 +295,7 @@ async def test_help_lists_bindings_and_the_caution(small_store):
         await pilot.press("question_mark")
         await pilot.pause()
         shown = screen_text(app)
-        for text in ("Log lot", "Factor", "Acknowledge", "F crit", "q-values", "Board",
+        for text in ("Log lot", "Factor", "Acknowledge", "Critical F", "q-values", "Board",
                      "Lots", "Correct", "Void",
                      "Detectable shift", "not a disposition of product",
                      "qualified people"):

@@ -13,6 +13,7 @@ from collections.abc import Iterable
 
 from lotwatch.stats.results import BatteryResult, PairComparison, TestResult
 from lotwatch.tui.caution import CAUTION
+from lotwatch.tui.render import numbers
 from lotwatch.tui.render.safe_text import clean
 
 WIDTH = 80
@@ -34,9 +35,10 @@ def num(x: float | None, width: int = 10, digits: int = 6) -> str:
 
 
 def pval(p: float | None, width: int = 8) -> str:
+    """A p-value cell in the one style of ``render.numbers.pval``, right-aligned."""
     if p is None or math.isnan(p):
         return "-".rjust(width)
-    return ("<0.0001" if p < 1e-4 else f"{p:.4f}").rjust(width)
+    return numbers.pval(p).rjust(width)
 
 
 def _p_words(p: float | None) -> str:
@@ -109,8 +111,9 @@ def _groups(r: BatteryResult, unit: str) -> list[str]:
     for e in r.excluded:
         lines.append(f"{clean(e.name, 14):<14}{e.n:>5}  excluded: {clean(e.reason)}")
     if r.letters:
-        lines.extend(_wrap(f"Groups sharing a letter do not differ ({r.recommendation.posthoc}, "
-                           f"alpha {r.alpha:g}).", ""))
+        lines.extend(_wrap(f"Letters: two groups with no letter in common differ by "
+                           f"{r.recommendation.posthoc} at alpha {r.alpha:g}; a common letter "
+                           "means that test found no difference between them.", ""))
     return lines
 
 
@@ -231,4 +234,14 @@ def render_battery(result: BatteryResult, *, unit: str = "") -> str:
             lines.extend(_wrap(n))
     lines.append("")
     lines.extend(textwrap.wrap(CAUTION, WIDTH - 1))
-    return "\n".join(line[:WIDTH] if len(line) > WIDTH else line for line in lines) + "\n"
+    return "\n".join(_fit(line) for line in lines) + "\n"
+
+
+def _fit(line: str) -> str:
+    """A line longer than the terminal is wrapped at spaces, never cut (a cut can turn 0.1416
+    into "0"); a single word longer than the width stays whole."""
+    if len(line) <= WIDTH:
+        return line
+    indent = " " * (len(line) - len(line.lstrip(" ")) + 2)
+    return "\n".join(textwrap.wrap(line, WIDTH, subsequent_indent=indent,
+                                    break_long_words=False, break_on_hyphens=False))

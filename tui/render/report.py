@@ -15,6 +15,7 @@ from typing import Any
 
 from lotwatch.tui.caution import CAUTION
 from lotwatch.tui.render.detector_text import detector_cell, detector_summary, settings_sentence
+from lotwatch.tui.render.numbers import pval
 from lotwatch.tui.render.safe_text import clean
 
 WIDTH = 80
@@ -63,10 +64,11 @@ def _shift(c: Any, group_width: int) -> str:
 # review as text / Markdown
 
 
-# (header, width, alignment); 79 characters with the separators
+# (header, width, alignment); 80 characters with the separators
+# p and q get the width of "<0.0001" (numbers are never cut; names are shortened with "~")
 _TEXT_COLS = (("char.", 11, "<"), ("by", 5, "<"), ("window", 9, "<"), ("k", 2, ">"),
-              ("F", 6, ">"), ("p", 6, ">"), ("q", 6, ">"), ("ω²", 4, ">"),
-              ("shift grp", 10, "<"), ("evid", 5, ">"), ("alert", 5, "<"))
+              ("F", 6, ">"), ("p", 7, ">"), ("q", 7, ">"), ("ω²", 4, ">"),
+              ("shift grp", 10, "<"), ("evid", 5, ">"), ("alert", 4, "<"))
 
 
 def _text_row(cells: list[str]) -> str:
@@ -99,7 +101,7 @@ def render_review_text(result: Any) -> str:
     for c in result.comparisons:
         lines.append(_text_row([
             clean(c.characteristic), clean(c.factor), c.window_short, str(c.k),
-            _f_cell(c, 6), fit(c.p_used, 6), fit(c.q, 6), _omega(c.omega_squared),
+            _f_cell(c, 6), pval(c.p_used), pval(c.q), _omega(c.omega_squared),
             _shift(c, 4), detector_cell(c), alert_tag(c)]))
     lines.append("")
     lines += _wrap("char.: characteristic; by: grouping factor. k: groups used. F: classical F; 'w' marks Welch's F, read where Bartlett's "
@@ -179,7 +181,7 @@ def family_table_md(result: Any) -> list[str]:
         f = c.welch_f if c.test == "Welch" else c.f
         lines.append("| " + " | ".join([
             md_escape(c.characteristic), md_escape(c.factor), md_escape(c.window_label),
-            str(c.k), str(c.n_total), c.test, fit(f, 8), fit(c.p_used, 8), fit(c.q, 8),
+            str(c.k), str(c.n_total), c.test, fit(f, 8), pval(c.p_used), pval(c.q),
             _omega(c.omega_squared), fit(c.eta_squared, 6),
             fit(c.largest_shift, 8), md_escape(c.largest_shift_group or ""),
             fit(c.detectable_shift, 8), fit(c.gate, 8), md_escape(detector_summary(c)),

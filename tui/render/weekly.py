@@ -9,6 +9,7 @@ import html
 from typing import TYPE_CHECKING, Any
 
 from lotwatch.tui.caution import CAUTION
+from lotwatch.tui.render.numbers import measured, pval
 from lotwatch.tui.render.report import (
     _omega,
     _status_lines,
@@ -32,16 +33,25 @@ def _anova_md(b: Any) -> list[str]:
             ("Total", a.df_between + a.df_within, a.ss_total, None, None, None)]
     out = ["| source | df | SS | MS | F | p |", "|---|---|---|---|---|---|"]
     for name, df, ss_, ms, f, p in rows:
-        out.append(f"| {name} | {df} | {fit(ss_, 10)} | {fit(ms, 10)} | {fit(f, 8)} | {fit(p, 8)} |")
+        p_cell = pval(p) if p is not None else "-"
+        out.append(f"| {name} | {df} | {fit(ss_, 10)} | {fit(ms, 10)} | {fit(f, 8)} | {p_cell} |")
     return out
 
 
-def _groups_rows(b: Any) -> list[list[str]]:
-    return [[g.name, str(g.n), fit(g.mean, 10), fit(g.sd, 8), fit(g.ci_low, 10),
-             fit(g.ci_high, 10), fit(g.diff_from_others, 8)] for g in b.groups]
+def _groups_rows(b: Any, resolution: str) -> list[list[str]]:
+    """Group rows with the decimals of the resolution (never rounded to significant figures:
+    a mean of 500.04 must not read "500")."""
+    return [[g.name, "–" if g.lots is None else f"{g.lots:,}", f"{g.n:,}",
+             measured(g.mean, resolution), measured(g.sd, resolution),
+             measured(g.ci_low, resolution), measured(g.ci_high, resolution),
+             measured(g.diff_from_others, resolution)] for g in b.groups]
 
 
-GROUP_HEAD = ["group", "n", "mean", "sd", "CI low", "CI high", "vs others"]
+def group_head(unit: str) -> list[str]:
+    """The group table's header, with the unit beside every size."""
+    u = f" ({unit})" if unit else ""
+    return ["group", "lots", "values", f"mean{u}", f"SD{u}", f"CI low{u}", f"CI high{u}",
+            f"vs others{u}"]
 
 
 def _events_text(events: list[Any]) -> list[str]:
@@ -80,9 +90,12 @@ def report_markdown(rep: WeeklyReport) -> str:
                   f"{md_escape(c.factor)}", "", md_escape(alert_sentence(c)), "",
                   "### ANOVA table", ""]
         lines += _anova_md(b)
-        lines += ["", "### Groups", "", "| " + " | ".join(GROUP_HEAD) + " |",
-                  "|" + "---|" * len(GROUP_HEAD)]
-        lines += ["| " + " | ".join(md_escape(x) for x in row) + " |" for row in _groups_rows(b)]
+        ch = s.detail.characteristic
+        head = group_head(ch.unit)
+        lines += ["", "### Groups", "", "| " + " | ".join(md_escape(x) for x in head) + " |",
+                  "|" + "---|" * len(head)]
+        lines += ["| " + " | ".join(md_escape(x) for x in row) + " |"
+                  for row in _groups_rows(b, ch.resolution)]
         lines += ["", "### Checks, post-hoc comparisons and capability (full battery)", "",
                   "```text", render_battery(b, unit=s.detail.characteristic.unit).rstrip(), "```",
                   "", "### Trend of each group's mean per window", "", "```text",
@@ -142,7 +155,7 @@ def report_html(rep: WeeklyReport) -> str:
     for c in r.comparisons:
         f = c.welch_f if c.test == "Welch" else c.f
         rows.append([c.characteristic, c.factor, c.window_label, c.k, c.n_total, c.test,
-                     fit(f, 8), fit(c.p_used, 8), fit(c.q, 8), _omega(c.omega_squared),
+                     fit(f, 8), pval(c.p_used), pval(c.q), _omega(c.omega_squared),
                      fit(c.eta_squared, 6), fit(c.largest_shift, 8), c.largest_shift_group or "",
                      fit(c.detectable_shift, 8), fit(c.gate, 8), alert_tag(c) or "-"])
     parts.append(_html_table(head, rows))
@@ -157,11 +170,12 @@ def report_html(rep: WeeklyReport) -> str:
                   f'<p class="alert">{e(alert_sentence(c))}</p>', "<h3>ANOVA table</h3>",
                   _html_table(["source", "df", "SS", "MS", "F", "p"], [
                       ["Between groups", a.df_between, fit(a.ss_between, 10),
-                       fit(a.ms_between, 10), fit(a.f, 8), fit(a.p, 8)],
+                       fit(a.ms_between, 10), fit(a.f, 8), pval(a.p)],
                       ["Within groups", a.df_within, fit(a.ss_within, 10), fit(a.ms_within, 10),
                        "", ""],
                       ["Total", a.df_between + a.df_within, fit(a.ss_total, 10), "", "", ""]]),
-                  "<h3>Groups</h3>", _html_table(GROUP_HEAD, _groups_rows(b)),
+                  "<h3>Groups</h3>", _html_table(group_head(s.detail.characteristic.unit),
+                                                     _groups_rows(b, s.detail.characteristic.resolution)),
                   "<h3>Trend of each group's mean per window</h3>",
                   f"<figure>{trend_chart_svg(s.trend)}</figure>",
                   "<h3>Checks, post-hoc comparisons and capability (full battery)</h3>",

@@ -35,6 +35,7 @@ from lotwatch.stats import monitor as mon
 from lotwatch.stats.monitor import ReviewSettings
 from lotwatch.stats.results import json_safe
 from lotwatch.tui.caution import CAUTION
+from lotwatch.tui.render.numbers import p_is
 from lotwatch.tui.services.review_detail import (  # noqa: F401  (re-exported for callers)
     ComparisonDetail,
     LatestWindow,
@@ -185,7 +186,7 @@ def alert_text(characteristic: str, factor: str, groups: list[str], direction: s
     who = ", ".join(groups) if groups else "one group"
     size_s = f"{size:.4g} {unit}".strip() if size is not None else "an unknown amount"
     frac = f" ({fraction:.0%} of the tolerance)" if fraction is not None else ""
-    qs = f", q = {q:.3g}" if q is not None else ""
+    qs = f", {p_is(q, 'q')}" if q is not None else ""  # one q style (tui/render/numbers.py)
     how = f"{direction} than" if direction else "differs from"
     return (f"{characteristic} by {factor}: {who} {how} the others by {size_s}{frac} in "
             f"{window}{qs}. {CAUTION}")

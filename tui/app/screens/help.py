@@ -21,8 +21,8 @@ MEANINGS = [
      "Between = variation of group means around the grand mean, Within = variation of lots "
      "around their own group mean, Total = both. df = degrees of freedom (k-1, N-k, N-1); SS = "
      "sum of squares; MS = SS/df; F = MS Between / MS Within; p = chance of an F this large if "
-     "all groups had the same mean. F crit = the F that p = alpha would need; F > F crit means "
-     "the group means differ at that alpha."),
+     "all groups had the same mean. Critical F = the F at which p would equal alpha; an F above "
+     "the critical F means the group means differ at that alpha."),
     ("Companion tests",
      "Welch = ANOVA that does not assume equal spread; Kruskal-Wallis = rank test that does not "
      "assume normal data; variance check = Brown-Forsythe test of equal spread; residual check "

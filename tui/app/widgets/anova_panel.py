@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from lotwatch.tui.render.numbers import num, pval
+from lotwatch.tui.render.numbers import num, p_is, pval
 from lotwatch.tui.render.safe_text import clean
 from lotwatch.tui.services.view_models import DetailView
 from rich.console import Group, RenderableType
@@ -29,8 +29,8 @@ def decision_text(detail: DetailView) -> Text:
     """The ANOVA's decision sentence, with the critical F when the sentence lacks it."""
     a = detail.battery.anova
     decision = Text("Decision: ", style="bold") + Text(clean(a.decision))
-    if a.f_crit is not None and "F crit" not in a.decision:
-        decision.append(f" (F crit at alpha {a.alpha:g} = {num(a.f_crit)})")
+    if a.f_crit is not None and "critical F" not in a.decision:
+        decision.append(f" (critical F at alpha {a.alpha:g}: {num(a.f_crit)})")
     return decision
 
 
@@ -42,13 +42,13 @@ def companion_lines(detail: DetailView) -> list[Text]:
     w = b.welch
     if w.f is not None:
         lines.append(Text(f"Welch: F = {num(w.f)} on {num(w.df_between, 3)}, "
-                          f"{num(w.df_within, 4)} df, p = {pval(w.p)}"))
+                          f"{num(w.df_within, 4)} df, {p_is(w.p)}"))
     else:
         lines.append(Text(f"Welch: {clean(w.status)}"))
     k = b.kruskal
     if k.statistic is not None:
         lines.append(Text(f"Kruskal-Wallis: H = {num(k.statistic)} on {num(k.df, 3)} df, "
-                          f"p = {pval(k.p)}"))
+                          f"{p_is(k.p)}"))
     else:
         lines.append(Text(clean(k.sentence or f"Kruskal-Wallis: {k.status}")))
     lines.append(Text("Variance check: ", style="bold")
