@@ -29,6 +29,7 @@ if TYPE_CHECKING:
     from lotwatch.store.connection import Store
 
 TAG = "__tag:"
+JUDGE_SLICE = 100_000  # entries judged against the stored lots at once
 
 
 @dataclass
@@ -158,7 +159,15 @@ def plan_values(store: Store, values: pl.DataFrame, tag_keys: list[str], *, sour
     plan = Plan(entries=good.drop("flag", "value"), tag_keys=tag_keys, problems=problems,
                 duplicates=0, refused_values=refused_values, rounded=rounded,
                 values=int(vals.height))
-    _judge_stored(store.conn, plan, source, required)
+    # stored lots are judged a slice of entries at a time, so a re-import of a big file never
+    # holds all its stored rows in memory at once
+    kept = []
+    whole = plan.entries
+    for start in range(0, whole.height, JUDGE_SLICE):
+        plan.entries = whole.slice(start, JUDGE_SLICE)
+        _judge_stored(store.conn, plan, source, required)
+        kept.append(plan.entries)
+    plan.entries = pl.concat(kept) if kept else whole
     refuse_overflowing_plan(store.conn, plan.entries, [f.name for f in factors], TAG)
     return plan
 

@@ -274,3 +274,20 @@ def test_rows_of_a_stored_lot_may_omit_its_required_tags(lab, tmp_path):
                  "A,cap_torque,2.05,2026-11-03T08:20:00Z\n")
     assert import_file(lab, kept).stored == 1
     assert lab.check().ok
+
+
+def test_stored_lots_are_judged_in_slices(lab, tmp_path, monkeypatch):
+    from lotwatch.store import bulk_plan
+
+    f = write(tmp_path / "a.csv", HEADER + "\n" + rows(30))
+    import_file(lab, f)
+    monkeypatch.setattr(bulk_plan, "JUDGE_SLICE", 4)  # 15 entries: four slices
+    more = write(tmp_path / "b.csv", HEADER + "\n" + rows(30) + rows(6, start=30)
+                 + "L00001,fill_volume,500.9,2026-11-03T08:15:00Z,S,L1,e\n")
+    with pytest.raises(BadInput) as err:  # the conflict in the last slice is found
+        import_file(lab, more)
+    assert [p.row for p in err.value.problems] == [3]
+    fine = write(tmp_path / "c.csv", HEADER + "\n" + rows(30) + rows(6, start=30))
+    again = import_file(lab, fine)
+    assert (again.stored, again.duplicates) == (6, 30)
+    assert lab.check().ok
