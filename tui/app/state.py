@@ -8,6 +8,10 @@ from __future__ import annotations
 
 from dataclasses import dataclass, replace
 from datetime import UTC, date, datetime, timedelta
+from typing import TYPE_CHECKING, Protocol
+
+if TYPE_CHECKING:
+    from lotwatch.tui.services.view_models import AlertsView, DetailView, Overview, ReviewView
 
 from lotwatch.stats.weeks import iso_week_label, parse_iso_week
 
@@ -77,3 +81,25 @@ def step_week(week: str | None, step: int) -> str | None:
     target = shift_week(week or this_week, step)
     monday, now = parse_week(target), parse_week(this_week)
     return None if monday is None or now is None or monday >= now else target
+
+
+class AppState(Protocol):
+    """What screens read from the app (its reactive attributes); they never assign them."""
+
+    overview: Overview | None
+    detail: DetailView | None
+    detail_problem: str
+    review: ReviewView | None
+    review_problem: str
+    alerts: AlertsView | None
+    view: ViewState
+    review_week: str | None
+    computing: bool
+    store_note: str
+    last_tags: dict[str, str]
+    read_only: bool
+    user: str
+
+    def window_text(self) -> str: ...
+    def window_kind(self) -> str: ...
+    def refuse_read_only(self, what: str) -> None: ...

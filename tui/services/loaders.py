@@ -67,7 +67,8 @@ def _comparison_row(c: ComparisonSummary) -> ComparisonRow:
         n_total=c.n_total, f=c.f, p=c.p, welch_p=c.welch_p, q=c.q,
         omega_squared=c.omega_squared, largest_shift=c.largest_shift,
         largest_shift_group=c.largest_shift_group, detectable_shift=c.detectable_shift,
-        alert_state=c.alert_state, status=c.status, alert_id=c.alert_id,
+        alert_state=c.alert_state, status=c.status, alert_id=c.alert_id, unit=c.unit,
+        groups=", ".join(c.groups) or c.largest_shift_group, direction=c.direction, gate=c.gate,
     )
 
 

@@ -59,6 +59,10 @@ class ComparisonRow:
     alert_state: str | None
     status: str
     alert_id: int | None = None
+    unit: str = ""
+    groups: str | None = None  # the groups driving the difference, largest shift first
+    direction: str | None = None  # "higher" | "lower"
+    gate: float | None = None  # the practical size an alert needs (min shift)
 
 
 @dataclass(frozen=True)

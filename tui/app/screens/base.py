@@ -1,45 +1,21 @@
 """What every full screen of the app shares: typed access to the app's state, the keys that work
-everywhere except in forms, the status line and the "terminal too small" notice."""
+everywhere except in forms, and the "terminal too small" notice."""
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING, Protocol, cast
+from collections.abc import Iterator
+from typing import cast
 
 from lotwatch.tui.app import messages as msg
+from lotwatch.tui.app.state import AppState
 from rich.text import Text
-from textual.app import ComposeResult
+from textual.app import ComposeResult, SystemCommand
 from textual.binding import Binding
 from textual.events import Resize
 from textual.screen import Screen
 from textual.widgets import Footer, Static
 
-if TYPE_CHECKING:
-    from lotwatch.tui.app.state import ViewState
-    from lotwatch.tui.services.view_models import AlertsView, DetailView, Overview, ReviewView
-
 MIN_WIDTH, MIN_HEIGHT = 80, 24
-
-
-class AppState(Protocol):
-    """What screens read from the app (its reactive attributes); they never assign them."""
-
-    overview: Overview | None
-    detail: DetailView | None
-    detail_problem: str
-    review: ReviewView | None
-    review_problem: str
-    alerts: AlertsView | None
-    view: ViewState
-    review_week: str | None
-    computing: bool
-    store_note: str
-    last_tags: dict[str, str]
-    read_only: bool
-    user: str
-
-    def window_text(self) -> str: ...
-    def window_kind(self) -> str: ...
-    def refuse_read_only(self, what: str) -> None: ...
 
 
 class TooSmall(Static):
@@ -78,6 +54,12 @@ class LotwatchScreen(Screen[None]):
                 "to show its tables without cutting numbers. Enlarge the window (q quits).",
                 justify="center"))
 
+    def palette_commands(self) -> Iterator[SystemCommand]:
+        """This screen's commands for the palette (only ones that work here)."""
+        if not self.state.read_only:
+            yield SystemCommand("Log a lot", "Open the lot entry form (n)", self.action_new_lot)
+        yield SystemCommand("Help", "Keys and what every number means (?)", self.action_help)
+
     def action_new_lot(self) -> None:
         from lotwatch.tui.app.screens.entry import LotEntryScreen
 
@@ -115,4 +97,4 @@ class LotwatchScreen(Screen[None]):
     def action_help(self) -> None:
         from lotwatch.tui.app.screens.help import HelpScreen
 
-        self.app.push_screen(HelpScreen())
+        self.app.push_screen(HelpScreen(shared=list(LotwatchScreen.BINDINGS)))

@@ -20,6 +20,7 @@ from rich.console import Group, RenderableType
 from rich.text import Text
 from textual.app import ComposeResult
 from textual.binding import Binding
+from textual.events import Resize
 from textual.widgets import DataTable, Static
 
 
@@ -67,7 +68,7 @@ class BoardScreen(LotwatchScreen):
             return
         table = self.query_one(BoardTable)
         v = self.state.view
-        table.show(ov.board, (v.characteristic, v.factor))
+        table.show(ov.board, (v.characteristic, v.factor), wide=self.size.width >= 100)
         if not ov.board:
             text = ("Reading the store…" if ov.partial else
                     "Nothing to show yet: no characteristic has lots in the window. Log lots "
@@ -75,6 +76,10 @@ class BoardScreen(LotwatchScreen):
             self.query_one("#preview", Static).update(Text(text))
             return
         self._show_preview()
+
+    def on_resize(self, event: Resize) -> None:
+        super().on_resize(event)
+        self._show_board()
 
     def _row(self) -> BoardRow | None:
         ov = self.state.overview

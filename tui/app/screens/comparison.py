@@ -6,6 +6,8 @@ reference, the spread view and the companion tests. The screen shows only comput
 
 from __future__ import annotations
 
+from collections.abc import Iterator
+
 from lotwatch.tui.app import messages as msg
 from lotwatch.tui.app.screens.base import LotwatchScreen
 from lotwatch.tui.app.widgets.anova_panel import AnovaPanel, anova_table, decision_text
@@ -16,7 +18,7 @@ from lotwatch.tui.render.safe_text import clean
 from lotwatch.tui.services.view_models import DetailView
 from rich.console import Group
 from rich.text import Text
-from textual.app import ComposeResult
+from textual.app import ComposeResult, SystemCommand
 from textual.binding import Binding
 from textual.containers import Container, Vertical, VerticalScroll
 from textual.widgets import DataTable, Static, TabbedContent, TabPane
@@ -136,6 +138,17 @@ class ComparisonScreen(LotwatchScreen):
             self.query_one("#cmp-anova", Static).update(Text(clean(message, 300)))
 
     # --- keys ------------------------------------------------------------------------------
+
+    def palette_commands(self) -> Iterator[SystemCommand]:
+        yield from super().palette_commands()
+        yield SystemCommand("Next factor", "Group by the next factor (f)",
+                            lambda: self.action_factor(1))
+        yield SystemCommand("Next window kind", "Trailing days, last lots, calendar week (w)",
+                            self.action_next_window)
+        yield SystemCommand("Next significance level", "alpha 0.05 / 0.01 / 0.10 (s)",
+                            self.action_next_alpha)
+        yield SystemCommand("Lots of the highlighted group", "List, correct, void (l)",
+                            self.action_lots)
 
     def _choose(self, **changes: object) -> None:
         self.post_message(msg.ChooseView(self.state.view.but(**changes)))

@@ -22,8 +22,8 @@ from lotwatch.tui.app.entry_checks import (
     spec_notes,
     split_values,
 )
-from lotwatch.tui.app.screens.base import AppState
 from lotwatch.tui.app.screens.confirm import ConfirmScreen
+from lotwatch.tui.app.state import AppState
 from lotwatch.tui.app.widgets.tag_input import TagInput
 from lotwatch.tui.render.safe_text import clean
 from lotwatch.tui.services.view_models import CharacteristicInfo, EntryDraft, Overview

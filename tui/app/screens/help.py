@@ -78,31 +78,37 @@ class HelpScreen(ModalScreen[None]):
 
     BINDINGS = [Binding("escape,q,question_mark", "close", "Close help")]
 
+    def __init__(self, shared: list[BindingType] | None = None) -> None:
+        super().__init__()
+        self.shared = list(shared or [])  # the keys every full screen has (n, ?)
+
     def compose(self) -> ComposeResult:
         from lotwatch.tui.app.screens.acknowledge import AcknowledgeScreen
-        from lotwatch.tui.app.screens.alerts import AlertsScreen
-        from lotwatch.tui.app.screens.base import LotwatchScreen
-        from lotwatch.tui.app.screens.board import BoardScreen
-        from lotwatch.tui.app.screens.comparison import ComparisonScreen
         from lotwatch.tui.app.screens.entry import LotEntryScreen
         from lotwatch.tui.app.screens.lots import LotsScreen
-        from lotwatch.tui.app.screens.review import ReviewScreen
+        from lotwatch.tui.app.screens.reason import ReasonScreen
         from lotwatch.tui.app.widgets.tag_input import TagInput
 
         text = Text()
         text.append("lotwatch help (↑/↓ scroll, Esc close)\n\n", style="bold")
         text.append(CAUTION + "\n\n", style="bold")
-        for title, bindings in [
-            ("Everywhere", list(type(self.app).BINDINGS) + list(LotwatchScreen.BINDINGS)),
-            ("Board (first screen)", BoardScreen.BINDINGS),
-            ("Comparison view", ComparisonScreen.BINDINGS),
+        # The app's screens come from its modes (importing them here would close a cycle
+        # through the screens' base, which opens this help).
+        modes = getattr(self.app, "MODES", {})
+        sections = [("Everywhere", list(getattr(self.app, "BINDINGS", [])) + self.shared)]
+        for title, mode in (("Board (first screen)", "board"), ("Comparison view", "comparison"),
+                            ("Weekly review", "review"), ("Alerts", "alerts")):
+            cls = modes.get(mode)
+            if isinstance(cls, type):
+                sections.append((title, list(cls.BINDINGS)))
+        sections += [
             ("Lots behind a group", LotsScreen.BINDINGS),
-            ("Weekly review", ReviewScreen.BINDINGS),
-            ("Alerts", AlertsScreen.BINDINGS),
+            ("Correct or void a value", ReasonScreen.BINDINGS),
             ("Lot entry form", LotEntryScreen.BINDINGS),
             ("Tag fields of the form", TagInput.BINDINGS),
             ("Acknowledge", AcknowledgeScreen.BINDINGS),
-        ]:
+        ]
+        for title, bindings in sections:
             text.append_text(binding_lines(title, bindings))
             text.append("\n")
         text.append("  ctrl+p      command palette: every main action by name\n\n")

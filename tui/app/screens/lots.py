@@ -7,7 +7,7 @@ from __future__ import annotations
 from typing import cast
 
 from lotwatch.tui.app import messages as msg
-from lotwatch.tui.app.screens.base import AppState
+from lotwatch.tui.app.state import AppState
 from lotwatch.tui.app.widgets.caution import Caution
 from lotwatch.tui.app.widgets.compact import fill
 from lotwatch.tui.render.safe_text import clean, literal

@@ -8,7 +8,7 @@ from __future__ import annotations
 from typing import cast
 
 from lotwatch.tui.app import messages as msg
-from lotwatch.tui.app.screens.base import AppState
+from lotwatch.tui.app.state import AppState
 from lotwatch.tui.render.safe_text import clean
 from lotwatch.tui.services.view_models import LotValue
 from rich.text import Text

@@ -5,16 +5,18 @@ Enter drills into the main view for the highlighted comparison; k acknowledges i
 
 from __future__ import annotations
 
+from collections.abc import Iterator
+
 from lotwatch.tui.app import messages as msg
 from lotwatch.tui.app.screens.base import LotwatchScreen
 from lotwatch.tui.app.state import step_week
 from lotwatch.tui.app.widgets.caution import Caution
 from lotwatch.tui.app.widgets.compact import fill
-from lotwatch.tui.render.numbers import num, pval
+from lotwatch.tui.render.numbers import MISSING, num, pval
 from lotwatch.tui.render.safe_text import clean
 from lotwatch.tui.services.view_models import ComparisonRow, ReviewView
 from rich.text import Text
-from textual.app import ComposeResult
+from textual.app import ComposeResult, SystemCommand
 from textual.binding import Binding
 from textual.widgets import DataTable, Static
 
@@ -56,20 +58,25 @@ class ReviewScreen(LotwatchScreen):
         head.append(f"Weekly review {clean(review.window_label, 44)}", style="bold")
         head.append(f": {review.family_size} comparisons, q = {review.fdr_method.upper()} "
                     f"false-discovery-adjusted p (level {review.fdr_level:g}). "
-                    "[ ] week · Enter open · p record (opens/clears alerts) · k acknowledge")
+                    "gate = the shift an alert needs. [ ] week · Enter open · p record "
+                    "(opens/clears alerts) · k acknowledge")
         self.query_one("#review-head", Static).update(head)
         t = self.query_one(DataTable)
         keep = t.cursor_row
         self.rows = list(review.rows)
-        # p is left to the drill-in (Enter): at 80 columns the alert state needs the room.
-        headers = ["characteristic", "factor", "k", "n", "F", "q", "ω²", "shift", "alert"]
-        right = [False, False, True, True, True, True, True, True, False]
+        # p, k and effect sizes are left to the drill-in (Enter): at 80 columns the group, the
+        # shift with its unit, the gate an alert needs and the alert state need the room.
+        headers = ["characteristic", "factor", "n", "F", "q", "group", "shift", "gate", "alert"]
+        right = [False, False, True, True, True, False, True, True, False]
         rows, styles = [], []
         for r in self.rows:
             alert = r.alert_state or ("–" if r.status == "ok" else r.status)
-            rows.append([clean(r.characteristic, 16), clean(r.factor, 8), str(r.k),
-                         str(r.n_total), num(r.f, 3), pval(r.q),
-                         num(r.omega_squared, 2), num(r.largest_shift, 3), clean(alert, 15)])
+            group = clean(r.groups or "–", 10)
+            shift = MISSING if r.largest_shift is None else (
+                f"{num(r.largest_shift, 3)} {clean(r.unit, 4)}".strip())
+            rows.append([clean(r.characteristic, 14), clean(r.factor, 7), str(r.n_total),
+                         num(r.f, 3), pval(r.q), group, shift, num(r.gate, 2),
+                         clean(alert, 12)])
             hot = r.alert_state == "open"
             styles.append(["bold" if hot else ""] * 8 + ["bold reverse" if hot else ""])
         fill(t, headers, right, rows, keys=[str(i) for i in range(len(rows))], styles=styles)
@@ -81,6 +88,12 @@ class ReviewScreen(LotwatchScreen):
             return
         self.query_one("#review-head", Static).update(
             Text("Weekly review not computed: ", style="bold") + Text(clean(message, 300)))
+
+    def palette_commands(self) -> Iterator[SystemCommand]:
+        yield from super().palette_commands()
+        if not self.state.read_only:
+            yield SystemCommand("Record the review", "Open, hold or clear alerts as this "
+                                "review decides (p)", self.action_record)
 
     def _current(self) -> ComparisonRow | None:
         t = self.query_one(DataTable)

@@ -23,16 +23,16 @@ def size_text(row: BoardRow) -> str:
     """The signed size at the characteristic's resolution with its unit ("+1.01 mL")."""
     if row.size is None:
         return MISSING
-    return f"{row.size:+.{decimals_of(row.resolution)}f} {clean(row.unit, 5)}"
+    return f"{row.size:+.{decimals_of(row.resolution)}f} {clean(row.unit, 4)}"
 
 
 def board_cells(row: BoardRow) -> list[str]:
     group = MISSING
     if row.group:
-        group = f"{clean(row.group, 10)} {DIRECTION.get(row.direction or '', '')}".strip()
+        group = f"{clean(row.group, 9)} {DIRECTION.get(row.direction or '', '')}".strip()
     tol = MISSING if row.percent_of_tolerance is None else f"{row.percent_of_tolerance:.0f}%"
-    cells = [f"{MARKS.get(row.state, ' ')} {row.state}", clean(row.characteristic, 14),
-             clean(row.factor, 8), group, size_text(row), tol,
+    cells = [f"{MARKS.get(row.state, ' ')} {row.state}", clean(row.characteristic, 13),
+             clean(row.factor, 7), group, size_text(row), tol,
              MISSING if row.min_shift is None else fixed(row.min_shift,
                                                          decimals_of(row.resolution) - 1)]
     if row.evidence is not None or row.onset is not None:
@@ -49,7 +49,10 @@ class BoardTable(DataTable):
         self.cursor_type = "row"
         self.zebra_stripes = True
 
-    def show(self, rows: list[BoardRow], keep: tuple[str | None, str | None]) -> None:
+    def show(self, rows: list[BoardRow], keep: tuple[str | None, str | None], *,
+             wide: bool = True) -> None:
+        """Fill the table; below 100 columns the min shift is left to the preview's headline
+        (the q column must not be cut)."""
         detector = any(r.evidence is not None or r.onset is not None for r in rows)
         headers = ["state", "characteristic", "factor", "group", "size", "%tol", "min"]
         right = [False, False, False, False, True, True, True]
@@ -65,8 +68,12 @@ class BoardTable(DataTable):
                 c = c[:7] + c[-1:]
             cells.append(c)
             hot = r.state in (MEAN_ALERT, SPREAD_ALERT)
-            styles.append(["bold reverse" if hot else ""] + ["bold" if hot else ""] * (len(c) - 1))
+            styles.append(["bold reverse" if hot else ""] + ["bold" if hot else ""] * 10)
             keys.append(f"{r.characteristic}\x1f{r.factor}")
+        if not wide:
+            drop = headers.index("min")
+            headers, right = headers[:drop] + headers[drop + 1:], right[:drop] + right[drop + 1:]
+            cells = [c[:drop] + c[drop + 1:] for c in cells]
         fill(self, headers, right, cells, keys=keys, styles=styles)
         target = f"{keep[0]}\x1f{keep[1]}"
         row = keys.index(target) if target in keys else 0

@@ -10,7 +10,7 @@ from rich.text import Text
 from textual.widgets import Static
 
 if TYPE_CHECKING:
-    from lotwatch.tui.app.screens.base import AppState
+    from lotwatch.tui.app.state import AppState
 
 
 class StatusLine(Static):

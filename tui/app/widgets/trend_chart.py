@@ -55,9 +55,11 @@ class TrendChart(PlotextPlot):
             self.refresh()
             return
         marked = [g for g in flagged if g in levels]
-        title = f"mean per window ({unit}); "
-        title += (f"{FLAGGED_MARKER} = {', '.join(clean(g, 12) for g in marked)} (flagged), "
-                  f"{OTHER_MARKER} = others" if marked else f"{OTHER_MARKER} = groups")
+        # Short enough for a half-width chart (plotext drops a title that does not fit): the
+        # title is what names the flagged group when there is no colour.
+        title = (f"{FLAGGED_MARKER} = {clean(', '.join(marked), 24)} (flagged), "
+                 f"{OTHER_MARKER} = others" if marked else f"{OTHER_MARKER} = groups")
+        title += f" [{unit}]"
         plt.title(title)
         muted_label = "other groups"
         for level, pts in sorted(levels.items()):
