@@ -44,10 +44,25 @@ MEANINGS = [
      "When nothing is significant: the smallest shift of one group from the others that the F "
      "test would detect with 80% power at these group sizes and this within-group SD. "
      "'Nothing significant' with a large detectable shift means 'not enough data to tell'."),
-    ("States",
-     "alerting (!) = an alert on some factor that has not cleared (open or acknowledged); "
-     "watching = enough data and no open alert; "
-     "not enough data (·) = no comparison could be computed in the window."),
+    ("Board",
+     "Every characteristic x factor with data, most urgent first. States: mean alert (!) = an "
+     "open alert on group means; spread alert (!) = an open alert on spread; acknowledged (~) "
+     "= someone looked and noted what they did; watching = enough data and no alert; not "
+     "enough data (·) = the window's statistics could not be computed. group = the flagged "
+     "(or most shifted) group and its direction; size = its mean minus the mean of the other "
+     "lots, in the unit; %tol = |size| / (USL - LSL); min = the shift an alert needs; q = the "
+     "latest window's q-value."),
+    ("Comparison tabs",
+     "Pairs = every pair of groups by the recommended post-hoc test (difference, simultaneous "
+     "interval, adjusted p); Dunnett = each group against a reference you pick with g; Spread "
+     "= each group's SD against the pooled within-group SD (sqrt of MS Within). The chart draws "
+     "the flagged group with # and the others with ·, LSL, target and USL always on the "
+     "scale."),
+    ("Lots and corrections",
+     "l (or Enter on a group) lists the lots behind it in plant time, with who logged them and "
+     "their notes; c corrects and v voids a value with a required reason (kept with the "
+     "original in the audit trail, the same as lotwatch correct / void); h shows a value's "
+     "history. A void value stays stored but leaves every statistic."),
 ]
 
 
