@@ -356,3 +356,37 @@ async def test_the_palette_lists_only_commands_that_work_here(small_store):
             app.switch_mode("board")
             await pilot.pause()
         assert not [m for m in notifications(app) if "failed" in m or "Problem" in m]
+
+
+async def test_the_board_shows_the_detectors_evidence_onset_and_the_spread_alert(demo_copy):
+    """The demo's planted effects (store/demo.py): (a) RB-2's fill_volume drifts up from week
+    18, (b) the night shift's cap_torque spreads 2.5 times wider. The board shows the first as a
+    mean alert with its onset and the second as a spread alert; each row's evidence is the
+    largest stored detector statistic over its threshold for that comparison."""
+    from lotwatch.store import Store
+    from lotwatch.tui.services.detection import detector_status
+    from lotwatch.tui.services.view_models import SPREAD_ALERT
+
+    app = LotwatchApp(demo_copy)
+    async with app.run_test(size=(120, 40)) as pilot:
+        await _ready(pilot)
+        rows = {(r.characteristic, r.factor): r for r in app.overview.board}
+        shown = screen_text(app)
+        board = app.screen.query_one("#board")
+        headers = [c.label.plain.strip() for c in board.columns.values()]
+    with Store.open(demo_copy, read_only=True) as store:
+        status = detector_status(store)
+    top = rows[("fill_volume", "line")]
+    assert top.state == MEAN_ALERT and top.evidence >= 1 and top.onset
+    # The drift starts on day 119 of 182 (store/demo.py): the onset lies in the last 9 weeks.
+    spread = rows[("cap_torque", "shift")]
+    assert spread.state == SPREAD_ALERT and "night" in spread.group
+    assert spread.direction == "wider"
+    for (ch, fa), r in rows.items():
+        mine = [s.evidence for s in status if (s.characteristic, s.factor) == (ch, fa)
+                and s.evidence is not None]
+        if mine:
+            assert r.evidence == pytest.approx(max(mine), rel=1e-12)
+    assert headers == ["state", "characteristic", "factor", "group", "size", "%tol", "min",
+                       "evid", "onset", "q"]
+    assert "! spread alert" in shown

@@ -100,18 +100,25 @@ def test_the_board_first_then_log_a_lot_in_the_demo_at_80x24(tmux, demo_data_hom
     screen = tmux.wait_for("Log a lot")
     assert "site *" in screen and "fill_volume *" in screen  # the highlighted one first
     assert "cap_torque" in screen  # ... and the others: one lot, several characteristics
+    # Wait for each field to show what was typed before moving on (a loaded machine may
+    # still be drawing the form when keys arrive).
     tmux.type("Riverbend")
-    tmux.keys("Tab")
+    tmux.wait_for("site *         Riverbend")
+    tmux.keys("Tab", pause=0.4)
     tmux.type("RB-2")
-    tmux.keys("Tab")
+    tmux.wait_for("line *         RB-2")
+    tmux.keys("Tab", pause=0.4)
     tmux.type("early")
-    tmux.keys("Tab")
+    tmux.wait_for("shift *        early")
+    tmux.keys("Tab", pause=0.4)
     tmux.type("500.x")
     screen = tmux.wait_for("is not a number")
     tmux.keys("BSpace")
     tmux.type("3")
-    tmux.keys("Tab")
+    tmux.wait_for("fill_volume *  500.3")
+    tmux.keys("Tab", pause=0.4)
     tmux.type("TMUX-1")
+    tmux.wait_for("Lot ID         TMUX-1")
     tmux.keys("Enter")
     screen = tmux.wait_for("Stored lot TMUX-1")
     assert "Log a lot" not in screen

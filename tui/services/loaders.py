@@ -26,6 +26,7 @@ from lotwatch.tui.services.view_models import (
     ComparisonRow,
     DetailRequest,
     DetailView,
+    DetectorLine,
     FactorInfo,
     Overview,
     RecentLot,
@@ -52,7 +53,10 @@ def _alert_row(a: Alert) -> AlertRow:
     return AlertRow(id=a.id, characteristic=a.characteristic, factor=a.factor, state=a.state,
                     opened_at=a.opened_at, opened_window=a.opened_window,
                     last_window=a.last_window, groups=", ".join(a.groups) or None,
-                    direction=a.direction, size=a.size, q=a.q, updated_at=a.updated_at)
+                    direction=a.direction, size=a.size, q=a.q, updated_at=a.updated_at,
+                    kind=getattr(a, "kind", "mean"), onset=getattr(a, "onset", None),
+                    evidence=getattr(a, "evidence", None),
+                    percent_of_tolerance=getattr(a, "percent_of_tolerance", None))
 
 
 def _event_row(e: AlertEvent) -> AlertEventRow:
@@ -175,6 +179,7 @@ def load_detail(path: Path, read_only: bool, request: DetailRequest) -> DetailVi
                               reference=request.reference)
         kind = review_settings(store, window=request.window).window
         recent = recent_lots(store, request.characteristic, request.factor)
+        detectors = detector_lines(store, request.characteristic, request.factor)
     trend = [
         TrendPoint(window_end=_day_text(r["window_end"]), level=str(r["level"]), n=int(r["n"]),
                    mean=float(r["mean"]))
@@ -191,7 +196,23 @@ def load_detail(path: Path, read_only: bool, request: DetailRequest) -> DetailVi
                       factor=d.factor, window_label=d.window_label, battery=d.battery,
                       trend=trend, grand_mean=d.grand_mean, lsl=d.lsl, target=d.target,
                       usl=d.usl, window_kind=kind, recent=recent, grand_means=grand_means,
-                      pooled_sd=pooled, spread=spread)
+                      pooled_sd=pooled, spread=spread, detectors=detectors)
+
+
+def detector_lines(store: Store, characteristic: str, factor: str) -> list[DetectorLine]:
+    """The comparison's detectors as stored (``detection.detector_status`` reads, never
+    recomputes), most evidence first; groups without enough history to be watched left out."""
+    from lotwatch.tui.services.detection import detector_status
+
+    lines = [DetectorLine(group=s.group, kind=s.kind, direction=s.direction,
+                          evidence=s.evidence,
+                          onset=s.onset.isoformat() if s.onset is not None else None,
+                          size=s.size, alarmed=s.alarmed)
+             for s in detector_status(store)
+             if s.characteristic == characteristic and s.factor == factor
+             and s.evidence is not None]
+    lines.sort(key=lambda d: -(d.evidence or 0.0))
+    return lines
 
 
 def spread_rows(battery: BatteryResult) -> tuple[float | None, list[SpreadRow]]:

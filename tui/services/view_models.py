@@ -91,6 +91,10 @@ class AlertRow:
     size: float | None
     q: float | None
     updated_at: str | None
+    kind: str = "mean"  # the detector that raised it: mean | spread
+    onset: str | None = None  # plant day the change is estimated to have begun
+    evidence: float | None = None  # detector statistic / threshold when last written
+    percent_of_tolerance: float | None = None
 
 
 @dataclass(frozen=True)
@@ -143,6 +147,19 @@ class RecentLot:
 
 
 @dataclass(frozen=True)
+class DetectorLine:
+    """One group's detector of the shown comparison: how close to its threshold, since when."""
+
+    group: str
+    kind: str  # mean | spread
+    direction: str | None  # higher | lower | wider
+    evidence: float | None  # statistic / threshold; 1 = crossed
+    onset: str | None  # plant day, YYYY-MM-DD
+    size: float | None  # change since the onset, in the unit
+    alarmed: bool
+
+
+@dataclass(frozen=True)
 class SpreadRow:
     """One group's SD against the pooled within-group SD (sqrt of MS Within)."""
 
@@ -171,6 +188,7 @@ class DetailView:
     grand_means: list[tuple[str, float]] = field(default_factory=list)  # (window end, mean)
     pooled_sd: float | None = None
     spread: list[SpreadRow] = field(default_factory=list)
+    detectors: list[DetectorLine] = field(default_factory=list)  # most evidence first
 
 
 @dataclass(frozen=True)

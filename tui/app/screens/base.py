@@ -48,6 +48,7 @@ class LotwatchScreen(Screen[None]):
         small = w < MIN_WIDTH or h < MIN_HEIGHT
         self.set_class(small, "-too-small")
         self.set_class(w >= 120, "-wide")
+        self.set_class(h < 32, "-short")
         if small:
             self.query_one(TooSmall).update(Text(
                 f"Terminal too small: {w}×{h}. lotwatch needs at least {MIN_WIDTH}×{MIN_HEIGHT} "

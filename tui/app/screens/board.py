@@ -33,11 +33,15 @@ def headline(row: BoardRow) -> Text:
         t.append(f"{clean(row.group, 24)} {DIRECTION.get(row.direction or '', '')}",
                  style="bold")
         t.append(f" by {size_text(row)}")
+        if row.onset:
+            t.append(f" since {clean(row.onset, 10)}")
         extra = []
         if row.percent_of_tolerance is not None:
             extra.append(f"{row.percent_of_tolerance:.0f}% of tolerance")
         if row.min_shift is not None:
             extra.append(f"min shift {fixed(row.min_shift, decimals_of(row.resolution) - 1)}")
+        if row.evidence is not None:
+            extra.append(f"evidence {row.evidence:.2f} of threshold")
         if extra:
             t.append(f" ({'; '.join(extra)})")
         t.append(f", q {pval(row.q)}.")

@@ -24,6 +24,28 @@ from textual.containers import Container, Vertical, VerticalScroll
 from textual.widgets import DataTable, Static, TabbedContent, TabPane
 
 TABS = ["chart", "pairs", "dunnett", "spread", "tests"]
+EVIDENCE_LINES = 4
+
+
+def evidence_text(detail: DetailView, limit: int = EVIDENCE_LINES) -> Text:
+    """The detectors under the chart: each group's evidence as a fraction of its threshold
+    (1 = crossed), direction, kind and estimated onset; most evidence first."""
+    out = Text(no_wrap=False)
+    if not detail.detectors:
+        out.append("Detector evidence: none stored yet (a review advances the detectors).",
+                   style="italic")
+        return out
+    out.append("Evidence (1 = threshold): ", style="bold")
+    for i, d in enumerate(detail.detectors[:limit]):
+        if i:
+            out.append(" · ")
+        part = f"{clean(d.group, 12)} {d.kind} {clean(d.direction or '', 6)} {d.evidence:.2f}"
+        if d.onset and d.evidence:
+            part += f" since {d.onset}"
+        out.append(part, style="bold" if d.alarmed else "")
+        if d.alarmed:
+            out.append(" (alarm)", style="bold")
+    return out
 
 
 class ComparisonScreen(LotwatchScreen):
@@ -62,6 +84,7 @@ class ComparisonScreen(LotwatchScreen):
                     # import off the first paint.
                     yield Static("The chart appears once the comparison is computed.",
                                  id="chart-wait")
+                    yield Static("", id="evidence", classes="tab-title")
                 with TabPane("2 Pairs", id="pairs"):
                     yield Static("", id="pairs-title", classes="tab-title")
                     yield PairwiseTable(id="pairs-table")
@@ -106,7 +129,8 @@ class ComparisonScreen(LotwatchScreen):
                 "w, or another factor with f."))
         else:
             if b.anova.df_within > 0:
-                parts.append(anova_table(detail))
+                # Below 32 rows the chart needs the Total row's line (Tests has it).
+                parts.append(anova_table(detail, total=self.size.height >= 32))
             parts.append(decision_text(detail))
         self.query_one("#cmp-anova", Static).update(Group(*parts))
         self.query_one(AnovaPanel).show(detail)
@@ -119,6 +143,8 @@ class ComparisonScreen(LotwatchScreen):
         if changed:
             self.query_one("#tests-scroll", VerticalScroll).scroll_home(animate=False)
         self._show_chart(detail)
+        self.query_one("#evidence", Static).update(
+            evidence_text(detail, 2 if self.size.height < 32 else EVIDENCE_LINES))
 
     def _show_chart(self, detail: DetailView) -> None:
         from lotwatch.tui.app.widgets.trend_chart import TrendChart
@@ -130,7 +156,7 @@ class ComparisonScreen(LotwatchScreen):
             return
         self.query_one("#chart-wait", Static).display = False
         self.query_one("#chart", TabPane).mount(
-            TrendChart(id="trend-chart", pending=(detail, flagged)))
+            TrendChart(id="trend-chart", pending=(detail, flagged)), before="#evidence")
 
     def _show_problem(self, message: str) -> None:
         if message:

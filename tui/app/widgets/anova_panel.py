@@ -11,8 +11,9 @@ from rich.text import Text
 from textual.widgets import Static
 
 
-def anova_table(detail: DetailView) -> Table:
-    """Between / Within / Total with df, SS, MS, F and p (NIST/SEMATECH §7.4.3 layout)."""
+def anova_table(detail: DetailView, *, total: bool = True) -> Table:
+    """Between / Within / Total with df, SS, MS, F and p (NIST/SEMATECH §7.4.3 layout); the
+    Total row (their sum) may be left out where rows are scarce."""
     a = detail.battery.anova
     t = Table(box=None, pad_edge=False, padding=(0, 1), show_edge=False, header_style="bold")
     t.add_column("Source")
@@ -21,7 +22,8 @@ def anova_table(detail: DetailView) -> Table:
     t.add_row("Between", str(a.df_between), num(a.ss_between), num(a.ms_between), num(a.f),
               pval(a.p))
     t.add_row("Within", str(a.df_within), num(a.ss_within), num(a.ms_within), "", "")
-    t.add_row("Total", str(a.df_between + a.df_within), num(a.ss_total), "", "", "")
+    if total:
+        t.add_row("Total", str(a.df_between + a.df_within), num(a.ss_total), "", "", "")
     return t
 
 

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from lotwatch.tui.app.widgets.compact import fill
-from lotwatch.tui.render.numbers import MISSING, decimals_of, fixed, num, pval
+from lotwatch.tui.render.numbers import MISSING, decimals_of, fixed, pval
 from lotwatch.tui.render.safe_text import clean
 from lotwatch.tui.services.view_models import (
     ACKNOWLEDGED,
@@ -16,7 +16,7 @@ from textual.widgets import DataTable
 
 # Marks keep the state readable without colour (NO_COLOR); the words say it outright.
 MARKS = {MEAN_ALERT: "!", SPREAD_ALERT: "!", ACKNOWLEDGED: "~", NOT_ENOUGH: "·"}
-DIRECTION = {"higher": "high", "lower": "low"}
+DIRECTION = {"higher": "high", "lower": "low", "wider": "wider"}
 
 
 def size_text(row: BoardRow) -> str:
@@ -26,17 +26,25 @@ def size_text(row: BoardRow) -> str:
     return f"{row.size:+.{decimals_of(row.resolution)}f} {clean(row.unit, 4)}"
 
 
+def evidence_text(evidence: float | None) -> str:
+    """Evidence as a fraction of the threshold in four characters ("0.56", "8.90", "20")."""
+    if evidence is None:
+        return MISSING
+    return f"{evidence:.0f}" if evidence >= 10 else f"{evidence:.2f}"
+
+
 def board_cells(row: BoardRow) -> list[str]:
     group = MISSING
     if row.group:
-        group = f"{clean(row.group, 9)} {DIRECTION.get(row.direction or '', '')}".strip()
+        group = f"{clean(row.group, 7)} {DIRECTION.get(row.direction or '', '')}".strip()
     tol = MISSING if row.percent_of_tolerance is None else f"{row.percent_of_tolerance:.0f}%"
     cells = [f"{MARKS.get(row.state, ' ')} {row.state}", clean(row.characteristic, 13),
              clean(row.factor, 7), group, size_text(row), tol,
              MISSING if row.min_shift is None else fixed(row.min_shift,
                                                          decimals_of(row.resolution) - 1)]
     if row.evidence is not None or row.onset is not None:
-        cells += [num(row.evidence, 2), clean(row.onset or MISSING, 10)]
+        cells += [evidence_text(row.evidence),
+                  MISSING if not row.onset else clean(row.onset[5:], 5)]
     cells.append(pval(row.q))
     return cells
 
@@ -51,8 +59,8 @@ class BoardTable(DataTable):
 
     def show(self, rows: list[BoardRow], keep: tuple[str | None, str | None], *,
              wide: bool = True) -> None:
-        """Fill the table; below 100 columns the min shift is left to the preview's headline
-        (the q column must not be cut)."""
+        """Fill the table; below 100 columns the min shift and the onset are left to the
+        preview's headline (the q column must not be cut)."""
         detector = any(r.evidence is not None or r.onset is not None for r in rows)
         headers = ["state", "characteristic", "factor", "group", "size", "%tol", "min"]
         right = [False, False, False, False, True, True, True]
@@ -70,10 +78,13 @@ class BoardTable(DataTable):
             hot = r.state in (MEAN_ALERT, SPREAD_ALERT)
             styles.append(["bold reverse" if hot else ""] + ["bold" if hot else ""] * 10)
             keys.append(f"{r.characteristic}\x1f{r.factor}")
-        if not wide:
-            drop = headers.index("min")
-            headers, right = headers[:drop] + headers[drop + 1:], right[:drop] + right[drop + 1:]
-            cells = [c[:drop] + c[drop + 1:] for c in cells]
+        if not wide:  # the headline under the table gives both
+            for name in ("min", "onset"):
+                if name in headers:
+                    drop = headers.index(name)
+                    headers = headers[:drop] + headers[drop + 1:]
+                    right = right[:drop] + right[drop + 1:]
+                    cells = [c[:drop] + c[drop + 1:] for c in cells]
         fill(self, headers, right, cells, keys=keys, styles=styles)
         target = f"{keep[0]}\x1f{keep[1]}"
         row = keys.index(target) if target in keys else 0

@@ -16,6 +16,7 @@ FLAGGED_MARKER = "#"
 OTHER_MARKER = "·"
 GRAND_MARKER = "-"
 LIMIT_MARKERS = {"LSL": "=", "target": ":", "USL": "="}
+ONSET_MARKER = "|"
 Y_TICKS = 5
 
 
@@ -82,6 +83,12 @@ class TrendChart(PlotextPlot):
                 values.append(limit)
         lo, hi = min(values), max(values)
         pad = (hi - lo) * 0.05 or 1.0
+        onset = next((d.onset for d in detail.detectors
+                      if d.onset and d.group in marked and d.evidence), None)
+        if onset and dates[0] <= onset <= dates[-1]:
+            # The estimated onset of the flagged group's change, a vertical line of "|".
+            plt.plot([onset, onset], [lo - pad, hi + pad], marker=ONSET_MARKER, label="onset",
+                     color="magenta")
         plt.ylim(lo - pad, hi + pad)
         ticks, labels = y_ticks(lo - pad, hi + pad,
                                 max(decimals_of(detail.characteristic.resolution) - 1, 0))
