@@ -18,6 +18,7 @@ from __future__ import annotations
 
 import os
 import secrets
+import shutil
 import sqlite3
 from dataclasses import dataclass
 from datetime import UTC, datetime
@@ -76,6 +77,27 @@ def _kept_path(target: Path) -> Path:
     return candidate
 
 
+def _keep_copy(target: Path, timeout: float) -> Path:
+    """Save the store as it is now beside it (through SQLite; a damaged store byte for byte)."""
+    kept = _kept_path(target)
+    current = opening.connect(target, "ro", timeout)
+    keep = opening.connect(kept, "rwc", timeout)
+    try:
+        current.backup(keep)
+        copied = True
+    except sqlite3.DatabaseError:
+        copied = False
+    finally:
+        keep.close()
+        current.close()
+    if not copied:
+        # Only once no connection of ours is open on the store: closing another descriptor of
+        # a file drops this process's POSIX locks on it (sqlite.org/howtocorrupt.html, 2.2).
+        kept.unlink(missing_ok=True)
+        shutil.copyfile(target, kept)
+    return kept
+
+
 def _copy_pages(src: sqlite3.Connection, dst: sqlite3.Connection) -> None:
     src.backup(dst)  # the whole database in one step, under the destination's write lock
 
@@ -102,19 +124,9 @@ def restore(backup: str | os.PathLike[str], target: str | os.PathLike[str], *,
             opening.link_into_place(tmp, target)
         else:
             opening.refuse_special(target)
+            kept = _keep_copy(target, timeout)
             dst = opening.connect(target, "rw", timeout)
             try:
-                kept = _kept_path(target)
-                keep = opening.connect(kept, "rwc", timeout)
-                try:
-                    try:
-                        dst.backup(keep)
-                    except sqlite3.DatabaseError:  # the store is damaged: keep its bytes as is
-                        keep.close()
-                        kept.unlink(missing_ok=True)
-                        kept.write_bytes(target.read_bytes())
-                finally:
-                    keep.close()
                 _copy_pages(src, dst)
             except sqlite3.Error as exc:
                 raise translate_error(exc, target) or RestoreRefused(

@@ -106,3 +106,22 @@ def test_restore_into_a_missing_store_creates_it(tmp_path: Path) -> None:
     assert res.returncode == 0, res.stdout + res.stderr
     assert set(lot_value_counts(target)) == {"A1"}
     check_ok(target)
+
+
+def test_restore_over_a_damaged_store_keeps_its_bytes(tmp_path: Path) -> None:
+    path = make_store(tmp_path / "plant.sqlite")
+    with Store.open(path) as s:
+        _log(s, "A1")
+    backup = _backup(path, tmp_path / "b.sqlite")
+    conn = sqlite3.connect(path)
+    conn.execute("PRAGMA wal_checkpoint(TRUNCATE)")
+    conn.close()
+    data = bytearray(path.read_bytes())
+    data[4096:4104] = b"\xff" * 8  # the b-tree header of page 2: the store is damaged
+    path.write_bytes(bytes(data))
+    res = run_cli("restore", backup, "--db", path)
+    assert res.returncode == 0, res.stdout + res.stderr
+    (kept,) = tmp_path.glob("plant.before-restore-*.sqlite")
+    assert kept.read_bytes()[4096:4104] == b"\xff" * 8  # the damaged page, kept as it was
+    assert set(lot_value_counts(path)) == {"A1"}
+    check_ok(path)
