@@ -39,6 +39,17 @@ def _bounds(since: date | None, until: date | None) -> tuple[str | None, str | N
         raise BadInput([RowProblem("command line", None, "date", None, str(exc))]) from None
 
 
+def _day_range(column: str, lo: str | None, hi: str | None, where: list[str],
+               params: list[object]) -> None:
+    """Add ``column >= lo`` / ``column <= hi`` (inclusive plant days) where a bound is given."""
+    if lo is not None:
+        where.append(f"{column} >= ?")
+        params.append(lo)
+    if hi is not None:
+        where.append(f"{column} <= ?")
+        params.append(hi)
+
+
 def _ts(col: str) -> pl.Expr:
     return pl.col(col).str.to_datetime(_TS, time_zone="UTC", time_unit="us")
 
@@ -62,13 +73,7 @@ def bucket_frame(store: Store, *, characteristic: str | None = None, factor: str
     # keeps SQLite's planner off the index there.
     short = (lo is not None and hi is not None
              and (date.fromisoformat(hi) - date.fromisoformat(lo)).days <= _INDEXED_DAYS)
-    day = "b.day" if short else "+b.day"
-    if lo is not None:
-        where.append(f"{day} >= ?")
-        params.append(lo)
-    if hi is not None:
-        where.append(f"{day} <= ?")
-        params.append(hi)
+    _day_range("b.day" if short else "+b.day", lo, hi, where, params)
     sql = ("SELECT c.name, b.factor, b.level, b.day, b.n, b.sum_d, b.sum_d2, b.lots "
            "FROM buckets b "
            "JOIN characteristics c ON c.id = b.characteristic_id"
@@ -108,12 +113,7 @@ def values_frame(store: Store, characteristic: str, factor: str, *, since: date 
     lo, hi = _bounds(since, until)
     where = ["m.characteristic_id = ?", "m.voided = 0"]
     params: list[object] = [factor, char.id]
-    if lo is not None:
-        where.append("m.day >= ?")
-        params.append(lo)
-    if hi is not None:
-        where.append("m.day <= ?")
-        params.append(hi)
+    _day_range("m.day", lo, hi, where, params)
     base = ("SELECT m.id, l.lot_code, t.value, m.measured_at, m.current_units "
             "FROM measurements m JOIN lots l ON l.id = m.lot_id "
             "JOIN lot_tags t ON t.lot_id = m.lot_id AND t.key = ? "
@@ -319,12 +319,7 @@ def measurements_frame(store: Store, *, characteristic: str | None = None,
     if characteristic is not None:
         where.append("m.characteristic_id = ?")
         params.append(store.characteristic(characteristic).id)
-    if lo is not None:
-        where.append("m.day >= ?")
-        params.append(lo)
-    if hi is not None:
-        where.append("m.day <= ?")
-        params.append(hi)
+    _day_range("m.day", lo, hi, where, params)
     keys = [f.name for f in store.factors()]
     keys += [k for k in store.tag_keys() if k not in keys]
     tag_cols = tag_column_names(keys)
