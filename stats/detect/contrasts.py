@@ -31,10 +31,11 @@ finite for coarse gauges and pulls the ratio toward 1, i.e. errs toward silence.
 
 Extra dispersion: skewed values and correlated lots make the standardised contrasts vary more
 than the normal theory says. ``phi`` is estimated from the day-to-day changes of the
-standardised contrast over the trailing ``dispersion_days`` (a step or a ramp adds a few large
-changes, which are trimmed): the mean of the smallest 90% of ``(z_t - z_prev)^2``, divided by
-their expectation under N(0, 2): ``2 x 0.6231`` (the second moment of a standard normal below
-its 95% point of |X|), kept within [1, 9].
+standardised contrast over the trailing ``dispersion_days`` (a step adds one large change, which
+is trimmed; heavy tails are what the estimate is for, so only the largest 2% are left out): the
+mean of the smallest 98% of ``(z_t - z_prev)^2``, divided by their expectation under N(0, 2):
+``2 x 0.8735`` (the second moment of a standard normal below the 99% point of |X|), kept
+within [1, 9] (Hawkins & Olwell 1998 discuss the CUSUM's sensitivity to a misjudged scale).
 """
 
 from __future__ import annotations
@@ -108,9 +109,10 @@ def _successive(x: np.ndarray, valid: np.ndarray, f) -> np.ndarray:
     return out
 
 
-TRIM = 0.1  # share of the largest day-to-day changes left out of the dispersion estimate
-# E[X^2 | |X| <= q] for X ~ N(0, 1) and q its 95% point (1.6449): (0.9 - 2 q pdf(q)) / 0.9
-TRIMMED_SECOND_MOMENT = 0.6231
+TRIM = 0.02  # share of the largest day-to-day changes left out of the dispersion estimate
+# E[X^2 | |X| <= q] for X ~ N(0, 1) and q its 99% point of |X| (2.3263):
+# (0.98 - 2 q pdf(q)) / 0.98
+TRIMMED_SECOND_MOMENT = 0.8735
 
 
 def _dispersion(z: np.ndarray, valid: np.ndarray, days: int, first: int) -> np.ndarray:

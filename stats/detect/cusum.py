@@ -9,6 +9,9 @@ shift" against "it does not" is, for a normal contrast ``c_t`` with variance ``v
 
 and the CUSUM is ``S_t = max(0, S_{t-1} + l_t)`` (Page 1954; the log-likelihood-ratio form of
 Hawkins & Olwell 1998, ch. 2 and 6 for scale). Days without a usable contrast leave S as it is.
+The standardised contrast enters winsorised at ``a/2 +- 3`` (Hawkins 1993, "Robustification of
+cumulative sum charts by winsorization"): a single wild day of skewed data then cannot cross the
+threshold alone, at the price of a second day for a change much larger than the design shift.
 
 Threshold. With ``a = delta / sqrt(v)`` the step is ``a (z - a/2)``: a tabular CUSUM of the
 standardised contrast z with reference ``k = a/2``, scaled by a. The threshold is
@@ -50,6 +53,7 @@ Z95 = 1.959963984540054
 STATE_FIELDS = ("s_hi", "s_lo", "onset_hi", "onset_lo", "w_hi", "wc_hi", "w_lo", "wc_lo",
                 "alarm", "detected", "alarm_onset", "aw", "awc")
 NONE = -1  # no day
+WINSOR = 3.0  # standard errors beyond half the design shift at which a day's contrast is cut
 
 
 def empty_state(slots: int) -> dict[str, np.ndarray]:
@@ -183,8 +187,12 @@ def run(con: Contrasts, settings: DetectorSettings, first: int,
             h = hs[k][:, j]
             two_sided = k == "mean"
             with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-                up = np.where(ok, (gate * x - gate * gate / 2.0) * w, 0.0)
-                dn = np.where(ok, (-gate * x - gate * gate / 2.0) * w, 0.0)
+                # winsorised at WINSOR standard errors beyond the midpoint (Hawkins 1993): one
+                # wild day of skewed data cannot cross the threshold on its own
+                reach = gate / 2.0 + WINSOR / np.sqrt(w)
+                xw = np.clip(x, -reach, reach)
+                up = np.where(ok, (gate * xw - gate * gate / 2.0) * w, 0.0)
+                dn = np.where(ok, (-gate * xw - gate * gate / 2.0) * w, 0.0)
             for side, inc in (("hi", up), ("lo", dn)):
                 if side == "lo" and not two_sided:
                     continue
