@@ -24,9 +24,9 @@ if TYPE_CHECKING:
     import polars as pl
     from lotwatch.store.connection import Store
 
-# Values per write transaction: at the measured pace this holds the write lock well under a
-# second, so a floor terminal logging a lot waits little behind a big import.
-CHUNK_VALUES = 50_000
+# Values per write transaction: the write lock is held for one chunk at a time (about a second
+# on a busy 2-core machine), so a floor terminal waits little behind a big import.
+CHUNK_VALUES = 25_000
 
 
 def write_plan(store: Store, plan: Plan, *, source: str, skip_bad: bool,
