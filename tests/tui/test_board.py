@@ -390,3 +390,29 @@ async def test_the_board_shows_the_detectors_evidence_onset_and_the_spread_alert
     assert headers == ["state", "characteristic", "factor", "group", "size", "%tol", "min",
                        "evid", "onset", "q"]
     assert "! spread alert" in shown
+
+
+async def test_the_status_line_says_computing_while_the_numbers_are_stale(small_store):
+    from textual.containers import VerticalScroll
+
+    path, _ = small_store
+    app = LotwatchApp(path)
+    async with app.run_test(size=SIZE) as pilot:
+        await _ready(pilot)
+        app.post_message(OpenComparison("bore", "site"))
+        await settle(pilot, lambda: app.current_mode == "comparison"
+                     and app.detail.factor == "site" and not app.computing)
+        status = app.screen.query_one("#status")
+        assert "computing…" not in str(status.content)
+        await pilot.press("5")  # the Tests tab, scrolled to its end
+        scroll = app.screen.query_one("#tests-scroll", VerticalScroll)
+        await pilot.pause()
+        scroll.scroll_end(animate=False)
+        await pilot.pause()
+        await pilot.press("f")  # another factor: stale until recomputed
+        await pilot.pause()
+        assert app.computing and "computing…" in str(status.content)
+        await settle(pilot, lambda: app.detail.factor == "line" and not app.computing)
+        await pilot.pause()
+        assert "computing…" not in str(status.content)
+        assert scroll.scroll_y == 0  # the new comparison's tests start at their top
