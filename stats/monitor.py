@@ -122,10 +122,11 @@ class WindowStats:
     status: np.ndarray  # object array of str
 
     def excluded(self, w: int, c: int) -> list[tuple[str, int]]:
-        """Groups with 0 < n < min_n in window w of comparison c: (level, n)."""
+        """Groups with 0 < lots < min_n in window w of comparison c: (level, lots)."""
         out = []
+        counts = self.sums.n if self.sums.lots is None else self.sums.lots
         for g, lv in enumerate(self.sums.levels[c]):
-            nn = int(self.sums.n[w, c, g])
+            nn = int(counts[w, c, g])
             if 0 < nn < self.min_n:
                 out.append((lv, nn))
         return out
@@ -150,7 +151,8 @@ def window_statistics(sums: GroupSums, *, min_n: int, alpha: float = 0.05) -> Wi
     from scipy import special  # imported here: commands that only read settings stay quick
 
     n_all = sums.n
-    usable = n_all >= max(min_n, 1)
+    # the minimum group size counts lots (a lot with replicates is one lot), values if unknown
+    usable = (sums.n if sums.lots is None else sums.lots) >= max(min_n, 1)
     n = np.where(usable, n_all, 0)
     s1 = np.where(usable, sums.s1, 0)
     s2 = np.where(usable, sums.s2, 0)

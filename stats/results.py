@@ -195,7 +195,7 @@ class PowerResult:
     """Power of the F test to detect one group shifted by ``shift`` from the others.
 
     ``detectable_shift_80`` is the smallest such shift (in the characteristic's units) detected with
-    80% power at the current group sizes; ``n_per_group_80``/``_90`` are lots per group needed for a
+    80% power at the current group sizes; ``n_per_group_80``/``_90`` are values per group needed for a
     given shift (None when no shift was asked for).
     """
 

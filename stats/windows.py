@@ -92,6 +92,7 @@ class GroupSums:
     s1: np.ndarray
     s2: np.ndarray
     first_day: list[list[list[date | None]]] = field(default_factory=list)  # last_n only [w][c][g]
+    lots: np.ndarray | None = None  # distinct lots per group (None: count values, n)
 
 
 @dataclass
@@ -104,6 +105,7 @@ class BucketCube:
     cum_n: np.ndarray
     cum_s1: np.ndarray
     cum_s2: np.ndarray
+    cum_lots: np.ndarray | None = None  # lots per day, cumulated (None: the frame had no lots)
 
 
 def bucket_cube(buckets: pl.DataFrame, comparisons: Sequence[Comparison], *, first_day: date,
@@ -141,6 +143,8 @@ def bucket_cube(buckets: pl.DataFrame, comparisons: Sequence[Comparison], *, fir
     cum_n = np.zeros(shape, dtype=np.int64)
     cum_s1 = np.zeros(shape, dtype=np.int64)
     cum_s2 = np.zeros(shape, dtype=np.int64)
+    # a lot's values of one characteristic share one day, so lots add up over days exactly
+    cum_lots = np.zeros(shape, dtype=np.int64) if "lots" in b.columns else None
     if b.height:
         run_c = np.array([c for c, _ in run_key], dtype=np.int64)
         run_g = np.array([lv_index[c][lv] if c >= 0 else -1 for c, lv in run_key], dtype=np.int64)
@@ -153,10 +157,13 @@ def bucket_cube(buckets: pl.DataFrame, comparisons: Sequence[Comparison], *, fir
         cum_n[ci, gi, t] = b["n"].to_numpy()[keep]
         cum_s1[ci, gi, t] = b["sum_d"].to_numpy()[keep]
         cum_s2[ci, gi, t] = b["sum_d2"].to_numpy()[keep]
+        if cum_lots is not None:
+            cum_lots[ci, gi, t] = b["lots"].to_numpy()[keep]
+            np.cumsum(cum_lots, axis=2, out=cum_lots)
         np.cumsum(cum_n, axis=2, out=cum_n)
         np.cumsum(cum_s1, axis=2, out=cum_s1)
         np.cumsum(cum_s2, axis=2, out=cum_s2)
-    return BucketCube(comps, levels, first_day, cum_n, cum_s1, cum_s2)
+    return BucketCube(comps, levels, first_day, cum_n, cum_s1, cum_s2, cum_lots)
 
 
 def _epoch_day(d: date) -> int:
@@ -165,7 +172,9 @@ def _epoch_day(d: date) -> int:
 
 def window_sums(cube: BucketCube, windows: Sequence[Window], settings: ReviewSettings) -> GroupSums:
     """Sum each group's buckets over each window (trailing/week: the window's days; last_n: the
-    fewest most-recent whole days holding at least ``last_n`` lots of that group)."""
+    fewest most-recent whole days holding at least ``last_n`` lots of that group). Lots are
+    counted as lots (distinct lots per day) when the cube has them, else as values."""
+    cl = cube.cum_lots if cube.cum_lots is not None else cube.cum_n
     ndays = cube.cum_n.shape[2] - 1
     C, K = cube.cum_n.shape[:2]
     W = len(windows)
@@ -177,12 +186,13 @@ def window_sums(cube: BucketCube, windows: Sequence[Window], settings: ReviewSet
         n = cube.cum_n[:, :, ends] - cube.cum_n[:, :, starts]
         s1 = cube.cum_s1[:, :, ends] - cube.cum_s1[:, :, starts]
         s2 = cube.cum_s2[:, :, ends] - cube.cum_s2[:, :, starts]
-        return GroupSums(list(windows), cube.comparisons, cube.levels,
-                         np.moveaxis(n, 2, 0), np.moveaxis(s1, 2, 0), np.moveaxis(s2, 2, 0))
+        lots = np.moveaxis(cl[:, :, ends] - cl[:, :, starts], 2, 0)
+        return GroupSums(list(windows), cube.comparisons, cube.levels, np.moveaxis(n, 2, 0),
+                         np.moveaxis(s1, 2, 0), np.moveaxis(s2, 2, 0), lots=lots)
     start_idx = np.zeros((W, C, K), dtype=np.int64)
     for c in range(C):
         for g in range(K):
-            cn = cube.cum_n[c, g]
+            cn = cl[c, g]  # the last N lots, counted as lots
             target = cn[ends] - settings.last_n
             s = np.searchsorted(cn, target, side="right") - 1
             start_idx[:, c, g] = np.clip(s, 0, None)
@@ -194,4 +204,5 @@ def window_sums(cube: BucketCube, windows: Sequence[Window], settings: ReviewSet
     s2 = cube.cum_s2[ci, gi, ei] - cube.cum_s2[ci, gi, start_idx]
     first = [[[cube.day0 + timedelta(days=int(start_idx[w, c, g])) if n[w, c, g] else None
                for g in range(K)] for c in range(C)] for w in range(W)]
-    return GroupSums(list(windows), cube.comparisons, cube.levels, n, s1, s2, first)
+    lots = cl[ci, gi, ei] - cl[ci, gi, start_idx]
+    return GroupSums(list(windows), cube.comparisons, cube.levels, n, s1, s2, first, lots)

@@ -180,7 +180,7 @@ def _effect_power(r: BatteryResult, unit: str) -> list[str]:
     if p.shift is not None and p.power_at_shift is not None:
         lines.extend(_wrap(
             f"Power to detect a shift of {num(p.shift, 0, 4).strip()}{u}: "
-            f"{100 * p.power_at_shift:.0f}%; lots per group for 80% power: "
+            f"{100 * p.power_at_shift:.0f}%; values per group for 80% power: "
             f"{p.n_per_group_80 if p.n_per_group_80 is not None else 'over a million'}, "
             f"for 90%: {p.n_per_group_90 if p.n_per_group_90 is not None else 'over a million'}."))
     if p.status != "ok":

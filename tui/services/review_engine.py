@@ -19,8 +19,8 @@ review.fdr_level (0.05), review.fdr_method (bh | by), review.tolerance_fraction 
 review.no_limits_gate (detectable | skip), review.trend_windows (12), detect.* (see
 ``DetectorSettings``).
 
-Counting lots: the buckets count measurements. Where a lot has several replicate values for a
-characteristic, "lots per group" (review.min_lots, review.last_n) counts values per group.
+Counting lots: the buckets count values (n) and distinct lots (lots); "lots per group"
+(review.min_lots, review.last_n) counts lots, so replicate values of one lot count once.
 """
 
 from __future__ import annotations

@@ -12,11 +12,13 @@ from textual.widgets import Static
 
 MEANINGS = [
     ("Group table",
-     "n = lots of the group in the window; mean and SD (sample, n-1) of its values; CI = "
+     "lots = distinct lots of the group in the window; values = its measurements (more than "
+     "the lots when lots carry replicates); mean and SD (sample, values - 1) of its values; CI = "
      "two-sided t confidence interval of the mean at 1 - alpha; 'vs rest' = group mean minus the "
-     "mean of all other lots; ANOM = analysis of means: 'high'/'low' when the group mean lies "
+     "mean of all other values; ANOM = analysis of means: 'high'/'low' when the group mean lies "
      "outside the decision limits around the grand mean; Cpk = min(USL - mean, mean - LSL) / "
-     "(3 x within SD), shown when limits exist."),
+     "(3 x the group's own within SD: pooled within lots, or average moving range / 1.128), "
+     "Ppk the same with the group's overall SD; shown when limits exist."),
     ("ANOVA table",
      "Between = variation of group means around the grand mean, Within = variation of lots "
      "around their own group mean, Total = both. df = degrees of freedom (k-1, N-k, N-1); SS = "

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from lotwatch.tui.render.numbers import num, p_is, pval
+from lotwatch.tui.render.numbers import lots_and_values, num, p_is, pval
 from lotwatch.tui.render.safe_text import clean
 from lotwatch.tui.services.view_models import DetailView
 from rich.console import Group, RenderableType
@@ -95,8 +95,10 @@ class AnovaPanel(Static):
 
     def show(self, detail: DetailView) -> None:
         b = detail.battery
+        lots = (None if any(g.lots is None for g in b.groups)
+                else sum(g.lots or 0 for g in b.groups))
         head = Text(f"{clean(detail.window_label, 40)}: {b.anova.k} groups, "
-                    f"{b.anova.n_total} lots", style="bold")
+                    f"{lots_and_values(lots, b.anova.n_total)}", style="bold")
         parts: list[RenderableType] = [head]
         if b.anova.df_within > 0 or b.anova.ss_total is not None:
             parts.append(anova_table(detail))

@@ -1,0 +1,47 @@
+"""Lots counted as lots in the review's windows (issue 11, item 2): with two replicates per lot,
+"the last 4 lots" covers 4 lots (8 values), and review.min_lots counts lots. Oracle: the raw
+rows, counted in plain Python."""
+
+from __future__ import annotations
+
+from datetime import UTC, date, datetime, timedelta
+from pathlib import Path
+
+from lotwatch.stats import monitor as mon
+from lotwatch.store import LotEntry, Store
+
+
+def _store(path: Path) -> Store:
+    store = Store.create(path, zone="UTC")
+    store.add_characteristic("fill", unit="mL", resolution="0.1", target=500.0)
+    start = datetime(2026, 11, 1, 12, tzinfo=UTC)
+    entries = []
+    for d in range(10):
+        for line, lots in (("A", 1), ("B", 1)):
+            for k in range(lots):
+                entries.append(LotEntry("fill", [f"{500 + d / 10:.1f}", f"{500 + d / 10 + .1:.1f}"],
+                                        {"site": "S", "line": line, "shift": "x"},
+                                        lot=f"{line}{d}-{k}", measured_at=start + timedelta(days=d)))
+    store.log_lots(entries)
+    return store
+
+
+def test_last_n_lots_and_min_lots_count_lots_not_values(tmp_path: Path) -> None:
+    with _store(tmp_path / "r.sqlite") as store:
+        ch = store.characteristic("fill")
+        comp = mon.Comparison("fill", "line", ch.origin_units, ch.resolution_value)
+        settings = mon.ReviewSettings(window="last_n", last_n=4, min_n=3)
+        end = date(2026, 11, 10)
+        plan = mon.window_plan(end, settings, 1)
+        cube = mon.bucket_cube(store.bucket_frame(factor="line"), [comp],
+                               first_day=date(2026, 11, 1), last_day=end)
+        sums = mon.window_sums(cube, plan, settings)
+        # oracle: the last 4 lots of each line are days 6..9, two values each
+        assert sums.lots[0, 0].tolist() == [4, 4]
+        assert sums.n[0, 0].tolist() == [8, 8]
+        stats = mon.window_statistics(sums, min_n=settings.min_n)
+        assert stats.usable[0, 0].tolist() == [True, True]
+        # min_lots 5 > 4 lots: both groups left out although each holds 8 values
+        five = mon.window_statistics(sums, min_n=5)
+        assert five.usable[0, 0].tolist() == [False, False]
+        assert five.excluded(0, 0) == [("A", 4), ("B", 4)]
