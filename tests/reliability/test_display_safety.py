@@ -69,7 +69,7 @@ def hostile_store(path: Path) -> dict[str, object]:
         _try(s.add_factor, "oven" + MARKUP + MARK)
         tag_values = ["north" + MARKUP + MARK, "south", "L" + LONG, "1", "day", "night"]
         entries = []
-        for i in range(12):
+        for i in range(18):  # 6 lots per site: at least review.min_lots (5) lots per group
             entries.append(LotEntry(
                 CHAR, [f"{500 + i % 5 / 10:.1f}", f"{500 + i % 3 / 10:.1f}"],
                 {"site": tag_values[i % 3], "line": str(1 + i % 2), "shift": tag_values[4 + i % 2]},
