@@ -202,14 +202,16 @@ class LotwatchApp(StoreWorkers, App[None]):
             return
         ov = message.overview
         self.overview = ov
-        if ov.partial:
+        if ov.partial and (not ov.board or self.view.characteristic):
             return
+        # The early board (alerts and detector evidence) already names the most urgent
+        # comparison: its detail starts while the review runs.
         pairs = {(r.characteristic, r.factor) for r in ov.board}
         v = self.view
         if (v.characteristic, v.factor) not in pairs and ov.board:
             top = ov.board[0]  # the most urgent comparison
             self.view = v.but(characteristic=top.characteristic, factor=top.factor)
-        elif "detail" not in self._generation or self.detail is None:
+        elif "detail" not in self._generation:
             self.request_detail()
 
     def on_comparison_computed(self, message: msg.ComparisonComputed) -> None:

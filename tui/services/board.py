@@ -14,7 +14,8 @@ of the other lots. ``evidence`` is the detector's statistic over its threshold (
 from __future__ import annotations
 
 from collections.abc import Iterable
-from typing import TYPE_CHECKING
+from types import SimpleNamespace
+from typing import TYPE_CHECKING, Any
 
 from lotwatch.tui.services.view_models import (
     ACKNOWLEDGED,
@@ -53,7 +54,27 @@ def _leading(alerts: Iterable[AlertRow]) -> dict[tuple[str, str], AlertRow]:
     return out
 
 
-def board_rows(comparisons: Iterable[ComparisonSummary], chars: Iterable[CharacteristicInfo],
+def early_rows(statuses: Iterable[Any], chars: Iterable[CharacteristicInfo],
+               active_alerts: Iterable[AlertRow]) -> list[BoardRow]:
+    """The board before the window's review has run: from the detectors' stored state
+    (``detection.detector_status``) and the alert log only, so the first screen has its states,
+    alerts and evidence while the statistics stack loads. q, and the group of rows without an
+    alert, follow with the review."""
+    by: dict[tuple[str, str], list[Any]] = {}
+    for s in statuses:
+        by.setdefault((s.characteristic, s.factor), []).append(s)
+    early = []
+    for (characteristic, factor), mine in by.items():
+        top = max(mine, key=lambda s: s.evidence if s.evidence is not None else -1.0)
+        early.append(SimpleNamespace(
+            characteristic=characteristic, factor=factor, n_total=1, status="ok",
+            largest_shift_group=None, direction=None, largest_shift=None, gate=None, q=None,
+            alert_id=None, window_label="", detector_evidence=top.evidence,
+            detector_onset=top.onset.isoformat() if top.onset is not None else None))
+    return board_rows(early, chars, active_alerts)
+
+
+def board_rows(comparisons: Iterable[ComparisonSummary | Any], chars: Iterable[CharacteristicInfo],
                active_alerts: Iterable[AlertRow]) -> list[BoardRow]:
     """One row per comparison that has data, sorted by :attr:`BoardRow.urgency`.
 

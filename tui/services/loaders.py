@@ -11,7 +11,7 @@ from datetime import date
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from lotwatch.tui.services.board import board_rows
+from lotwatch.tui.services.board import board_rows, early_rows
 from lotwatch.tui.services.storefile import opened
 from lotwatch.tui.services.view_models import (
     ACTIVE,
@@ -109,11 +109,14 @@ def load_overview(path: Path, read_only: bool, *, week: str | None = None,
 
         links = single_companions(store)
         if on_frame is not None:
+            from lotwatch.tui.services.detection import detector_status
+
+            early = early_rows(detector_status(store), chars, open_alerts)
             alerting = {a.characteristic for a in open_alerts}
             on_frame(Overview(chars, factors, tags,
                               {c.name: ALERTING if c.name in alerting else CHECKING
                                for c in chars}, {}, open_alerts, "", version, partial=True,
-                              tag_links=links))
+                              tag_links=links, board=early))
         from lotwatch.tui.services.review_engine import run_review
 
         review = run_review(store, week=week, persist=False)
