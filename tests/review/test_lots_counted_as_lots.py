@@ -45,3 +45,27 @@ def test_last_n_lots_and_min_lots_count_lots_not_values(tmp_path: Path) -> None:
         five = mon.window_statistics(sums, min_n=5)
         assert five.usable[0, 0].tolist() == [False, False]
         assert five.excluded(0, 0) == [("A", 4), ("B", 4)]
+
+
+def test_the_review_row_shows_the_statistic_behind_its_q(tmp_path: Path) -> None:
+    """Issue 11, item 6: where the review reads Welch (unequal spreads), the row's F and p are
+    Welch's, the ones whose p feeds q; elsewhere the classical F and p."""
+    from lotwatch.tui.services.loaders import _comparison_row
+    from lotwatch.tui.services.review_engine import run_review
+
+    with _store(tmp_path / "w.sqlite") as store:
+        start = datetime(2026, 11, 1, 12, tzinfo=UTC)
+        spread = [f"{v:.1f}" for v in (497.0, 503.0, 496.0, 504.0, 498.0, 502.0)]
+        store.log_lots([LotEntry("fill", [spread[d % 6]], {"site": "S", "line": "C",
+                                                          "shift": "x"},
+                                 lot=f"C{d}", measured_at=start + timedelta(days=d))
+                        for d in range(10)])
+        result = run_review(store, as_of=date(2026, 11, 10))
+        by_line = next(c for c in result.comparisons if c.factor == "line")
+        row = _comparison_row(by_line)
+        if by_line.test == "Welch":
+            assert row.f == by_line.welch_f and row.p == by_line.welch_p
+        else:
+            assert row.f == by_line.f and row.p == by_line.p
+        assert row.test == by_line.test and row.q == by_line.q
+        assert by_line.test == "Welch"  # line C's spread is far wider (Bartlett p < alpha)

@@ -68,7 +68,8 @@ def _event_row(e: AlertEvent) -> AlertEventRow:
 def _comparison_row(c: ComparisonSummary) -> ComparisonRow:
     return ComparisonRow(
         characteristic=c.characteristic, factor=c.factor, window_label=c.window_label, k=c.k,
-        n_total=c.n_total, f=c.f, p=c.p, welch_p=c.welch_p, q=c.q,
+        n_total=c.n_total, f=c.welch_f if c.test == "Welch" else c.f, p=c.p_used,
+        welch_p=c.welch_p, q=c.q, test=c.test,
         omega_squared=c.omega_squared, largest_shift=c.largest_shift,
         largest_shift_group=c.largest_shift_group, detectable_shift=c.detectable_shift,
         alert_state=c.alert_state, status=c.status, alert_id=c.alert_id, unit=c.unit,

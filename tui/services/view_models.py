@@ -63,6 +63,7 @@ class ComparisonRow:
     groups: str | None = None  # the groups driving the difference, largest shift first
     direction: str | None = None  # "higher" | "lower"
     gate: float | None = None  # the practical size an alert needs (min shift)
+    test: str = "F"  # "Welch" when ``f`` and the p behind ``q`` are Welch's (one rule: monitor)
 
 
 @dataclass(frozen=True)

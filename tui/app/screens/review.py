@@ -57,8 +57,8 @@ class ReviewScreen(LotwatchScreen):
         head = Text(no_wrap=False)
         head.append(f"Weekly review {clean(review.window_label, 44)}", style="bold")
         head.append(f": {review.family_size} comparisons, q = {review.fdr_method.upper()} "
-                    f"false-discovery-adjusted p (level {review.fdr_level:g}). "
-                    "gate = the shift an alert needs. [ ] week · Enter open · p record "
+                    f"false-discovery-adjusted p (level {review.fdr_level:g}) of the F "
+                    "shown ('w': Welch's F, read where the spreads differ). gate = the shift an alert needs. [ ] week · Enter open · p record "
                     "(opens/clears alerts) · k acknowledge")
         self.query_one("#review-head", Static).update(head)
         t = self.query_one(DataTable)
@@ -75,7 +75,8 @@ class ReviewScreen(LotwatchScreen):
             shift = MISSING if r.largest_shift is None else (
                 f"{num(r.largest_shift, 3)} {clean(r.unit, 4)}".strip())
             rows.append([clean(r.characteristic, 14), clean(r.factor, 7), str(r.n_total),
-                         num(r.f, 3), pval(r.q), group, shift, num(r.gate, 2),
+                         num(r.f, 3) + ("w" if r.test == "Welch" else ""), pval(r.q), group,
+                         shift, num(r.gate, 2),
                          clean(alert, 12)])
             hot = r.alert_state == "open"
             styles.append(["bold" if hot else ""] * 8 + ["bold reverse" if hot else ""])
