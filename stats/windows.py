@@ -141,8 +141,13 @@ def bucket_cube(buckets: pl.DataFrame, comparisons: Sequence[Comparison], *, fir
     kmax = max([len(x) for x in levels] + [1])
     shape = (len(comps), kmax, ndays + 1)
     cum_n = np.zeros(shape, dtype=np.int64)
-    cum_s1 = np.zeros(shape, dtype=np.int64)
-    cum_s2 = np.zeros(shape, dtype=np.int64)
+    # Each day sum fits SQLite's 64-bit integers, but a running total over many days need not,
+    # and int64 would wrap around without a word: such a frame is summed in float64 instead
+    # (relative error about 1e-16 per sum, no wrap-around).
+    wide = b.height > 0 and int(b["sum_d2"].cast(pl.Int128).sum()) > _INT64_MAX // 2
+    sums_type = np.float64 if wide else np.int64
+    cum_s1 = np.zeros(shape, dtype=sums_type)
+    cum_s2 = np.zeros(shape, dtype=sums_type)
     # a lot's values of one characteristic share one day, so lots add up over days exactly
     cum_lots = np.zeros(shape, dtype=np.int64) if "lots" in b.columns else None
     if b.height:
@@ -164,6 +169,9 @@ def bucket_cube(buckets: pl.DataFrame, comparisons: Sequence[Comparison], *, fir
         np.cumsum(cum_s1, axis=2, out=cum_s1)
         np.cumsum(cum_s2, axis=2, out=cum_s2)
     return BucketCube(comps, levels, first_day, cum_n, cum_s1, cum_s2, cum_lots)
+
+
+_INT64_MAX = 2**63 - 1
 
 
 def _epoch_day(d: date) -> int:

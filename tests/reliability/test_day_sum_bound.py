@@ -95,3 +95,36 @@ def test_an_import_past_the_bound_is_refused_not_wrapped(tmp_path: Path) -> None
     assert res.returncode == 0, res.stdout + res.stderr
     assert _bucket(path) == (FULL, FULL * MAX_ABS_D, FULL * MAX_ABS_D**2)
     assert run_cli("check", "--db", path).returncode == 0
+
+
+@pytest.mark.slow  # four buckets filled to capacity (369,000 values)
+def test_review_over_days_whose_sums_pass_64_bits_together(tmp_path: Path) -> None:
+    """Each day sum fits, but two full days of one group add up past 2^63 - 1: the review's
+    running totals must not wrap around (they read "zero within-group variance" before).
+    Oracle: scipy.stats.f_oneway on the raw values."""
+    from datetime import date
+
+    import numpy as np
+    from lotwatch.tui.services import review_engine as eng
+    from scipy import stats
+
+    path = tmp_path / "s.sqlite"
+    small = [i % 5 for i in range(60)]
+    with Store.create(path, zone="UTC") as s:
+        s.add_characteristic("x", unit="u", resolution="1", target=0)
+        for day in (10, 11):
+            for line, v in (("1", MAX_ABS_D), ("2", -MAX_ABS_D)):
+                s.log_lots([LotEntry("x", [str(v)] * FULL,
+                                     {"site": "S" + line, "line": line, "shift": "h" + line},
+                                     lot=f"L{day}-{line}", measured_at=f"2026-11-{day}T08:00:00Z")])
+        s.log_lots([LotEntry("x", [str(v)], {"site": f"S{i % 2 + 1}", "line": f"{i % 2 + 1}",
+                                             "shift": f"h{i % 2 + 1}"},
+                             lot=f"S{i}", measured_at=f"2026-11-{12 + i % 10}T08:00:00Z")
+                    for i, v in enumerate(small)])
+        review = eng.run_review(s, as_of=date(2026, 11, 29), persist=False)
+    g1 = np.r_[np.full(2 * FULL, float(MAX_ABS_D)), small[0::2]]
+    g2 = np.r_[np.full(2 * FULL, -float(MAX_ABS_D)), small[1::2]]
+    expected = stats.f_oneway(g1, g2).statistic
+    line = next(c for c in review.comparisons if c.factor == "line")
+    assert line.status == "ok" and line.n_total == g1.size + g2.size
+    assert line.f == pytest.approx(expected, rel=1e-9)
