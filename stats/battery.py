@@ -176,7 +176,7 @@ def run_battery(samples: Sequence[Any], names: Sequence[str], *, alpha: float = 
     res_warning = resolution_check(table.resid_sd, resolution, tolerance)
     can_compare = table.status == OK
     if can_compare:
-        rec = recommend(bf, normality, ns, alpha=alpha)
+        rec = recommend(bart, normality, ns, alpha=alpha)  # the one Welch rule: welch_rule.py
     else:
         rec = Recommendation(test="none", posthoc="none",
                              reason=f"No test can be read: {table.status}.")

@@ -14,6 +14,7 @@ import numpy as np
 from lotwatch.stats._numeric import careful_mean, fmt_num, fmt_p, parse_resolution
 from lotwatch.stats.anova import one_way_anova
 from lotwatch.stats.results import OK, Recommendation, TestResult
+from lotwatch.stats.welch_rule import reads_welch
 from scipy import stats as sps
 
 SHAPIRO_MAX_N = 5000
@@ -207,7 +208,8 @@ def recommend(spread: TestResult, normality: TestResult, ns: Sequence[int], *,
               small_n: int = 30) -> Recommendation:
     """Which omnibus test and post-hoc procedure to read.
 
-    * spreads differ (Brown-Forsythe p < alpha): Welch ANOVA with Games-Howell, which do not
+    * spreads differ (``spread``: Bartlett, the one rule of ``stats.welch_rule``): Welch ANOVA
+      with Games-Howell, which do not
       assume equal variances (Welch 1951; Games & Howell 1976);
     * otherwise residuals strongly non-normal (p < ``strong_alpha``) and the smallest group has
       fewer than ``small_n`` values, where the central limit theorem gives little protection:
@@ -216,10 +218,10 @@ def recommend(spread: TestResult, normality: TestResult, ns: Sequence[int], *,
     The thresholds are common practice, not a published rule.
     """
     min_n = min(ns) if len(ns) else 0
-    if spread.status == OK and spread.p is not None and spread.p < alpha:
+    if spread.status == OK and spread.p is not None and reads_welch(spread.p, alpha):
         return Recommendation(
             test="Welch ANOVA", posthoc="Games-Howell",
-            reason=f"The group spreads differ (Brown-Forsythe {fmt_p(spread.p)}), so read "
+            reason=f"The group spreads differ ({spread.name} {fmt_p(spread.p)}), so read "
                    "Welch's ANOVA and Games-Howell, which do not assume equal variances.")
     if (normality.status == OK and normality.p is not None and normality.p < strong_alpha
             and min_n < small_n):

@@ -66,6 +66,7 @@ from lotwatch.stats.review_settings import (  # noqa: F401  (re-exported)
     WINDOW_KINDS,
     ReviewSettings,
 )
+from lotwatch.stats.welch_rule import reads_welch
 from lotwatch.stats.windows import (  # noqa: F401  (re-exported)
     BucketCube,
     Comparison,
@@ -223,7 +224,7 @@ def window_statistics(sums: GroupSums, *, min_n: int, alpha: float = 0.05) -> Wi
                               / (n_all * (n_all - 1.0)), np.nan)) * res3
         mean_all = np.where(n_all > 0, (origin[:, :, None] + sums.s1 / np.where(n_all > 0, n_all, 1))
                             * res3, np.nan)
-    welch = np.isfinite(bp) & (bp < alpha) & np.isfinite(wp)
+    welch = reads_welch(bp, alpha) & np.isfinite(wp)  # the one rule: stats/welch_rule.py
     test = np.where(welch, "Welch", "F").astype(object)
     p_used = np.where(welch, wp, p)
     status = np.where(~enough, NOT_ENOUGH, np.where(ssw_u > 0, OK, ZERO_VARIANCE)).astype(object)
