@@ -117,7 +117,7 @@ class HelpScreen(ModalScreen[None]):
                             ("Weekly review", "review"), ("Alerts", "alerts")):
             cls = modes.get(mode)
             if isinstance(cls, type):
-                sections.append((title, list(cls.BINDINGS)))
+                sections.append((title, list(getattr(cls, "BINDINGS", []))))
         sections += [
             ("Lots behind a group", LotsScreen.BINDINGS),
             ("Correct or void a value", ReasonScreen.BINDINGS),
