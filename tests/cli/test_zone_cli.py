@@ -55,3 +55,25 @@ def test_init_refuses_an_unknown_zone_and_makes_no_file(cli, tmp_path: Path) -> 
     r = cli("init", db, "--zone", "Mars/Base")
     assert r.exit_code == 2 and "not a time zone name" in r.output
     assert not db.exists()
+
+
+def test_alerts_show_times_are_plant_local(cli, tmp_path: Path) -> None:
+    from lotwatch.store import Store
+    from lotwatch.store.alerts import Transition, record_transitions
+
+    db = tmp_path / "plant.sqlite"
+    cli("init", db, "--zone", "Asia/Tokyo")
+    cli("characteristic", "add", "fill", "--unit", "mL", "--resolution", "0.1", "--db", db)
+    with Store.open(db) as s:
+        [alert] = record_transitions(s, [Transition("fill", "line", "opened", "W48", ["1"],
+                                                    "higher", 0.3, 0.03, 0.002)], by="review")
+        stamp = s.conn.execute("SELECT at FROM alert_events").fetchone()[0]
+    from datetime import datetime
+    from zoneinfo import ZoneInfo
+
+    local = datetime.strptime(stamp, "%Y-%m-%dT%H:%M:%SZ").replace(
+        tzinfo=ZoneInfo("UTC")).astimezone(ZoneInfo("Asia/Tokyo")).strftime("%Y-%m-%d %H:%M")
+    r = cli("alerts", "show", str(alert.id), "--db", db)
+    assert r.exit_code == 0, r.output
+    assert "times in plant time, Asia/Tokyo" in r.output and f"{local} opened" in r.output
+    assert stamp not in r.output  # no raw UTC stamp beside plant times

@@ -290,14 +290,24 @@ def alerts_show(alert_id: int, db_path: Path) -> None:
         events = store_alerts.alert_history(store, alert_id)
         unit = store.characteristic(a.characteristic).unit
         budget = _run(DetectorSettings.from_lookup, store.get_setting).years_per_false_alert
+        zone = store.plant_zone
+
+    def local(stamp: str | None) -> str:  # stored UTC -> plant time, as history shows it
+        from lotwatch.store.timeutil import format_local
+
+        try:
+            return format_local(stamp, zone=zone) if stamp else "-"
+        except ValueError:
+            return str(stamp)
+
     click.echo(clean(f"Alert {a.id}: {a.characteristic} by {a.factor}, {a.kind}, "
                           f"{a.state}"))
     for line in _wrap_plain(stored_alert_sentence(a, unit, budget)):
         click.echo(clean("  " + line))
-    click.echo(clean(f"  opened {a.opened_at} ({a.opened_window}); last {a.last_window}"))
-    click.echo("Events:")
+    click.echo(clean(f"  opened {local(a.opened_at)} ({a.opened_window}); last {a.last_window}"))
+    click.echo(clean(f"Events (times in plant time, {zone}):"))
     for e in events:
-        line = f"  {e.at} {e.event}"
+        line = f"  {local(e.at)} {e.event}"
         if e.by:
             line += f" by {e.by}"
         if e.window:
