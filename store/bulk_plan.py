@@ -4,7 +4,7 @@ half).
 ``plan_values`` applies the rules of ``store.lots`` (characteristic known, value exact at the
 resolution and plausible, lot ID and tags storable, required factors tagged, duplicates skipped,
 conflicting values refused) with polars expressions over all values at once; the entries with a
-problem are handed to ``lots._prepare`` so the messages are those of ``log_lots``. Stored lots are
+problem are handed to ``lots.prepare_entry`` so the messages are those of ``log_lots``. Stored lots are
 read in one query (a JSON array of the file's lot IDs joined with ``json_each``). Nothing here
 writes, so a refused import never takes the write lock.
 """
@@ -17,8 +17,8 @@ from math import ceil, floor
 from typing import TYPE_CHECKING, Any
 
 from lotwatch.store.aggregates import refuse_overflowing_plan
+from lotwatch.store.entry_checks import entry_problem, prepare_entry
 from lotwatch.store.errors import RowProblem
-from lotwatch.store.lots import _prepare, _problem
 from lotwatch.store.model import Characteristic, LotEntry
 from lotwatch.store.text import _UNSAFE
 from lotwatch.store.timeutil import STORED_FORMAT, now_utc
@@ -146,7 +146,7 @@ def plan_values(store: Store, values: pl.DataFrame, tag_keys: list[str], *, sour
         times: dict[object, str] = {}
         for r in flagged.iter_rows(named=True):
             e = _entry(r, tag_keys, source)
-            p = _prepare(0, e, by_name, now_utc(), round_values, store.user, times, zone)
+            p = prepare_entry(0, e, by_name, now_utc(), round_values, store.user, times, zone)
             if isinstance(p, list):
                 problems += p
                 refused_values += len(r["value"])
@@ -180,7 +180,7 @@ def _entry(r: dict, tag_keys: list[str], source: str) -> LotEntry:
 
 
 def _missing(e: LotEntry, missing: list[str], required: list[str]) -> RowProblem:
-    return _problem(e, missing[0], None,
+    return entry_problem(e, missing[0], None,
                     f"missing required tag{'s' if len(missing) > 1 else ''} "
                     f"{', '.join(repr(k) for k in missing)} (required: {', '.join(required)})")
 
@@ -254,7 +254,7 @@ def _refusal(r: dict, tag_keys: list[str], required: list[str], resolution: dict
     if r["_fate"] == "clash":
         k = next(k for k in tag_keys if r[TAG + k] is not None and r["__st:" + k] is not None
                  and r[TAG + k] != r["__st:" + k])
-        return _problem(e, k, r[TAG + k], f"lot {r['lot']!r} is stored with {k}="
+        return entry_problem(e, k, r[TAG + k], f"lot {r['lot']!r} is stored with {k}="
                         f"{r['__st:' + k]!r}; this entry says {k}={r[TAG + k]!r}")
     if r["_fate"] == "missing":
         gone = [k for k in required if r.get(TAG + k) is None and r["__st:" + k] is None]
@@ -262,7 +262,7 @@ def _refusal(r: dict, tag_keys: list[str], required: list[str], resolution: dict
     res = resolution[r["cid"]]
     was = ", ".join(format_units(u, res) for u in r["first"])
     now_v = ", ".join(format_units(u, res) for u in r["units"])
-    return _problem(
+    return entry_problem(
         e, r["column"] or "value", now_v,
         f"lot {r['lot']!r} already has {r['characteristic']} = {was}; this entry has {now_v}. "
         "Stored values change only by a correction: if the file is right, correct or void the "

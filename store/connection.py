@@ -159,8 +159,8 @@ class Store(Session):
 
     def set_plant_zone(self, name: str) -> tuple[str, int, int]:
         """Change the plant zone, recomputing every day and day sum in one transaction
-        (``store.plantzone.set_plant_zone``): returns (old zone, days moved, buckets rebuilt)."""
-        from lotwatch.store.plantzone import set_plant_zone
+        (``store.rezone.set_plant_zone``): returns (old zone, days moved, buckets rebuilt)."""
+        from lotwatch.store.rezone import set_plant_zone
 
         return set_plant_zone(self, name)
 

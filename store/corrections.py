@@ -10,8 +10,8 @@ from __future__ import annotations
 from typing import TYPE_CHECKING
 
 from lotwatch.store.aggregates import Deltas, lot_factor_levels
+from lotwatch.store.entry_checks import range_problem
 from lotwatch.store.errors import BadInput, Conflict, NotFound, RowProblem
-from lotwatch.store.lots import _range_problem
 from lotwatch.store.model import AuditEntry
 from lotwatch.store.timeutil import format_stored, now_utc
 from lotwatch.store.values import BadValue, FinerThanResolution, format_units, text_to_units
@@ -66,7 +66,7 @@ def correct(store: Store, measurement_id: int, new_value: str, *, reason: str,
         except BadValue as exc:
             raise BadInput([RowProblem("command line", None, "value", str(new_value),
                                        f"{exc} ({char.name})")]) from None
-        problem = _range_problem(units, char)
+        problem = range_problem(units, char)
         if problem:
             raise BadInput([RowProblem("command line", None, "value", str(new_value), problem)])
         if units == cur:

@@ -16,25 +16,17 @@ Nothing is written unless every entry is good, except with ``skip_bad``.
 from __future__ import annotations
 
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass, field
 from datetime import datetime
 from typing import TYPE_CHECKING
 
 from lotwatch.store.aggregates import Deltas
+from lotwatch.store.entry_checks import PreparedEntry, entry_problem, prepare_entry
 from lotwatch.store.errors import BadInput, RowProblem
 from lotwatch.store.model import Characteristic, LogOutcome, LotEntry
 from lotwatch.store.plantzone import new_lot_code
-from lotwatch.store.rules import tag_key_problem, time_problem
-from lotwatch.store.text import unsafe_character
-from lotwatch.store.timeutil import BadTime, format_stored, now_utc, parse_stored
+from lotwatch.store.timeutil import format_stored, now_utc
 from lotwatch.store.values import (
-    MAX_ABS_D,
-    BadValue,
-    FinerThanResolution,
     format_units,
-    scale_of,
-    scaled_bound,
-    text_to_units,
 )
 
 if TYPE_CHECKING:
@@ -42,141 +34,6 @@ if TYPE_CHECKING:
 
 PROGRESS_EVERY = 10_000
 _CHUNK = 500  # parameters per IN (...) lookup, below SQLite's default limit
-
-
-@dataclass
-class _Prepared:
-    index: int
-    entry: LotEntry
-    char: Characteristic
-    units: tuple[int, ...]
-    tags: dict[str, str]
-    measured_at: str
-    by: str
-    lot: str | None
-    rounded: int
-    row: int | None
-    problems: list[RowProblem] = field(default_factory=list)
-
-
-def _row_of(e: LotEntry, value_index: int | None = None) -> int | None:
-    if not e.rows:
-        return None
-    if value_index is not None and len(e.rows) == len(e.values):
-        return e.rows[value_index]
-    return e.rows[0]
-
-
-def _problem(e: LotEntry, column: str | None, value: object, reason: str,
-             value_index: int | None = None) -> RowProblem:
-    return RowProblem(e.source or "command line", _row_of(e, value_index), column,
-                      None if value is None else str(value), reason)
-
-
-def _with_unit(text: str, c: Characteristic) -> str:
-    return f"{text} {c.unit}" if c.unit else text
-
-
-def _prepare(i: int, e: LotEntry, chars: dict[str, Characteristic], now: datetime,
-             round_values: bool, user: str,
-             times: dict[object, str], zone: str) -> _Prepared | list[RowProblem]:
-    problems: list[RowProblem] = []
-    char = chars.get(str(e.characteristic).strip()) if e.characteristic is not None else None
-    if char is None:
-        known = ", ".join(sorted(chars)) or "none defined yet"
-        problems.append(_problem(e, "characteristic", e.characteristic,
-                                 f"unknown characteristic {e.characteristic!r} (known: {known})"))
-    lot = None
-    if e.lot is not None:
-        lot = str(e.lot).strip()
-        if not lot:
-            problems.append(_problem(e, "lot", e.lot, "the lot ID is empty"))
-        elif len(lot) > 100:
-            problems.append(_problem(e, "lot", e.lot, "the lot ID is longer than 100 characters"))
-        elif (bad := unsafe_character(lot)) is not None:
-            problems.append(_problem(e, "lot", e.lot, f"the lot ID contains {bad}"))
-    tags: dict[str, str] = {}
-    for key, value in (e.tags or {}).items():
-        k = str(key).strip() if key is not None else ""
-        v = str(value).strip() if value is not None else ""
-        if not k:
-            problems.append(_problem(e, None, value, "a tag has an empty name"))
-        elif not v:
-            problems.append(_problem(e, k, value if value is not None else "",
-                                     f"tag {k!r} is empty"))
-        elif (bad := unsafe_character(k + v)) is not None:
-            problems.append(_problem(e, k, v, f"tag {k!r} contains {bad}"))
-        elif (why := tag_key_problem(k)) is not None:
-            problems.append(_problem(e, k, v, why))
-        elif k in tags and tags[k] != v:
-            problems.append(_problem(e, k, v, f"tag {k!r} is given twice ({tags[k]!r} and {v!r})"))
-        else:
-            tags[k] = v
-    try:
-        when = now if e.measured_at is None else e.measured_at
-        measured = times.get(when) if isinstance(when, str) else None
-        if measured is None:
-            measured = format_stored(when, zone=zone)  # naive times are plant-local
-            if isinstance(when, str):
-                times[when] = measured  # lab files repeat timestamps; parse each text once
-    except BadTime as exc:
-        problems.append(_problem(e, "measured_at", e.measured_at, str(exc)))
-        measured = ""
-    except (TypeError, ValueError, OverflowError) as exc:
-        problems.append(_problem(e, "measured_at", e.measured_at, f"not a date/time ({exc})"))
-        measured = ""
-    if measured and (why := time_problem(parse_stored(measured), now)) is not None:
-        problems.append(_problem(e, "measured_at", e.measured_at, why))
-    units: list[int] = []
-    rounded = 0
-    column = e.column or "value"
-    values = [e.values] if isinstance(e.values, str) else list(e.values or [])
-    if not values:
-        problems.append(_problem(e, column, None, "no value given"))
-    if char is not None:
-        for j, text in enumerate(values):
-            try:
-                u, was_rounded = text_to_units(text, char.resolution, round_values=round_values)
-            except FinerThanResolution as exc:
-                problems.append(_problem(
-                    e, column, text,
-                    f"{exc.value} is finer than the resolution {_with_unit(char.resolution, char)}"
-                    f" of {char.name}; use --round to round half-even", j))
-                continue
-            except BadValue as exc:
-                problems.append(_problem(e, column, text, f"{exc} ({char.name})", j))
-                continue
-            reason = _range_problem(u, char)
-            if reason:
-                problems.append(_problem(e, column, text, reason, j))
-                continue
-            rounded += int(was_rounded)
-            units.append(u)
-    if problems or char is None:
-        return problems
-    return _Prepared(index=i, entry=e, char=char, units=tuple(units), tags=tags,
-                     measured_at=measured, by=(e.by or "").strip() or user, lot=lot,
-                     rounded=rounded, row=_row_of(e))
-
-
-def _range_problem(units: int, c: Characteristic) -> str | None:
-    """Why a value (in units) is implausible for ``c``, or None. Exact: compares units * m with
-    the limits times 10**k."""
-    lo, hi = c.plausible_low, c.plausible_high
-    m, _ = scale_of(c.resolution)
-    scaled = units * m
-    if ((lo is not None and scaled < scaled_bound(lo, c.resolution))
-            or (hi is not None and scaled > scaled_bound(hi, c.resolution))):
-        lo_t = "-inf" if lo is None else f"{lo:g}"
-        hi_t = "+inf" if hi is None else f"{hi:g}"
-        value = format_units(units, c.resolution)
-        return (f"{_with_unit(value, c)} is outside the plausible range {lo_t} to "
-                f"{_with_unit(hi_t, c)} of {c.name}")
-    if abs(units - c.origin_units) > MAX_ABS_D:
-        value = format_units(units, c.resolution)
-        return (f"{_with_unit(value, c)} is more than {MAX_ABS_D:,} resolution steps away from "
-                f"the origin of {c.name}; check the value or the resolution")
-    return None
 
 
 def _chunks(items: list, size: int = _CHUNK):
@@ -197,12 +54,12 @@ def log_lots(store: Store, entries: Sequence[LotEntry], *, round_values: bool = 
     conn = store.conn
     zone = store.plant_zone
 
-    def prepare_all(chars: dict[str, Characteristic]) -> tuple[dict, list[_Prepared]]:
+    def prepare_all(chars: dict[str, Characteristic]) -> tuple[dict, list[PreparedEntry]]:
         problems: dict[int, list[RowProblem]] = {}
-        good: list[_Prepared] = []
+        good: list[PreparedEntry] = []
         times: dict[object, str] = {}
         for i, e in enumerate(entries):
-            p = _prepare(i, e, chars, now, round_values, store.user, times, zone)
+            p = prepare_entry(i, e, chars, now, round_values, store.user, times, zone)
             if isinstance(p, list):
                 problems[i] = p
             else:
@@ -247,8 +104,8 @@ def log_lots(store: Store, entries: Sequence[LotEntry], *, round_values: bool = 
 
         # Duplicates, conflicts and lot tag merging, in input order.
         merged: dict[str, dict[str, str]] = {}
-        seen: dict[tuple[str, int], _Prepared] = {}
-        accepted: list[_Prepared] = []
+        seen: dict[tuple[str, int], PreparedEntry] = {}
+        accepted: list[PreparedEntry] = []
         duplicates = 0
         for p in good:
             e = p.entry
@@ -262,7 +119,7 @@ def log_lots(store: Store, entries: Sequence[LotEntry], *, round_values: bool = 
                 k, old, new = clash[0]
                 where = "is stored" if lot_id and stored_tags[lot_id].get(k) == old else (
                     "is given elsewhere in this input")
-                problems.setdefault(p.index, []).append(_problem(
+                problems.setdefault(p.index, []).append(entry_problem(
                     e, k, new, f"lot {p.lot!r} {where} with {k}={old!r}; this entry says "
                     f"{k}={new!r}"))
                 continue
@@ -274,7 +131,7 @@ def log_lots(store: Store, entries: Sequence[LotEntry], *, round_values: bool = 
                     continue
                 was = ", ".join(format_units(u, p.char.resolution) for u in stored)
                 now_v = ", ".join(format_units(u, p.char.resolution) for u in p.units)
-                problems.setdefault(p.index, []).append(_problem(
+                problems.setdefault(p.index, []).append(entry_problem(
                     e, e.column or "value", now_v,
                     f"lot {p.lot!r} already has {p.char.name} = {was}; this entry has {now_v}. "
                     "Stored values change only by a correction"))
@@ -285,7 +142,7 @@ def log_lots(store: Store, entries: Sequence[LotEntry], *, round_values: bool = 
                     duplicates += 1
                     continue
                 at = f" (row {first.row})" if first.row is not None else ""
-                problems.setdefault(p.index, []).append(_problem(
+                problems.setdefault(p.index, []).append(entry_problem(
                     e, e.column or "value",
                     ", ".join(format_units(u, p.char.resolution) for u in p.units),
                     f"lot {p.lot!r} has {p.char.name} twice in this input with different "
@@ -296,12 +153,12 @@ def log_lots(store: Store, entries: Sequence[LotEntry], *, round_values: bool = 
             accepted.append(p)
 
         # Required factors, judged on each lot's merged tags.
-        final: list[_Prepared] = []
+        final: list[PreparedEntry] = []
         for p in accepted:
             tags = merged[p.lot] if p.lot is not None else p.tags
             missing = [k for k in required if k not in tags]
             if missing:
-                problems.setdefault(p.index, []).append(_problem(
+                problems.setdefault(p.index, []).append(entry_problem(
                     p.entry, missing[0], None,
                     f"missing required tag{'s' if len(missing) > 1 else ''} "
                     f"{', '.join(repr(k) for k in missing)} (required: {', '.join(required)})"))
@@ -329,7 +186,7 @@ def log_lots(store: Store, entries: Sequence[LotEntry], *, round_values: bool = 
                       measurement_ids=ids_out, lots=lots_out)
 
 
-def _write(store: Store, final: list[_Prepared], merged: dict[str, dict[str, str]],
+def _write(store: Store, final: list[PreparedEntry], merged: dict[str, dict[str, str]],
            lot_ids: dict[str, int], stored_tags: dict[int, dict[str, str]],
            stored_meas: dict[int, list[tuple[int, str, int, int]]], factor_names: set[str],
            now: datetime, now_s: str,

@@ -5,7 +5,7 @@ kept in the ``settings`` table under ``plant.time_zone``) says which local calen
 measurement belongs to, so a night shift's 23:30 lot stays on its own plant day and ISO week.
 A new store takes the computer's zone; stores made before the setting existed keep "UTC" so
 their days do not move. Changing the zone recomputes every measurement's day and every day sum
-in one write transaction (``set_plant_zone``).
+in one write transaction (``store.rezone.set_plant_zone``).
 """
 
 from __future__ import annotations
@@ -23,7 +23,6 @@ from lotwatch.store.errors import BadInput, RowProblem
 if TYPE_CHECKING:
     import sqlite3
 
-    from lotwatch.store.connection import Store
 
 ZONE_KEY = "plant.time_zone"
 LEGACY_ZONE = "UTC"  # stores older than the setting: their days were UTC days
@@ -130,29 +129,3 @@ def read_zone(conn: sqlite3.Connection) -> str:
 def write_zone(conn: sqlite3.Connection, name: str) -> None:
     conn.execute("INSERT INTO settings(key, value) VALUES (?, ?) "
                  "ON CONFLICT(key) DO UPDATE SET value = excluded.value", (ZONE_KEY, name))
-
-
-def set_plant_zone(store: Store, name: str) -> tuple[str, int, int]:
-    """Change the plant zone and recompute every measurement's day and every day sum in one
-    transaction. Returns (old zone, measurements whose day moved, bucket rows rebuilt)."""
-    from lotwatch.store.aggregates import rebuild_all
-
-    new = check_zone(name)
-    with store.write():
-        conn = store.conn
-        old = read_zone(conn)
-        day_of = day_function(new)
-        stamps = [r[0] for r in conn.execute("SELECT DISTINCT measured_at FROM measurements")]
-        conn.execute("CREATE TEMP TABLE IF NOT EXISTS plant_days "
-                     "(measured_at TEXT PRIMARY KEY, day TEXT NOT NULL) WITHOUT ROWID")
-        conn.execute("DELETE FROM temp.plant_days")
-        conn.executemany("INSERT INTO temp.plant_days(measured_at, day) VALUES (?, ?)",
-                         [(s, day_of(s)) for s in stamps])
-        moved = conn.execute(
-            "UPDATE measurements SET day = (SELECT p.day FROM temp.plant_days p "
-            "WHERE p.measured_at = measurements.measured_at) WHERE day <> (SELECT p.day FROM "
-            "temp.plant_days p WHERE p.measured_at = measurements.measured_at)").rowcount
-        conn.execute("DROP TABLE temp.plant_days")
-        rebuilt = rebuild_all(conn)
-        write_zone(conn, new)
-    return old, int(moved), rebuilt
