@@ -196,7 +196,8 @@ def test_report_for_an_earlier_week_shows_that_week(demo_copy, demo_replay, tmp_
     r = run(demo_copy, "report", "--as-of", early, "--out", str(out))
     assert r.exit_code == 0, r.output
     text = out.read_text()
-    assert f"detector state shown as it was after {early}" in text
+    assert f"state as of that week: detectors as they were after {early}" in text
+    assert "acknowledgements made since included" in text
     assert run(demo_copy, "alerts", "list", "--format", "json").output == before
 
 

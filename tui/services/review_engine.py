@@ -242,8 +242,9 @@ def run_review(store, *, as_of: date | None = None, week: str | None = None,
                             settings, plan, False, ["the store has no characteristics yet"])
     status_day = _status_day(store, day, explicit)
     if status_day is not None:
-        notes.append(f"detector state shown as it was after {status_day.isoformat()}; "
-                     "alerts are shown as they stand now")
+        notes.append(f"state as of that week: detectors as they were after "
+                     f"{status_day.isoformat()}; alerts as they stand now (acknowledgements "
+                     "made since included)")
     status: dict[tuple[str, str], list[Any]] = {}
     for st in detection.detector_status(store, day=status_day):
         status.setdefault((st.characteristic, st.factor), []).append(st)
