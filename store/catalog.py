@@ -17,7 +17,7 @@ from lotwatch.store.transaction import Session
 from lotwatch.store.values import choose_origin, scale_of
 
 _CHAR_COLS = ("id, name, unit, resolution, origin_units, lsl, target, usl, min_shift, "
-              "plausible_low, plausible_high, created_at, created_by")
+              "plausible_low, plausible_high, created_at, created_by, retired_at")
 
 
 def _char_from_row(r: Sequence[Any]) -> Characteristic:
@@ -26,6 +26,7 @@ def _char_from_row(r: Sequence[Any]) -> Characteristic:
         id=r[0], name=r[1], unit=r[2], resolution=r[3], resolution_value=m / 10**k,
         origin_units=r[4], lsl=r[5], target=r[6], usl=r[7], min_shift=r[8],
         plausible_low=r[9], plausible_high=r[10], created_at=r[11], created_by=r[12],
+        retired_at=r[13],
     )
 
 
@@ -170,9 +171,9 @@ def factors(s: Session) -> list[Factor]:
     """Grouping factors, in the order they were added (site, line, shift first)."""
     with s.mapped():
         rows = s.conn.execute(
-            "SELECT name, required FROM factors ORDER BY created_at, rowid"
+            "SELECT name, required, retired_at FROM factors ORDER BY created_at, rowid"
         ).fetchall()
-    return [Factor(name, bool(req)) for name, req in rows]
+    return [Factor(name, bool(req), retired) for name, req, retired in rows]
 
 
 def add_factor(s: Session, name: str, required: bool = False) -> Factor:

@@ -198,6 +198,25 @@ class Store(Session):
     def add_factor(self, name: str, required: bool = False) -> Factor:
         return catalog.add_factor(self, name, required)
 
+    def retire_characteristic(self, name: str, *, retire: bool = True) -> None:
+        """Hide a characteristic from reviews, detectors and the board (data kept);
+        ``retire=False`` restores it (``store.retire``)."""
+        from lotwatch.store.retire import retire_characteristic
+
+        retire_characteristic(self, name, retire=retire)
+
+    def retire_factor(self, name: str, *, retire: bool = True) -> None:
+        """Hide a grouping factor from reviews and stop requiring it (data kept)."""
+        from lotwatch.store.retire import retire_factor
+
+        retire_factor(self, name, retire=retire)
+
+    def rename_factor(self, old: str, new: str) -> None:
+        """Rename a grouping factor everywhere it is named, in one transaction."""
+        from lotwatch.store.retire import rename_factor
+
+        rename_factor(self, old, new)
+
     def tag_keys(self) -> list[str]:
         return catalog.tag_keys(self)
 

@@ -31,6 +31,7 @@ class Characteristic:
     plausible_high: float | None
     created_at: str
     created_by: str
+    retired_at: str | None = None  # hidden from reviews and detectors since then; data kept
 
     @property
     def origin_value(self) -> float:
@@ -46,6 +47,7 @@ class Factor:
 
     name: str
     required: bool
+    retired_at: str | None = None  # hidden from reviews and detectors since then; data kept
 
 
 @dataclass

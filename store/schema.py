@@ -251,6 +251,13 @@ def _split_triggers(script: str) -> list[str]:
     return [s for s in out if s]
 
 
+def _migrate_to_5(conn: sqlite3.Connection) -> None:
+    # Retiring a characteristic or a grouping factor hides it from reviews, detectors and the
+    # board; its data and day sums are kept (``store.retire``).
+    conn.execute("ALTER TABLE characteristics ADD COLUMN retired_at TEXT")
+    conn.execute("ALTER TABLE factors ADD COLUMN retired_at TEXT")
+
+
 # MIGRATIONS[v] brings a store from schema version v-1 to v. Run in order inside one
 # BEGIN IMMEDIATE transaction by ``migrate``. Never edit a released step; add a new one.
 MIGRATIONS: dict[int, Callable[[sqlite3.Connection], None]] = {
@@ -258,6 +265,7 @@ MIGRATIONS: dict[int, Callable[[sqlite3.Connection], None]] = {
     2: _migrate_to_2,
     3: _migrate_to_3,
     4: _migrate_to_4,
+    5: _migrate_to_5,
 }
 SCHEMA_VERSION = max(MIGRATIONS)
 

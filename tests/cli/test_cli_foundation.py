@@ -80,7 +80,7 @@ def test_characteristic_add_list_show(cli, db):
     assert r.exit_code == 0
     lines = r.output.splitlines()
     assert lines[0].split() == ["name", "unit", "resolution", "LSL", "target", "USL", "min",
-                                "shift"]
+                                "shift", "state"]
     assert lines[1].split()[:6] == ["cap_torque", "N·m", "0.01", "-", "-", "-"]
     assert lines[2].split()[:6] == ["fill_volume", "mL", "0.1", "497", "500", "503"]
     r = cli("characteristic", "show", "fill_volume", "--db", db)
@@ -144,7 +144,7 @@ def test_factor_add_and_list(cli, db):
     assert r.exit_code == 2 and "batch" in r.output
     r = cli("factor", "list", "--db", db)
     rows = [line.split() for line in r.output.splitlines()]
-    assert rows[0] == ["factor", "required", "levels", "values"]
+    assert rows[0] == ["factor", "required", "state", "levels", "values"]
     assert [x[:2] for x in rows[1:]] == [["site", "yes"], ["line", "yes"], ["shift", "yes"],
                                           ["filler_head", "yes"], ["batch", "no"]]
 

@@ -366,7 +366,7 @@ def test_failed_upgrade_leaves_store_as_it_was(store_path: Path,
 
 def test_an_older_store_is_upgraded_on_open_and_keeps_its_data(store_path: Path) -> None:
     """A store at schema version 1 (before the bucket day index, the lot counts and the plant
-    zone) gains migrations 2 to 4 when opened for writing, with its measurements intact and
+    zone, the detectors and retiring) gains migrations 2 to 5 when opened for writing, with its measurements intact and
     its days unmoved (versioned migrations: common practice)."""
     import sqlite3
 
@@ -377,7 +377,10 @@ def test_an_older_store_is_upgraded_on_open_and_keeps_its_data(store_path: Path)
         s.log_lots([LotEntry("fill", ["500.1", "500.3"], {"site": "A", "line": "1", "shift": "x"},
                              lot="L1", measured_at="2026-11-30T03:00:00Z")])
     conn = sqlite3.connect(store_path)
-    # undo migrations 4 (detectors), 3 (lots, zone) and 2 (day index) by hand: a version-1 file
+    # undo migrations 5 (retiring), 4 (detectors), 3 (lots, zone) and 2 (day index) by hand:
+    # a version-1 file
+    conn.execute("ALTER TABLE characteristics DROP COLUMN retired_at")
+    conn.execute("ALTER TABLE factors DROP COLUMN retired_at")
     for trig in ("insert", "update", "delete"):
         conn.execute(f"DROP TRIGGER buckets_dirty_{trig}")
     conn.execute("DROP TABLE detector_days")
@@ -401,6 +404,7 @@ def test_an_older_store_is_upgraded_on_open_and_keeps_its_data(store_path: Path)
         assert "buckets_day" in names
         assert s.plant_zone == "UTC"  # an old store keeps UTC days: nothing moves
         assert schema.has_table(s.conn, "detector_days")
+        assert [c.retired_at for c in s.characteristics()] == [None]
         assert s.check().ok
         assert s.conn.execute("SELECT count(*) FROM measurements").fetchone()[0] == 1 + 1
         assert {r[-1] for r in s.bucket_frame().rows()} == {1}  # two replicates, one lot

@@ -13,6 +13,7 @@ from lotwatch.tui import __version__
 
 COMMAND_MODULES = [
     "lotwatch.tui.cli.setup",
+    "lotwatch.tui.cli.retire",
     "lotwatch.tui.cli.lots",
     "lotwatch.tui.cli.transfer",
     "lotwatch.tui.cli.analyze",

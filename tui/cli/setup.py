@@ -132,9 +132,9 @@ def characteristic_list(db_path: Path) -> None:
         click.echo("No characteristics yet. Add one with: lotwatch characteristic add NAME "
                    "--unit UNIT --resolution STEP")
         return
-    header = ("name", "unit", "resolution", "LSL", "target", "USL", "min shift")
+    header = ("name", "unit", "resolution", "LSL", "target", "USL", "min shift", "state")
     rows = [(c.name, c.unit, c.resolution, _fmt(c.lsl), _fmt(c.target), _fmt(c.usl),
-             _fmt(c.min_shift)) for c in chars]
+             _fmt(c.min_shift), "retired" if c.retired_at else "reviewed") for c in chars]
     _table(header, rows)
 
 
@@ -230,8 +230,9 @@ def factor_list(db_path: Path) -> None:
         for f in store.factors():
             levels = store.tag_values(f.name)
             shown = ", ".join(levels[:6]) + (", ..." if len(levels) > 6 else "")
-            rows.append((f.name, "yes" if f.required else "no", str(len(levels)), shown))
-    _table(("factor", "required", "levels", "values"), rows)
+            rows.append((f.name, "yes" if f.required else "no",
+                         "retired" if f.retired_at else "compared", str(len(levels)), shown))
+    _table(("factor", "required", "state", "levels", "values"), rows)
 
 
 def register(main: click.Group) -> None:

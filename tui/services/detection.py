@@ -113,7 +113,8 @@ def detector_settings(store) -> DetectorSettings:
 def detector_status(store, *, day: date | None = None) -> list[DetectorStatus]:
     """Every detector's stored state after its last advanced day (or after ``day``), with the
     latest alert of its comparison and kind. Reads only; recomputes nothing (two queries)."""
-    chars = {c.name: c for c in store.characteristics()}
+    chars = {c.name: c for c in store.characteristics() if c.retired_at is None}
+    retired_factors = {f.name for f in store.factors() if f.retired_at is not None}
     latest = store_alerts.latest_alerts(store)
     out = []
     n_state = len(sdet.STATE_COLUMNS)
@@ -122,6 +123,8 @@ def detector_status(store, *, day: date | None = None) -> list[DetectorStatus]:
         st = dict(zip(sdet.STATE_COLUMNS, row[5:5 + n_state], strict=True))
         used, h, ev, size, lo, hi, ref = row[5 + n_state:]
         ch = chars.get(name)
+        if ch is None or factor in retired_factors:
+            continue  # retired: hidden from the board and the review, state kept
         alarm = int(st["alarm"])
         if alarm:
             side, onset = alarm, st["alarm_onset"]
@@ -166,8 +169,9 @@ def advance_detectors(store, *, until: date | None = None, by: str | None = None
         spans = sdet.bucket_span(store)
         latest = store_alerts.latest_alerts(store)
         transitions: list[store_alerts.Transition] = []
+        retired_factors = {f.name for f in store.factors() if f.retired_at is not None}
         for ch in store.characteristics():
-            if ch.id not in spans:
+            if ch.id not in spans or ch.retired_at is not None:
                 continue
             first, last = spans[ch.id]
             run = _process(store, ch, progress.get(ch.id), first, last, s, rv, until)
@@ -177,7 +181,8 @@ def advance_detectors(store, *, until: date | None = None, by: str | None = None
             sdet.set_progress(store, ch.id, run.last.isoformat(),
                               _fingerprint(s, ch, *_gate(ch, rv)[:2]))
             result.advanced[ch.name] = (run.start, run.last)
-            transitions.extend(_decide(run, latest, s))
+            transitions.extend(t for t in _decide(run, latest, s)
+                               if t.factor not in retired_factors)
         if transitions:
             written = store_alerts.record_transitions(store, transitions,
                                                       by=by or getattr(store, "user", None))

@@ -100,8 +100,10 @@ def load_overview(path: Path, read_only: bool, *, week: str | None = None,
     can start while the review runs.
     """
     with opened(path, read_only) as store:
-        chars = [char_info(c) for c in store.characteristics()]
-        factors = [FactorInfo(f.name, bool(f.required)) for f in store.factors()]
+        # retired characteristics and factors are hidden from the board and the form
+        chars = [char_info(c) for c in store.characteristics() if c.retired_at is None]
+        factors = [FactorInfo(f.name, bool(f.required)) for f in store.factors()
+                   if f.retired_at is None]
         tags = {f.name: list(store.tag_values(f.name)) for f in factors}
         alerts = read_alerts(store)
         open_alerts = [a for a in alerts if a.state in ACTIVE]

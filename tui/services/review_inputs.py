@@ -68,13 +68,14 @@ def resolve_as_of(*, as_of: date | None = None, week: str | None = None,
 def comparisons_of(store, characteristic: str | None = None,
                    factor: str | None = None) -> tuple[list[mon.Comparison], dict[str, Any]]:
     """Every characteristic × factor of the store (or the one asked for), and the characteristics
-    by name."""
-    chars = {c.name: c for c in store.characteristics()}
+    by name. Retired characteristics and factors are left out unless asked for by name."""
+    chars = {c.name: c for c in store.characteristics() if c.retired_at is None}
     if characteristic is not None:
         chars = {characteristic: store.characteristic(characteristic)}
-    factors = [f.name for f in store.factors()]
+    all_factors = store.factors()
+    factors = [f.name for f in all_factors if f.retired_at is None]
     if factor is not None:
-        if factor not in factors:
+        if factor not in {f.name for f in all_factors}:
             from lotwatch.store import NotFound
 
             raise NotFound(f"no grouping factor named {factor!r}; factors: {', '.join(factors)}")
