@@ -244,20 +244,32 @@ class AnovaBatch:
     omega_squared: np.ndarray
 
 
+def within_numerator(n: np.ndarray, s1: np.ndarray, s2: np.ndarray) -> np.ndarray:
+    """n·Σd² − (Σd)² per group (n times the group's sum of squared deviations from its mean),
+    exact for integer sums: in int64 when it fits, else through Python integers; as float64."""
+    big = float(np.max(np.abs(n.astype(np.float64) * s2.astype(np.float64)), initial=0.0))
+    big = max(big, float(np.max(s1.astype(np.float64) ** 2, initial=0.0)))
+    if big < 2.0 ** 62:
+        return (n * s2 - s1 * s1).astype(np.float64)
+    no, s1o, s2o = n.astype(object), s1.astype(object), s2.astype(object)
+    return (no * s2o - s1o * s1o).astype(np.float64)
+
+
 def anova_batch(n: Any, s1: Any, s2: Any) -> AnovaBatch:
     """Classical ANOVA for m comparisons at once from arrays of shape (m, k).
 
     ``n`` counts per group (0 pads an absent group), ``s1``/``s2`` sums and sums of squares of
-    deviations from any origin shared within a comparison (float or int64; converted to float64).
+    deviations from any origin shared within a comparison (float, or integer sums of integer
+    deviations, whose within-group sums of squares are then exact: ``within_numerator``).
     SS_between = Σ n_i (m_i − m)², SS_within = Σ max(s2_i − s1_i·m_i, 0) with m_i = s1_i/n_i;
     eta² = SS_b/SS_t, omega² = (SS_b − df_b·MS_w)/(SS_t + MS_w) (Hays 1963). Comparisons with
     fewer than two groups, no within df, or zero SS_within get NaN for F and p. This route is
     floating point (int64 sums beyond 2^53 lose digits on conversion); ``anova_from_sums`` with a
     resolution is the exact route for a single comparison.
     """
-    nn = np.atleast_2d(np.asarray(n, dtype=np.float64))
-    a1 = np.atleast_2d(np.asarray(s1, dtype=np.float64))
-    a2 = np.atleast_2d(np.asarray(s2, dtype=np.float64))
+    raw = [np.atleast_2d(np.asarray(x)) for x in (n, s1, s2)]
+    exact = all(np.issubdtype(x.dtype, np.integer) for x in raw)
+    nn, a1, a2 = (x.astype(np.float64) for x in raw)
     present = nn > 0
     safe_n = np.where(present, nn, 1.0)
     means = np.where(present, a1 / safe_n, 0.0)
@@ -266,7 +278,11 @@ def anova_batch(n: Any, s1: Any, s2: Any) -> AnovaBatch:
     with np.errstate(divide="ignore", invalid="ignore"):
         gm = (a1 * present).sum(axis=1) / n_total
         ssb = (nn * (means - gm[:, None]) ** 2).sum(axis=1)
-        ssw = np.where(present, np.maximum(a2 - a1 * means, 0.0), 0.0).sum(axis=1)
+        if exact:
+            ssw_i = within_numerator(*raw) / np.where(present, nn, 1.0)
+        else:
+            ssw_i = a2 - a1 * means
+        ssw = np.where(present, np.maximum(ssw_i, 0.0), 0.0).sum(axis=1)
         dfb = (k - 1).astype(np.float64)
         dfw = n_total - k
         ok = (k >= 2) & (dfw > 0) & (ssw > 0)

@@ -136,20 +136,13 @@ class WindowStats:
         return self.sums.levels[c][g] if g >= 0 else None
 
 
-def _within_numerator(n: np.ndarray, s1: np.ndarray, s2: np.ndarray) -> np.ndarray:
-    """n·Σd² − (Σd)² per group, exact in int64 when it fits, else through Python integers."""
-    big = float(np.max(np.abs(n.astype(np.float64) * s2.astype(np.float64)), initial=0.0))
-    big = max(big, float(np.max(s1.astype(np.float64) ** 2, initial=0.0)))
-    if big < 2.0 ** 62:
-        return (n * s2 - s1 * s1).astype(np.float64)
-    no, s1o, s2o = n.astype(object), s1.astype(object), s2.astype(object)
-    return (no * s2o - s1o * s1o).astype(np.float64)
-
-
 def window_statistics(sums: GroupSums, *, min_n: int, alpha: float = 0.05) -> WindowStats:
     """ANOVA, Welch, Bartlett, effect sizes and the largest shift for every window × comparison
     at once; ``alpha`` is the level of the Bartlett check that routes a comparison to Welch."""
-    from scipy import special  # imported here: commands that only read settings stay quick
+    # imported here: commands that only read settings stay quick (these load scipy)
+    from lotwatch.stats.anova import anova_batch, within_numerator
+    from lotwatch.stats.welch import welch_batch
+    from scipy import special
 
     n_all = sums.n
     # the minimum group size counts lots (a lot with replicates is one lot), values if unknown
@@ -161,45 +154,41 @@ def window_statistics(sums: GroupSums, *, min_n: int, alpha: float = 0.05) -> Wi
     origin = np.array([c.origin_units for c in sums.comparisons], dtype=np.float64)[None, :]
     res3 = res[:, :, None]
     nf = n.astype(np.float64)
+    shape = n.shape[:2]
+
+    def flat(x: np.ndarray) -> np.ndarray:
+        return x.reshape(-1, x.shape[2])
+
     with np.errstate(divide="ignore", invalid="ignore"):
         k = usable.sum(axis=2)
         N = nf.sum(axis=2)
         S = s1.sum(axis=2).astype(np.float64)
         m_i = np.where(usable, s1 / np.where(usable, nf, 1.0), np.nan)  # deviation units
         m = S / N
-        num = np.where(usable, _within_numerator(n, s1, s2), 0.0)
-        ssw_i = np.where(usable, num / np.where(usable, nf, 1.0), 0.0)
-        ssw_u = ssw_i.sum(axis=2)
-        ssb_u = np.nansum(np.where(usable, nf * (m_i - m[:, :, None]) ** 2, 0.0), axis=2)
+        num = np.where(usable, within_numerator(n, s1, s2), 0.0)
         df_b = (k - 1).astype(np.float64)
         df_w = N - k
         enough = (k >= 2) & (df_w > 0)
-        ok = enough & (ssw_u > 0)
-        ssb = ssb_u * res ** 2
+        # the one ANOVA (stats.anova.anova_batch) on exact integer deviation sums; SS scale
+        # with the resolution squared, F, p and the effect sizes do not
+        av = anova_batch(flat(n), flat(s1), flat(s2))
+        ssw_u = av.ss_within.reshape(shape)
+        ssb = av.ss_between.reshape(shape) * res ** 2
         ssw = ssw_u * res ** 2
         msw = np.where(df_w > 0, ssw / df_w, np.nan)
-        f = np.where(ok, (ssb / np.where(ok, df_b, 1.0)) / msw, np.nan)
-        p = np.where(ok, special.fdtrc(np.where(ok, df_b, 1.0), np.where(ok, df_w, 1.0),
-                                       np.where(ok, f, 0.0)), np.nan)
-        sst = ssb + ssw
-        eta = np.where(enough & (sst > 0), ssb / sst, np.nan)
-        omega = np.where(ok, (ssb - df_b * msw) / (sst + msw), np.nan)
+        f = av.f.reshape(shape)
+        p = av.p.reshape(shape)
+        eta = np.where(enough, av.eta_squared.reshape(shape), np.nan)
+        omega = av.omega_squared.reshape(shape)
 
-        # Welch
+        # the one Welch (stats.welch.welch_batch), from group means and variances in units
         var_i = np.where(usable & (nf > 1), num / (nf * (nf - 1)), np.nan) * res3 ** 2
-        w_ok = enough & np.all(~usable | (var_i > 0), axis=2)
-        wi = np.where(usable & (var_i > 0), nf / var_i, 0.0)
-        Wsum = wi.sum(axis=2)
-        mw = np.where(usable, wi * np.nan_to_num(m_i * res3), 0.0).sum(axis=2) / Wsum
-        A = np.where(usable, wi * (np.nan_to_num(m_i * res3) - mw[:, :, None]) ** 2,
-                     0.0).sum(axis=2) / df_b
-        T = np.where(usable, (1 - wi / Wsum[:, :, None]) ** 2 / np.where(usable, nf - 1, 1.0),
-                     0.0).sum(axis=2)
-        kk = k.astype(np.float64)
-        wf = np.where(w_ok, A / (1 + 2 * (kk - 2) * T / (kk ** 2 - 1)), np.nan)
-        wdf2 = np.where(w_ok, (kk ** 2 - 1) / (3 * T), np.nan)
-        wp = np.where(w_ok, special.fdtrc(np.where(w_ok, df_b, 1.0), np.where(w_ok, wdf2, 1.0),
-                                          np.where(w_ok, wf, 0.0)), np.nan)
+        w_ok = enough & np.all(~usable | (var_i > 0), axis=2)  # every group has a spread
+        wb = welch_batch(flat(np.where(usable, nf, 0.0)), flat(np.nan_to_num(m_i * res3)),
+                         flat(np.nan_to_num(var_i)))
+        wf = wb.f.reshape(shape)
+        wdf2 = wb.df_within.reshape(shape)
+        wp = wb.p.reshape(shape)
 
         # Bartlett (scale-free: computed in deviation units)
         v_u = np.where(usable & (nf > 1), num / (nf * (nf - 1)), np.nan)
@@ -220,7 +209,7 @@ def window_statistics(sums: GroupSums, *, min_n: int, alpha: float = 0.05) -> Wi
         lg = np.argmax(absd, axis=2)
         shift = np.take_along_axis(diff, lg[:, :, None], axis=2)[:, :, 0]
         lg = np.where(np.isnan(shift), -1, lg)
-        sd = np.sqrt(np.where(n_all > 1, _within_numerator(n_all, sums.s1, sums.s2)
+        sd = np.sqrt(np.where(n_all > 1, within_numerator(n_all, sums.s1, sums.s2)
                               / (n_all * (n_all - 1.0)), np.nan)) * res3
         mean_all = np.where(n_all > 0, (origin[:, :, None] + sums.s1 / np.where(n_all > 0, n_all, 1))
                             * res3, np.nan)
