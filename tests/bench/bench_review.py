@@ -123,10 +123,11 @@ def build_store(path: Path, n_measurements: int, seed: int = SEED) -> Store:
             b = (allm.group_by("characteristic_id", factor, "day")
                  .agg(pl.len().alias("n"), pl.col("d").sum().alias("s1"),
                       (pl.col("d") * pl.col("d")).sum().alias("s2")))
+            # one value per lot and characteristic here, so each bucket holds n lots
             conn.executemany(
-                "INSERT INTO buckets(characteristic_id, factor, level, day, n, sum_d, sum_d2) "
-                "VALUES (?, ?, ?, ?, ?, ?, ?)",
-                ((cid, factor, names[lv], day_txt[dd], n, s1, s2)
+                "INSERT INTO buckets(characteristic_id, factor, level, day, n, sum_d, sum_d2, "
+                "lots) VALUES (?, ?, ?, ?, ?, ?, ?, ?)",
+                ((cid, factor, names[lv], day_txt[dd], n, s1, s2, n)
                  for cid, lv, dd, n, s1, s2 in b.iter_rows()))
     conn.execute("ANALYZE")
     return store

@@ -8,7 +8,6 @@ from __future__ import annotations
 import sqlite3
 
 from click.testing import CliRunner
-
 from lotwatch.store import LotEntry, Store
 from lotwatch.tui.cli import main
 from lotwatch.tui.services import detection
