@@ -20,10 +20,7 @@ Measured (medians over repeats; CPU time is shared, so expect noise):
   shared comparisons are checked against the baseline to 1e-9 relative;
 * run_review: the latest weekly review (3 windows, detectable shifts, ANOM, alert decisions;
   not recorded);
-* incremental: after one lot is logged (one characteristic, as one LotEntry; and a lot with all
-  20), the latest window for all 60 comparisons brought current from the stored aggregates
-  (``LatestWindow.refresh_day`` re-reads that day's buckets of the characteristics written,
-  a range read on the schema's ``buckets(day)`` index);
+* (the one-lot update of the sequential detectors is measured by ``bench_detection.py``);
 * memory: tracemalloc peak of one full review (a separate, untimed pass), and the peak resident
   set size of a fresh process that opens the store and runs one full review;
 * ``--ten-million``: the same on 10,000,000 measurements, review cost relative to 1M (this build
@@ -38,7 +35,6 @@ rows through Python's sqlite3.
 from __future__ import annotations
 
 import argparse
-import itertools
 import statistics
 import sys
 import tempfile
@@ -53,7 +49,7 @@ sys.path.insert(0, str(ROOT))
 import numpy as np  # noqa: E402
 import polars as pl  # noqa: E402
 from lotwatch.stats import monitor as mon  # noqa: E402
-from lotwatch.store import LotEntry, Store  # noqa: E402
+from lotwatch.store import Store  # noqa: E402
 from lotwatch.tui.services import review_engine as eng  # noqa: E402
 
 END = date(2026, 11, 29)
@@ -209,34 +205,6 @@ def timed(fn, repeats: int, name: str = "") -> tuple[float, object]:
     return statistics.median(times), result
 
 
-def incremental(store: Store, repeats: int, *, per_lot: int) -> tuple[float, float]:
-    """Median seconds to bring the latest window current after one lot is logged (``per_lot``
-    characteristics measured on it: one LotEntry each), and the largest relative F difference
-    from a full recompute afterwards."""
-    live = eng.LatestWindow(store, as_of=END)
-    chars = store.characteristics()[:per_lot]
-    times = []
-    for _ in range(repeats):
-        i = next(_LOT_NUMBERS)
-        at = f"{END.isoformat()}T{10 + i % 10:02d}:{i % 60:02d}:00Z"
-        tags = {"site": SITES[i % 12], "line": f"{SITES[i % 12]}-L1", "shift": SHIFTS[i % 3]}
-        entries = [LotEntry(c.name, [f"{c.target:.{2 if c.resolution == '0.01' else 1}f}"], tags,
-                            lot=f"INC{i:05d}", measured_at=at) for c in chars]
-        store.log_lots(entries)
-        t0 = time.perf_counter()
-        live.refresh_day(END, [e.characteristic for e in entries])
-        times.append(time.perf_counter() - t0)
-    cfg = live.settings
-    comps, _ = eng.comparisons_of(store)
-    ws = eng.compute_windows(store, comps, mon.window_plan(END, cfg, 1), cfg)
-    with np.errstate(invalid="ignore"):
-        diff = np.nanmax(np.abs(live.stats.f - ws.f) / np.abs(ws.f))
-    return statistics.median(times), float(diff)
-
-
-_LOT_NUMBERS = itertools.count()  # distinct lot codes across calls
-
-
 def memory_peak(store: Store) -> float:
     """tracemalloc peak (Python and numpy allocations; polars' own allocator is not traced)."""
     tracemalloc.start()
@@ -301,12 +269,6 @@ def main() -> None:
         t_run, res = timed(lambda: eng.run_review(store, as_of=END, persist=False), reps)
         print(f"run_review (latest week, {res.family_size} in family, ANOM, detectable shift): "
               f"median {t_run * 1000:.1f} ms")
-        nrep = 5 if args.quick else 15
-        for per_lot in (1, N_CHARS):
-            t_inc, inc_diff = incremental(store, nrep, per_lot=per_lot)
-            print(f"incremental latest window after one lot with {per_lot} characteristic(s): "
-                  f"median {t_inc * 1000:.2f} ms (goal < 20 ms; max rel. F difference from a "
-                  f"full recompute {inc_diff:.1e})")
         peak = memory_peak(store)
         base_rss, rss = rss_peak(path)
         print(f"memory of one full review: tracemalloc peak {peak:.1f} MB; process peak RSS "

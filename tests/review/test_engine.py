@@ -163,31 +163,6 @@ def test_not_enough_data_is_not_no_difference(tmp_path):
     store.close()
 
 
-@pytest.mark.parametrize("named", [False, True])
-def test_incremental_latest_window_matches_full_review(tmp_path, named):
-    store = _weekly_store(tmp_path / "s.sqlite", {1, 2}, 3)
-    store.add_characteristic("y", unit="g", resolution="0.1")
-    store.log_lots([_entry("y", 1 + i / 10, "ABC"[i % 3], _sunday(3), i) for i in range(12)])
-    store.set_setting("review.window", "trailing")
-    as_of = _sunday(3)
-    live = eng.LatestWindow(store, as_of=as_of)
-    day = as_of - timedelta(days=1)
-    store.log_lots([_entry("x", 53.0, "B", day, 20)])
-    live.refresh_day(day, ["x"] if named else None)
-    r = eng.run_review(store, as_of=as_of, persist=False)
-    for c_idx, comp in enumerate(live.comps):
-        full = [c for c in r.comparisons if (c.characteristic, c.factor) ==
-                (comp.characteristic, comp.factor)][0]
-        assert live.stats.n_total[0, c_idx] == full.n_total
-        if full.f is None:  # the shift factor has one level only
-            assert np.isnan(live.stats.f[0, c_idx]) and full.status == mon.NOT_ENOUGH
-            continue
-        assert live.stats.f[0, c_idx] == pytest.approx(full.f, rel=1e-12)
-        assert live.q[0, c_idx] == pytest.approx(full.q, rel=1e-12)
-    assert any(c.f is not None for c in r.comparisons)
-    store.close()
-
-
 # ---------------------------------------------------------------- demo store
 
 

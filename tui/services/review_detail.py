@@ -7,7 +7,6 @@ from dataclasses import dataclass
 from datetime import date
 from typing import Any
 
-import numpy as np
 import polars as pl
 from lotwatch.stats import monitor as mon
 from lotwatch.stats.monitor import ReviewSettings
@@ -137,89 +136,3 @@ def comparison_detail(store, characteristic: str, factor: str, *, as_of: date | 
     return ComparisonDetail(ch, factor, latest.label, battery, tr.frame.select(
         "window_end", "level", "n", "mean"), gm, ch.lsl, ch.target, ch.usl, summary,
         tr.grand_means.select("window_end", "grand_mean"))
-
-
-# --------------------------------------------------------------------------------------------
-# incremental latest window
-
-
-class LatestWindow:
-    """The latest window's statistics for every comparison, kept current from stored aggregates.
-
-    Holds the window's per-day group sums; after lots are logged, ``refresh_day(day)`` re-reads
-    only that day's buckets and recomputes the window (no rescans of measurements, no rereads of
-    other days). A new level or characteristic triggers a full reload.
-    """
-
-    PER_NAME_READS = 3  # beyond this many characteristics one whole-day read is cheaper
-
-    def __init__(self, store, *, as_of: date | None = None) -> None:
-        self.store = store
-        self.settings = review_settings(store)
-        if self.settings.window == "last_n":
-            raise ValueError("incremental updates need a trailing or week window")
-        self.as_of = resolve_as_of(as_of=as_of, zone=store.plant_zone)
-        self.window = mon.window_plan(self.as_of, self.settings, 1)[0]
-        self.reload()
-
-    def reload(self) -> None:
-        self.comps, self.chars = comparisons_of(self.store)
-        start = self.window.start if self.window.start is not None else self.window.end
-        b = self.store.bucket_frame(since=start, until=self.window.end)
-        cube = mon.bucket_cube(b, self.comps, first_day=start,
-                               last_day=self.window.end)
-        self.levels = cube.levels
-        self._lv = {(c, lv): g for c in range(len(self.comps)) for g, lv in enumerate(self.levels[c])}
-        self._ci = {(x.characteristic, x.factor): i for i, x in enumerate(self.comps)}
-        self.day_n = np.diff(cube.cum_n, axis=2)
-        self.day_s1 = np.diff(cube.cum_s1, axis=2)
-        self.day_s2 = np.diff(cube.cum_s2, axis=2)
-        self._compute()
-
-    def refresh_day(self, day: date, characteristics: list[str] | None = None) -> None:
-        """Bring the window up to date after writes on ``day`` (UTC).
-
-        ``characteristics``: the ones written (a logged ``LotEntry`` names one); only their
-        buckets of that day are re-read (one read per characteristic, each a short scan of the
-        characteristic's own buckets). None, or more than a few, re-reads the whole day at once.
-        """
-        if self.window.start is None or not (self.window.start <= day <= self.window.end):
-            return
-        names: list[str | None] = [None]
-        if characteristics is not None and len(set(characteristics)) <= self.PER_NAME_READS:
-            names = list(dict.fromkeys(characteristics))
-        if any(n is not None and n not in self.chars for n in names):
-            self.reload()  # a characteristic new to this window
-            return
-        t = (day - self.window.start).days
-        for name in names:
-            b = self.store.bucket_frame(characteristic=name, since=day, until=day)
-            cs, gs, ns, s1, s2 = [], [], [], [], []
-            for ch, fa, lv, _, n, a, q, _lots in b.iter_rows():
-                c = self._ci.get((ch, fa))
-                g = self._lv.get((c, lv)) if c is not None else None
-                if g is None:  # a factor or level new to this window
-                    self.reload()
-                    return
-                cs.append(int(c) if c is not None else -1)  # g is None whenever c is
-                gs.append(g)
-                ns.append(n)
-                s1.append(a)
-                s2.append(q)
-            rows = slice(None) if name is None else [
-                i for i, x in enumerate(self.comps) if x.characteristic == name]
-            self.day_n[rows, :, t] = 0
-            self.day_s1[rows, :, t] = 0
-            self.day_s2[rows, :, t] = 0
-            self.day_n[cs, gs, t] = ns
-            self.day_s1[cs, gs, t] = s1
-            self.day_s2[cs, gs, t] = s2
-        self._compute()
-
-    def _compute(self) -> None:
-        sums = mon.GroupSums([self.window], self.comps, self.levels,
-                             self.day_n.sum(axis=2)[None], self.day_s1.sum(axis=2)[None],
-                             self.day_s2.sum(axis=2)[None])
-        self.stats = mon.window_statistics(sums, min_n=self.settings.min_n,
-                                           alpha=self.settings.alpha)
-        self.q, self.family_size = mon.family_fdr(self.stats.p_used, self.settings.fdr_method)

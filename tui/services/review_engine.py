@@ -38,7 +38,6 @@ from lotwatch.tui.caution import CAUTION
 from lotwatch.tui.render.numbers import p_is
 from lotwatch.tui.services.review_detail import (  # noqa: F401  (re-exported for callers)
     ComparisonDetail,
-    LatestWindow,
     TrendResult,
     comparison_detail,
     trend,
