@@ -1,7 +1,7 @@
 """The full battery for one comparison: ANOVA and every companion, in one ``BatteryResult``.
 
 Order of work: drop non-finite values (noted), exclude groups with fewer than ``min_n`` values
-(listed with the reason), sort groups by name, then the classical ANOVA (exact when a resolution
+(lots, where lot labels are given; listed with the reason), sort groups by name, then the classical ANOVA (exact when a resolution
 is declared), Welch, Kruskal-Wallis, Brown-Forsythe, Bartlett, residual normality, the resolution
 check, the recommendation, post-hoc comparisons (Tukey-Kramer, Games-Howell, Dunnett against a
 reference, Dunn), compact letters for the recommended post-hoc, analysis of means, effect sizes,
@@ -144,10 +144,22 @@ def run_battery(samples: Sequence[Any], names: Sequence[str], *, alpha: float = 
                 "would overflow); express the data in a larger unit"
             )
         cleaned[name] = a
+    # the minimum group size counts lots where lot labels are given (a lot with replicates is
+    # one lot, as in the review's windows), else values
+    unit = "values" if lots is None else "lots"
+
+    def size(name: str, a: np.ndarray) -> int:
+        labels_of = lot_of[name]
+        if labels_of is None:
+            return int(a.size)
+        return len({lab for lab, keep in zip(labels_of, cleaned_mask[name], strict=False)
+                    if keep})
+
+    sizes = {n: size(n, a) for n, a in cleaned.items()}
     excluded = [ExcludedGroup(name=n, n=int(a.size),
-                              reason=f"fewer than {min_n} values" if a.size else "no values")
-                for n, a in sorted(cleaned.items()) if a.size < min_n]
-    kept = sorted((n, a) for n, a in cleaned.items() if a.size >= min_n)
+                              reason=f"fewer than {min_n} {unit}" if a.size else "no values")
+                for n, a in sorted(cleaned.items()) if sizes[n] < min_n]
+    kept = sorted((n, a) for n, a in cleaned.items() if sizes[n] >= min_n)
     gnames = [n for n, _ in kept]
     arrays = [a for _, a in kept]
     ns = [a.size for a in arrays]

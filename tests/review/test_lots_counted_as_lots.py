@@ -69,3 +69,20 @@ def test_the_review_row_shows_the_statistic_behind_its_q(tmp_path: Path) -> None
             assert row.f == by_line.f and row.p == by_line.p
         assert row.test == by_line.test and row.q == by_line.q
         assert by_line.test == "Welch"  # line C's spread is far wider (Bartlett p < alpha)
+
+
+def test_the_detail_battery_counts_lots_for_the_minimum_group_size():
+    """One rule on every screen: the comparison detail's battery, like the review's windows,
+    leaves out a group with fewer than min_n lots however many replicate values it has."""
+    import numpy as np
+    from lotwatch.stats import run_battery
+
+    a = np.array([1.0, 1.1, 1.2, 1.3, 1.0, 1.2])  # 6 values in 2 lots
+    b = np.array([2.0, 2.2, 2.1, 1.9, 2.3, 2.0])  # 6 values in 6 lots
+    c = np.array([1.5, 1.4, 1.6, 1.5, 1.7, 1.3])  # 6 values in 3 lots
+    lots = [["A1"] * 3 + ["A2"] * 3, [f"B{i}" for i in range(6)],
+            ["C1", "C1", "C2", "C2", "C3", "C3"]]
+    by_lots = run_battery([a, b, c], ["A", "B", "C"], min_n=3, lots=lots)
+    assert [(e.name, e.reason) for e in by_lots.excluded] == [("A", "fewer than 3 lots")]
+    by_values = run_battery([a, b, c], ["A", "B", "C"], min_n=3)
+    assert by_values.excluded == []
