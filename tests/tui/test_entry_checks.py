@@ -71,3 +71,12 @@ def test_huge_values_are_refused_in_words(text):
 def test_times_at_the_calendars_ends_are_refused_in_words(text):
     problem = time_problem(text, datetime(2026, 11, 30, 12, 0, tzinfo=UTC))
     assert problem is not None and text[:10] in problem
+
+
+def test_a_typed_time_is_read_in_the_plant_zone():
+    """The form reads a time without an offset in the plant's zone, as the store stores it: at
+    12:00 UTC, "13:00" is 19:00 UTC in Chicago (CST, UTC-6: the future) and 04:00 UTC in Tokyo
+    (UTC+9: the past) (IANA tz database offsets for 30 Nov 2026)."""
+    now = datetime(2026, 11, 30, 12, 0, tzinfo=UTC)
+    assert "is in the future" in time_problem("2026-11-30 13:00", now, zone="America/Chicago")
+    assert time_problem("2026-11-30 13:00", now, zone="Asia/Tokyo") is None

@@ -84,19 +84,20 @@ def _bound(x: float | None) -> str:
     return "-inf" if x is None else f"{x:g}"
 
 
-def time_problem(text: str, now: datetime | None = None) -> str | None:
-    """None when the time is empty ("now"), or a readable local/ISO time not in the future."""
+def time_problem(text: str, now: datetime | None = None, zone: str | None = None) -> str | None:
+    """None when the time is empty ("now"), or a readable ISO time not in the future; a time
+    without an offset is read in ``zone`` (the plant's), as the store will store it."""
     from lotwatch.store.timeutil import BadTime, OutOfCalendar, to_utc
 
     s = text.strip()
     if not s or s.lower() == "now":
         return None
     try:
-        t = to_utc(s)
+        t = to_utc(s, zone)
     except OutOfCalendar:
         return f"{clean(s, 20)} cannot be a measurement time; type e.g. 2026-11-30 14:05"
     except BadTime:
-        return (f"{clean(s, 20)!r} is not a time; type e.g. 2026-11-30 14:05 (local time) "
+        return (f"{clean(s, 20)!r} is not a time; type e.g. 2026-11-30 14:05 (plant time) "
                 "or leave it empty for now")
     except (ValueError, OverflowError):  # a date at the calendar's ends (year 1, 9999)
         return f"{clean(s, 20)} cannot be a measurement time; type e.g. 2026-11-30 14:05"
@@ -145,10 +146,15 @@ class ValuesCheck(Validator):
 
 
 class TimeCheck(Validator):
-    """The time field: empty (now) or a time that can be read and is not in the future."""
+    """The time field: empty (now) or a time that can be read and is not in the future; a time
+    without an offset is plant time (``zone``)."""
+
+    def __init__(self, zone: str | None = None) -> None:
+        super().__init__()
+        self.zone = zone
 
     def validate(self, value: str) -> ValidationResult:
-        problem = time_problem(value)
+        problem = time_problem(value, zone=self.zone)
         return self.success() if problem is None else self.failure(problem, value)
 
 

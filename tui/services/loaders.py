@@ -119,10 +119,11 @@ def load_overview(path: Path, read_only: bool, *, week: str | None = None,
             on_frame(Overview(chars, factors, tags,
                               {c.name: ALERTING if c.name in alerting else CHECKING
                                for c in chars}, {}, open_alerts, "", version, partial=True,
-                              tag_links=links, board=early))
+                              tag_links=links, board=early, plant_zone=store.plant_zone))
         from lotwatch.tui.services.review_engine import run_review
 
         review = run_review(store, week=week, persist=False)
+        zone = store.plant_zone
     window_kind = review.settings.window
     comparison_states: dict[tuple[str, str], str] = {}
     for c in review.comparisons:
@@ -146,7 +147,8 @@ def load_overview(path: Path, read_only: bool, *, week: str | None = None,
             states[ch.name] = NOT_ENOUGH
     board = board_rows(review.comparisons, chars, open_alerts)
     return Overview(chars, factors, tags, states, comparison_states, open_alerts,
-                    review.window_label, version, window_kind, board=board, tag_links=links)
+                    review.window_label, version, window_kind, board=board, tag_links=links,
+                    plant_zone=zone)
 
 
 RECENT_LOTS = 3
@@ -259,7 +261,8 @@ def load_alerts(path: Path, read_only: bool) -> AlertsView:
     with opened(path, read_only) as store:
         alerts = read_alerts(store)
         history = {a.id: [_event_row(e) for e in alert_history(store, a.id)] for a in alerts}
+        zone = store.plant_zone
     alerts.sort(key=lambda a: (a.state != "open", -a.id))
-    return AlertsView(alerts=alerts, history=history)
+    return AlertsView(alerts=alerts, history=history, plant_zone=zone)
 
 

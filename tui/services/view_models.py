@@ -115,6 +115,7 @@ class Overview:
     board: list[BoardRow] = field(default_factory=list)  # sorted by urgency
     # (factor, value) -> {coarser factor: the only value seen with it}: the form's suggestions
     tag_links: dict[tuple[str, str], dict[str, str]] = field(default_factory=dict)
+    plant_zone: str | None = None  # IANA name: typed times in the form are plant-local
 
 
 @dataclass(frozen=True)
@@ -208,6 +209,7 @@ class ReviewView:
 class AlertsView:
     alerts: list[AlertRow]
     history: dict[int, list[AlertEventRow]] = field(default_factory=dict)
+    plant_zone: str | None = None  # event times are shown in plant time
 
 
 @dataclass(frozen=True)

@@ -28,12 +28,12 @@ def matches(alert: AlertRow, text: str, state: str) -> bool:
     return text.casefold() in hay.casefold()
 
 
-def _local(stamp: str) -> str:
-    """A stored UTC stamp in local time, short ("12-01 23:24"); as stored if unreadable."""
+def _local(stamp: str, zone: str | None) -> str:
+    """A stored UTC stamp in plant time, short ("12-01 23:24"); as stored if unreadable."""
     from lotwatch.store.timeutil import format_local
 
     try:
-        return format_local(stamp, "%m-%d %H:%M")
+        return format_local(stamp, "%m-%d %H:%M", zone=zone)
     except ValueError:
         return clean(stamp, 20)
 
@@ -111,7 +111,7 @@ class AlertsScreen(LotwatchScreen):
                 out.append(f", {clean(a.groups or '', 24)} {clean(a.direction, 10)}")
             for e in self.view.history.get(a.id, []):
                 out.append("\n")
-                out.append(f"{_local(e.at)}  {clean(e.event, 12)}")
+                out.append(f"{_local(e.at, self.view.plant_zone)}  {clean(e.event, 12)}")
                 if e.window:
                     out.append(f"  {clean(e.window, 26)}")
                 if e.by:

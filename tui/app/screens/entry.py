@@ -120,8 +120,9 @@ class LotEntryScreen(ModalScreen[None]):
         yield Input(placeholder="blank: the store assigns one", compact=True,
                     validators=[one_line("lot ID")], valid_empty=True, id="lot", max_length=80)
         yield Label("Time")
-        yield Input(placeholder="now (or 2026-11-30 14:05, local time)", compact=True,
-                    validators=[TimeCheck()], valid_empty=True, id="time")
+        yield Input(placeholder="now (or 2026-11-30 14:05, plant time)", compact=True,
+                    validators=[TimeCheck(self.overview.plant_zone)], valid_empty=True,
+                    id="time")
         yield Label("Note")
         yield Input(placeholder="optional", compact=True, id="note", max_length=500)
 
