@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from collections.abc import Callable
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 from typing import Any
 
@@ -58,18 +58,7 @@ class ReviewSettings:
 
         Raises ``ValueError`` naming the key and the bad value.
         """
-        values: dict[str, Any] = {}
-        defaults = cls()
-        for key, name in cls.KEYS.items():
-            text = get(key)
-            if text is None or str(text).strip() == "":
-                continue
-            kind = type(getattr(defaults, name))
-            try:
-                values[name] = kind(str(text).strip())
-            except ValueError:
-                raise ValueError(f"setting {key} = {text!r}: expected {kind.__name__}") from None
-        return cls(**values).validated()
+        return cls(**typed_values(cls(), cls.KEYS, get)).validated()
 
     def validated(self) -> ReviewSettings:
         """Return self, or raise ``ValueError`` saying which setting is out of range."""
@@ -91,3 +80,21 @@ class ReviewSettings:
         if problems:
             raise ValueError("; ".join(problems))
         return self
+
+
+def typed_values(defaults: Any, keys: Mapping[str, str],
+                 get: Callable[[str], str | None]) -> dict[str, Any]:
+    """The settings that are set, read through ``get(key) -> text | None`` and converted to the
+    type of the matching field of ``defaults`` (``keys`` maps a settings key to a field name).
+    Raises ``ValueError`` naming the key and the bad value."""
+    values: dict[str, Any] = {}
+    for key, name in keys.items():
+        text = get(key)
+        if text is None or str(text).strip() == "":
+            continue
+        kind = type(getattr(defaults, name))
+        try:
+            values[name] = kind(str(text).strip())
+        except ValueError:
+            raise ValueError(f"setting {key} = {text!r}: expected {kind.__name__}") from None
+    return values

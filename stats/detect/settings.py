@@ -4,7 +4,8 @@ from __future__ import annotations
 
 from collections.abc import Callable
 from dataclasses import dataclass, fields
-from typing import Any
+
+from lotwatch.stats.review_settings import typed_values
 
 
 @dataclass(frozen=True)
@@ -48,18 +49,7 @@ class DetectorSettings:
     def from_lookup(cls, get: Callable[[str], str | None]) -> DetectorSettings:
         """Read the settings through ``get(key) -> text | None``; unset keys keep defaults.
         Raises ``ValueError`` naming the key and the bad value."""
-        values: dict[str, Any] = {}
-        defaults = cls()
-        for key, name in cls.KEYS.items():
-            text = get(key)
-            if text is None or str(text).strip() == "":
-                continue
-            kind = type(getattr(defaults, name))
-            try:
-                values[name] = kind(str(text).strip())
-            except ValueError:
-                raise ValueError(f"setting {key} = {text!r}: expected {kind.__name__}") from None
-        return cls(**values).validated()
+        return cls(**typed_values(cls(), cls.KEYS, get)).validated()
 
     def validated(self) -> DetectorSettings:
         """Return self, or raise ``ValueError`` saying which setting is out of range."""

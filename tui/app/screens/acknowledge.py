@@ -5,6 +5,7 @@ from __future__ import annotations
 from typing import cast
 
 from lotwatch.tui.app import messages as msg
+from lotwatch.tui.app.screens.write_modal import WriteModal
 from lotwatch.tui.app.state import AppState
 from lotwatch.tui.app.widgets.caution import Caution
 from lotwatch.tui.render.numbers import num, pval
@@ -15,12 +16,11 @@ from textual import on
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Vertical
-from textual.screen import ModalScreen
 from textual.validation import Function
 from textual.widgets import Input, Static
 
 
-class AcknowledgeScreen(ModalScreen[None]):
+class AcknowledgeScreen(WriteModal):
     """Type a note, Enter records the acknowledgement; the form stays open if it fails."""
 
     BINDINGS = [Binding("escape", "cancel", "Cancel")]
@@ -73,16 +73,3 @@ class AcknowledgeScreen(ModalScreen[None]):
 
     def show_problem(self, message: str) -> None:
         self.query_one("#ack-problem", Static).update(Text(clean(message, 300)))
-
-    def on_write_done(self, message: msg.WriteDone) -> None:
-        message.stop()
-        self.dismiss(None)
-        self.app.post_message(msg.WriteDone(message.kind, message.text))  # the app says it
-
-    def on_write_failed(self, message: msg.WriteFailed) -> None:
-        self._saving = False
-        self.show_problem(message.message)
-
-    def action_cancel(self) -> None:
-        if not self._saving:
-            self.dismiss(None)

@@ -8,6 +8,7 @@ from __future__ import annotations
 from typing import cast
 
 from lotwatch.tui.app import messages as msg
+from lotwatch.tui.app.screens.write_modal import WriteModal
 from lotwatch.tui.app.state import AppState
 from lotwatch.tui.render.safe_text import clean
 from lotwatch.tui.services.view_models import LotValue
@@ -16,11 +17,10 @@ from textual import on
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Vertical
-from textual.screen import ModalScreen
 from textual.widgets import Input, Static
 
 
-class ReasonScreen(ModalScreen[None]):
+class ReasonScreen(WriteModal):
     """Enter records; Esc cancels."""
 
     BINDINGS = [Binding("escape", "cancel", "Cancel")]
@@ -50,7 +50,7 @@ class ReasonScreen(ModalScreen[None]):
     def on_mount(self) -> None:
         self.query(Input).first().focus()
 
-    def _problem(self, text: str) -> None:
+    def show_problem(self, text: str) -> None:
         self.query_one("#reason-problem", Static).update(Text(clean(text, 300)))
 
     @on(Input.Submitted)
@@ -65,30 +65,17 @@ class ReasonScreen(ModalScreen[None]):
         new = (self.query_one("#new-value", Input).value.strip()
                if self.kind == "correct" else "")
         if self.kind == "correct" and not new:
-            self._problem("type the new value")
+            self.show_problem("type the new value")
             self.query_one("#new-value", Input).focus()
             return
         if not reason:
-            self._problem("a reason is required: say why the value changes")
+            self.show_problem("a reason is required: say why the value changes")
             self.query_one("#reason", Input).focus()
             return
         self._saving = True
-        self._problem("recording…")
+        self.show_problem("recording…")
         mid = self.value.measurement_id
         if self.kind == "correct":
             self.post_message(msg.CorrectValue(self, mid, new, reason))
         else:
             self.post_message(msg.VoidValue(self, mid, reason))
-
-    def on_write_done(self, message: msg.WriteDone) -> None:
-        message.stop()
-        self.dismiss(None)
-        self.app.post_message(msg.WriteDone(message.kind, message.text))  # the app says it
-
-    def on_write_failed(self, message: msg.WriteFailed) -> None:
-        self._saving = False
-        self._problem(message.message)
-
-    def action_cancel(self) -> None:
-        if not self._saving:
-            self.dismiss(None)
