@@ -43,21 +43,29 @@ def public_dir() -> Iterator[Path]:
         shutil.rmtree(d, ignore_errors=True)
 
 
+_PUBLIC_TREE: Path | None = None
+
+
 def _public_source_tree() -> Path:
-    """A folder under /tmp holding ``lotwatch/{store,stats,tui}`` as links to this checkout, so
-    another account's Python imports the code under test whether lotwatch is installed editable
-    (a path hook other accounts' interpreters do not load) or not."""
-    # one folder per checkout: several checkouts (worktrees) on one machine must not share links
+    """A world-readable folder under /tmp holding a copy of this checkout's ``lotwatch/{store,
+    stats,tui}`` and ``tests/tui/tui_helpers.py``, so another account's Python imports the code
+    under test even when the checkout itself is out of its reach (a clone in a 0700 folder) or
+    installed editable (a path hook other accounts' interpreters do not load). Copied once per
+    test process, one folder per checkout."""
+    global _PUBLIC_TREE
+    if _PUBLIC_TREE is not None:
+        return _PUBLIC_TREE
     tag = hashlib.sha256(str(ROOT.resolve()).encode()).hexdigest()[:10]
     d = Path(tempfile.gettempdir()) / f"lotwatch-src-{os.getuid()}-{tag}"
-    pkg = d / "lotwatch"
-    pkg.mkdir(parents=True, exist_ok=True)
+    shutil.rmtree(d, ignore_errors=True)
+    skip = shutil.ignore_patterns("__pycache__", "*.pyc")
     for name in ("store", "stats", "tui"):
-        link = pkg / name
-        if not link.is_symlink():
-            link.symlink_to(ROOT / name)
-    for p in (d, pkg):
-        p.chmod(0o755)
+        shutil.copytree(ROOT / name, d / "lotwatch" / name, ignore=skip)
+    (d / "tests" / "tui").mkdir(parents=True)
+    shutil.copy2(ROOT / "tests" / "tui" / "tui_helpers.py", d / "tests" / "tui")
+    for p in (d, *d.rglob("*")):
+        p.chmod(0o755 if p.is_dir() else 0o644)
+    _PUBLIC_TREE = d
     return d
 
 
@@ -92,22 +100,19 @@ class Accounts:
 
     def interpreter(self, user: str) -> list[str]:
         """A Python another account can run with lotwatch's packages: this one if they can
-        reach it, else the system Python of the same version with this venv's site-packages."""
+        reach it, else the system Python of the same version; either with a world-readable copy
+        of the code under test and this venv's site-packages on its path."""
         if self.python is not None:
             return self.python
         env = subprocess_env()
-        probe = "import polars, click, textual, scipy, lotwatch.tui.cli"
-        if _as(user, [sys.executable, "-c", probe], env).returncode == 0:
-            self.python = [sys.executable]
-            return self.python
+        probe = "import polars, click, textual, scipy, lotwatch.tui.cli, tests.tui.tui_helpers"
+        path = os.pathsep.join([str(_public_source_tree()), str(ROOT),
+                                sysconfig.get_paths()["purelib"]])
         version = f"python{sys.version_info.major}.{sys.version_info.minor}"
         system = shutil.which(version, path="/usr/bin:/usr/local/bin:/bin")
-        site = sysconfig.get_paths()["purelib"]
-        if system:
-            path = os.pathsep.join([str(_public_source_tree()), str(ROOT), site])
-            env2 = dict(env, PYTHONPATH=path)
-            if _as(user, [system, "-c", probe], env2).returncode == 0:
-                self.python = ["env", f"PYTHONPATH={path}", system]
+        for exe in (sys.executable, system):
+            if exe and _as(user, [exe, "-c", probe], dict(env, PYTHONPATH=path)).returncode == 0:
+                self.python = ["env", f"PYTHONPATH={path}", exe]
                 return self.python
         pytest.skip("no Python interpreter that another account may run has lotwatch's "
                     f"packages (this one, {sys.executable}, is not reachable by them)")
