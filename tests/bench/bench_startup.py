@@ -24,7 +24,7 @@ from lotwatch.store import Store  # noqa: E402
 
 GOAL_S = 0.3
 COMMANDS = [["alerts", "list"], ["settings", "list"], ["characteristic", "list"],
-            ["factor", "list"]]
+            ["factor", "list"], ["zone", "show"]]
 
 
 def _median_run(argv: list[str], repeats: int) -> float:

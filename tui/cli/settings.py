@@ -34,7 +34,7 @@ class _AllSettings:
 
     def __init__(self) -> None:
         from lotwatch.stats.detect import DetectorSettings
-        from lotwatch.stats.monitor import ReviewSettings
+        from lotwatch.stats.review_settings import ReviewSettings
 
         self.classes = (ReviewSettings, DetectorSettings)
         self.KEYS = {k: v for c in self.classes for k, v in c.KEYS.items()}
