@@ -7,22 +7,15 @@ from collections.abc import Iterator
 from typing import cast
 
 from lotwatch.tui.app import messages as msg
+from lotwatch.tui.app.screens.size_guard import SizeGuard, TooSmall
 from lotwatch.tui.app.state import AppState
-from rich.text import Text
 from textual.app import ComposeResult, SystemCommand
 from textual.binding import Binding
-from textual.events import Resize
 from textual.screen import Screen
-from textual.widgets import Footer, Static
-
-MIN_WIDTH, MIN_HEIGHT = 80, 24
+from textual.widgets import Footer
 
 
-class TooSmall(Static):
-    """Shown instead of the screen's content below 80×24 (cut p-values mislead)."""
-
-
-class LotwatchScreen(Screen[None]):
+class LotwatchScreen(SizeGuard, Screen[None]):
     """A full screen: ``compose_body`` gives its content; n and ? work here."""
 
     BINDINGS = [
@@ -42,18 +35,6 @@ class LotwatchScreen(Screen[None]):
 
     def compose_body(self) -> ComposeResult:
         yield from ()
-
-    def on_resize(self, event: Resize) -> None:
-        w, h = event.size
-        small = w < MIN_WIDTH or h < MIN_HEIGHT
-        self.set_class(small, "-too-small")
-        self.set_class(w >= 120, "-wide")
-        self.set_class(h < 32, "-short")
-        if small:
-            self.query_one(TooSmall).update(Text(
-                f"Terminal too small: {w}×{h}. lotwatch needs at least {MIN_WIDTH}×{MIN_HEIGHT} "
-                "to show its tables without cutting numbers. Enlarge the window (q quits).",
-                justify="center"))
 
     def palette_commands(self) -> Iterator[SystemCommand]:
         """This screen's commands for the palette (only ones that work here)."""

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from lotwatch.tui.app.screens.size_guard import SizeGuard
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Vertical
@@ -9,7 +10,7 @@ from textual.screen import ModalScreen
 from textual.widgets import Static
 
 
-class ConfirmScreen(ModalScreen[bool]):
+class ConfirmScreen(SizeGuard, ModalScreen[bool]):
     """Ask one question; dismiss with True (y) or False (n/Escape)."""
 
     BINDINGS = [

@@ -23,6 +23,7 @@ from lotwatch.tui.app.entry_checks import (
     split_values,
 )
 from lotwatch.tui.app.screens.confirm import ConfirmScreen
+from lotwatch.tui.app.screens.size_guard import SizeGuard
 from lotwatch.tui.app.state import AppState
 from lotwatch.tui.app.widgets.tag_input import TagInput
 from lotwatch.tui.render.safe_text import clean
@@ -49,7 +50,7 @@ class ValuesInput(Input):
         self.characteristic = characteristic
 
 
-class LotEntryScreen(ModalScreen[None]):
+class LotEntryScreen(SizeGuard, ModalScreen[None]):
     """Log one lot: its tags and the values of one or more characteristics."""
 
     BINDINGS = [

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from lotwatch.tui.app.screens.size_guard import SizeGuard
 from lotwatch.tui.app.widgets.caution import CAUTION
 from rich.text import Text
 from textual.app import ComposeResult
@@ -90,7 +91,7 @@ def binding_lines(title: str, bindings: list[BindingType]) -> Text:
     return text
 
 
-class HelpScreen(ModalScreen[None]):
+class HelpScreen(SizeGuard, ModalScreen[None]):
     """Scrollable help; Escape, q or ? closes it."""
 
     BINDINGS = [Binding("escape,q,question_mark", "close", "Close help")]

@@ -7,6 +7,7 @@ from __future__ import annotations
 from typing import cast
 
 from lotwatch.tui.app import messages as msg
+from lotwatch.tui.app.screens.size_guard import SizeGuard
 from lotwatch.tui.app.state import AppState
 from lotwatch.tui.app.widgets.caution import Caution
 from lotwatch.tui.app.widgets.compact import fill
@@ -36,7 +37,7 @@ def mark_cell(v: LotValue) -> str:
     return ", ".join(marks)
 
 
-class LotsScreen(Screen[None]):
+class LotsScreen(SizeGuard, Screen[None]):
     """Values of one group, newest first; the answer to every request comes back here."""
 
     BINDINGS = [

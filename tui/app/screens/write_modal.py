@@ -5,10 +5,11 @@ the refusal in its own problem line when it fails; Esc cancels unless a write is
 from __future__ import annotations
 
 from lotwatch.tui.app import messages as msg
+from lotwatch.tui.app.screens.size_guard import SizeGuard
 from textual.screen import ModalScreen
 
 
-class WriteModal(ModalScreen[None]):
+class WriteModal(SizeGuard, ModalScreen[None]):
     """Subclasses set ``self._saving`` when they post their request and implement
     ``show_problem``."""
 
