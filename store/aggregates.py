@@ -241,6 +241,10 @@ def check(store: Store) -> CheckReport:
         problems.append("the store file is damaged; the sums were not compared. Restore it "
                         "from a backup (see lotwatch restore)")
         return CheckReport(False, problems, 0, 0)
+    from lotwatch.store.file_generation import disk_problem
+
+    if not store.immutable and (copied := disk_problem(conn, store.path)) is not None:
+        problems.append(copied)
     for table, rowid, parent, _fk in conn.execute("PRAGMA foreign_key_check").fetchall()[:20]:
         problems.append(f"foreign key: {table} row {rowid} points to a missing {parent} row")
     # A few thousand rows each way: compare in Python after one pass of the recomputation.

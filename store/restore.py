@@ -24,7 +24,7 @@ from dataclasses import dataclass
 from datetime import UTC, datetime
 from pathlib import Path
 
-from lotwatch.store import opening, schema
+from lotwatch.store import file_generation, opening, schema
 from lotwatch.store.errors import StoreCorrupt, StoreError
 from lotwatch.store.transaction import DEFAULT_TIMEOUT, RESTORE_KEY, translate_error
 
@@ -98,6 +98,14 @@ def _keep_copy(target: Path, timeout: float) -> Path:
     return kept
 
 
+def _counters_before(conn: sqlite3.Connection) -> tuple[int, int] | None:
+    """The live store's write counters (``store.file_generation``), None if unreadable."""
+    try:
+        return file_generation.counters(conn)
+    except (sqlite3.DatabaseError, UnicodeDecodeError):
+        return None
+
+
 def _copy_pages(src: sqlite3.Connection, dst: sqlite3.Connection) -> None:
     src.backup(dst)  # the whole database in one step, under the destination's write lock
 
@@ -127,7 +135,9 @@ def restore(backup: str | os.PathLike[str], target: str | os.PathLike[str], *,
             kept = _keep_copy(target, timeout)
             dst = opening.connect(target, "rw", timeout)
             try:
+                before = _counters_before(dst)
                 _copy_pages(src, dst)
+                file_generation.after_restore(dst, target, before)
             except sqlite3.Error as exc:
                 raise translate_error(exc, target) or RestoreRefused(
                     f"cannot restore {target}: {exc}") from None

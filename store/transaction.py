@@ -16,6 +16,7 @@ from collections.abc import Iterator
 from contextlib import contextmanager
 from pathlib import Path
 
+from lotwatch.store import file_generation
 from lotwatch.store.errors import (
     StoreCorrupt,
     StoreError,
@@ -118,6 +119,7 @@ class Session:
         self._closed = False
         self._identity = file_identity(path)
         self._restored = restore_token(conn)
+        self._disk_seq = 0  # highest write counter seen in the file on disk (store.file_generation)
 
     def close(self) -> None:
         """Close the connection (idempotent). An open transaction is rolled back."""
@@ -157,8 +159,11 @@ class Session:
         self._begin_immediate()
         self._depth = 1
         try:
-            self._check_same_file()
+            counter = self._check_same_file()
+            changes = self.conn.total_changes
             yield self
+            if counter is not None and self.conn.total_changes != changes:
+                file_generation.advance(self.conn, *counter)
             self.conn.execute("COMMIT")
         except BaseException as exc:
             if self.conn.in_transaction:
@@ -190,12 +195,14 @@ class Session:
         with self.mapped():
             return int(self.conn.execute("PRAGMA data_version").fetchone()[0])
 
-    def _check_same_file(self) -> None:
-        """Refuse to write once the file was deleted, moved or replaced since it was opened:
-        SQLite would go on writing into the old file (lost with it), and the old ``-wal`` file
-        could later be replayed over the new one (https://www.sqlite.org/howtocorrupt.html)."""
+    def _check_same_file(self) -> tuple[int, int] | None:
+        """Refuse to write once the file was deleted, moved or replaced since it was opened
+        (another inode, or copied over in place: ``store.file_generation``): SQLite would go on
+        writing into the old file (lost with it), or the old ``-wal`` file could be replayed over
+        the new one (https://www.sqlite.org/howtocorrupt.html). Returns the write counter and floor
+        for ``file_generation.advance``."""
         if self._identity is None:
-            return
+            return None
         now = file_identity(self.path)
         if now is None:
             raise StoreMissing(
@@ -212,6 +219,11 @@ class Session:
                 f"{self.path} was restored from a backup (lotwatch restore) while lotwatch had "
                 "it open; nothing was stored. Open the store again to work on what it now holds."
             )
+        found = file_generation.check(self.conn, self.path, self._disk_seq)
+        if found is None:
+            raise StoreCorrupt(file_generation.overwritten_message(self.path))
+        self._disk_seq = found[0]
+        return found[1], found[2]
 
     def _begin_immediate(self) -> None:
         # The busy handler normally waits up to the timeout; SQLite can still return BUSY at once

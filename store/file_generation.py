@@ -1,0 +1,154 @@
+"""Noticing a store file copied over in place (``cp backup plant.sqlite``) while it is in use.
+
+A copy over the file keeps its inode, so the (device, inode) identity of ``store.identity`` does
+not change; but SQLite's write-ahead log and shared-memory index of the running sessions still
+describe the old file, and their pages are read over (and later checkpointed into) the copy
+(https://www.sqlite.org/howtocorrupt.html, section 1.3). lotwatch notices it with a counter:
+
+- every top-level write transaction adds one to ``write_seq`` in ``store_info``, so the value in
+  the file on disk is the counter of the last transaction checkpointed into it;
+- in WAL mode the file on disk only moves forward (a checkpoint copies committed pages from the
+  log into it) and never gets ahead of the log: its counter is at most the current one;
+- each write also records, as ``file_seq_floor``, the counter it found on disk, and a ``Session``
+  keeps the highest one it has seen. A file whose counter went below either floor was replaced
+  by an older copy; one whose counter is above the current one was replaced by another copy.
+
+The counter on disk is read through a second, ``immutable`` SQLite connection, which reads the
+main file alone (no log). It is SQLite's own file handle, so closing it does not drop the POSIX
+locks the process's other connections hold (SQLite keeps a descriptor open while a lock is held,
+https://www.sqlite.org/howtocorrupt.html, section 2.2; a plain ``open()``/``close()`` of the file
+would drop them).
+
+A copy of the same store that is not older than the file it replaces is a state the log has
+already passed through, page for page (SQLite's backup API and ``sqlite3 .backup`` copy pages as
+they are), so reading the log over it gives the current store: that case is harmless and is not
+reported.
+"""
+
+from __future__ import annotations
+
+import sqlite3
+import time
+from pathlib import Path
+
+SEQ_KEY = "write_seq"
+FLOOR_KEY = "file_seq_floor"
+
+_READ_TRIES = 3
+
+
+def _as_int(text: object) -> int:
+    try:
+        return max(0, int(str(text)))
+    except ValueError:
+        return 0
+
+
+def counters(conn: sqlite3.Connection) -> tuple[int, int] | None:
+    """(``write_seq``, ``file_seq_floor``) as ``conn`` sees them (0 when not yet written), or
+    None when the store has no ``store_info`` table yet (a store being created)."""
+    try:
+        rows = dict(conn.execute("SELECT key, value FROM store_info WHERE key IN (?, ?)",
+                                 (SEQ_KEY, FLOOR_KEY)).fetchall())
+    except sqlite3.OperationalError as exc:
+        if "no such table" in str(exc):
+            return None
+        raise
+    return _as_int(rows.get(SEQ_KEY, 0)), _as_int(rows.get(FLOOR_KEY, 0))
+
+
+def seq_on_disk(path: Path) -> int | None:
+    """The ``write_seq`` held by the main file at ``path`` itself, log ignored; None when the
+    file holds no store yet. Raises ``sqlite3.DatabaseError`` when the file cannot be read as
+    a database (after a few tries: a checkpoint may be writing the page just then)."""
+    from lotwatch.store.opening import connect
+
+    for attempt in range(_READ_TRIES):
+        conn = None
+        try:
+            conn = connect(path, "ro", 5.0, immutable=True)
+            got = counters(conn)
+            return None if got is None else got[0]
+        except sqlite3.DatabaseError:
+            if attempt == _READ_TRIES - 1:
+                raise
+            time.sleep(0.05 * (attempt + 1))
+        finally:
+            if conn is not None:
+                conn.close()
+    return None  # pragma: no cover - the loop returns or raises
+
+
+def overwritten_message(path: Path) -> str:
+    return (f"{path} was copied over (replaced in place by another copy) while lotwatch had it "
+            "open; nothing was stored. Its write-ahead log no longer matches the file, so the "
+            "store may now mix old and new contents. Close every lotwatch window and command "
+            f"using it, run: lotwatch check --db {path}, and put a backup back only with: "
+            f"lotwatch restore BACKUP --db {path}")
+
+
+def check(conn: sqlite3.Connection, path: Path, seen: int) -> tuple[int, int, int] | None:
+    """Inside a write transaction (the write lock held): None when ``path`` was copied over in
+    place, else (the new highest counter seen on disk, the store's counter, its new floor) for
+    ``advance``. ``seen`` is the highest counter this session has seen on disk so far."""
+    view = counters(conn)
+    if view is None:
+        return seen, -1, 0
+    current, floor = view
+    try:
+        disk = seq_on_disk(path)
+    except sqlite3.DatabaseError:
+        return None  # the file itself is no longer a readable database
+    if disk is not None:
+        if disk < max(floor, seen) or disk > current:
+            return None
+        seen = max(seen, disk)
+    return seen, current, max(floor, seen)
+
+
+def advance(conn: sqlite3.Connection, current: int, floor: int) -> None:
+    """Count a write that changed the store (before its COMMIT), with ``check``'s figures."""
+    if current < 0:
+        return  # a store being created: no store_info yet when its transaction began
+    conn.execute(
+        "INSERT INTO store_info(key, value) VALUES (?, ?), (?, ?) "
+        "ON CONFLICT(key) DO UPDATE SET value = excluded.value",
+        (SEQ_KEY, str(current + 1), FLOOR_KEY, str(floor)))
+
+
+def disk_problem(conn: sqlite3.Connection, path: Path) -> str | None:
+    """For ``check``: a sentence when the file on disk holds a counter below the store's floor
+    (it was copied over by an older copy while in use), else None. Only the floor is compared:
+    it never moves back, whereas a write committed meanwhile could put the file's counter above
+    the one this read saw."""
+    view = counters(conn)
+    if view is None:
+        return None
+    try:
+        disk = seq_on_disk(path)
+    except sqlite3.DatabaseError as exc:
+        return f"the file on disk cannot be read as a database ({exc})"
+    if disk is not None and disk < view[1]:
+        return ("the file on disk is older than its write-ahead log allows: it was copied over "
+                "while in use, and the store may mix old and new contents. Put a backup back "
+                "with lotwatch restore BACKUP")
+    return None
+
+
+def after_restore(conn: sqlite3.Connection, path: Path, before: tuple[int, int] | None) -> None:
+    """After a backup was copied into the live store at ``path`` through ``conn`` (SQLite's
+    backup API, ``store.restore``): give the restored contents a counter above every one the
+    store had (``before``: its counters before the copy) and above the file on disk, so the
+    file's counter keeps only moving forward."""
+    view = counters(conn)
+    if view is None:
+        return
+    try:
+        disk = seq_on_disk(path) or 0
+    except sqlite3.DatabaseError:
+        disk = 0
+    old_seq = before[0] if before else 0
+    conn.execute(
+        "INSERT INTO store_info(key, value) VALUES (?, ?), (?, ?) "
+        "ON CONFLICT(key) DO UPDATE SET value = excluded.value",
+        (SEQ_KEY, str(max(view[0], old_seq, disk) + 1), FLOOR_KEY, str(disk)))
