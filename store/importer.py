@@ -40,7 +40,6 @@ from __future__ import annotations
 
 from collections.abc import Callable, Iterable
 from dataclasses import dataclass, field
-from datetime import UTC, datetime
 from pathlib import Path
 from typing import Any
 
@@ -49,11 +48,9 @@ from lotwatch.store.export import NeutralWriter
 from lotwatch.store.import_cells import parse_timestamp
 from lotwatch.store.import_parse import Layout, mixed_times_note, parse_values
 from lotwatch.store.import_read import FORMATS, FileRefused, read_frame
+from lotwatch.store.rules import import_years
 
 LAYOUTS = ("auto", "long", "wide")
-# Years a measurement may carry unless the import says otherwise (--years FROM-TO).
-EARLIEST_YEAR = 1970
-LATEST_YEAR_AHEAD = 1  # years after the current one
 
 __all__ = ["FORMATS", "LAYOUTS", "FileRefused", "ImportOptions", "ImportSummary", "ParsedImport",
            "import_file", "parse_import", "parse_timestamp", "rejected_path", "store_import",
@@ -61,8 +58,9 @@ __all__ = ["FORMATS", "LAYOUTS", "FileRefused", "ImportOptions", "ImportSummary"
 
 
 def default_years() -> tuple[int, int]:
-    """The plausible measurement years: 1970 to next year (a lotwatch default)."""
-    return EARLIEST_YEAR, datetime.now(UTC).year + LATEST_YEAR_AHEAD
+    """The plausible measurement years unless the import says otherwise (--years FROM-TO):
+    ``store.rules.import_years``, the one home of the year bounds."""
+    return import_years()
 
 
 @dataclass

@@ -18,12 +18,26 @@ import re
 from datetime import UTC, datetime, timedelta
 
 FUTURE_SLACK = timedelta(minutes=10)
+# The one home of the year bounds. MIN_YEAR: the earliest plausible measurement (common
+# practice: older stamps are typing mistakes). FIRST_YEAR..LAST_YEAR: the calendar lotwatch can
+# store and compute windows in at all (four-digit years in the stored text form, room for window
+# arithmetic); used for review dates and weeks (``store.timeutil``).
 MIN_YEAR = 1970
+FIRST_YEAR, LAST_YEAR = 1000, 9000
+# An import's default plausible years run from MIN_YEAR to this many years after the current one
+# (``import --years FROM-TO`` sets others).
+IMPORT_YEARS_AHEAD = 1
 MAX_NAME = 80
 
 _FACTOR_KEY = re.compile(r"[^\W\d_][\w.-]*")
 _CHAR_NAME = re.compile(r"[^\W\d_][\w .()/%#+-]*")
 _CHAR_BAD = re.compile(r"""[;=,"'`\\|<>{}\[\]]""")
+
+
+def import_years(now: datetime | None = None) -> tuple[int, int]:
+    """The plausible measurement years an import accepts by default: ``MIN_YEAR`` to
+    ``IMPORT_YEARS_AHEAD`` years after the current one (a lotwatch default)."""
+    return MIN_YEAR, (now or datetime.now(UTC)).year + IMPORT_YEARS_AHEAD
 
 
 def time_problem(when: datetime, now: datetime | None = None) -> str | None:

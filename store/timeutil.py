@@ -10,10 +10,10 @@ from __future__ import annotations
 
 from datetime import UTC, date, datetime
 
+from lotwatch.store.rules import FIRST_YEAR, LAST_YEAR
+
 STORED_FORMAT = "%Y-%m-%dT%H:%M:%SZ"
 DISPLAY_FORMAT = "%Y-%m-%d %H:%M"
-# The calendar lotwatch can store and compute windows in (four-digit years, room for arithmetic).
-FIRST_YEAR, LAST_YEAR = 1000, 9000
 
 
 class BadTime(ValueError):

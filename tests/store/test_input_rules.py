@@ -57,3 +57,30 @@ def test_tag_keys_with_equals_or_semicolon_are_refused(fill: Store, dump) -> Non
     with pytest.raises(BadInput, match="KEY=VALUE"):
         fill.log_lots([LotEntry("fill_volume", ["500.0"], {**TAGS, "a=b": "x"}, lot="T1")])
     assert dump(fill) == before
+
+
+def test_the_year_bounds_have_one_home() -> None:
+    """Every year bound is defined in store.rules and only imported elsewhere."""
+    import re
+    from pathlib import Path
+
+    from lotwatch.store import rules, timeutil
+
+    assert (timeutil.FIRST_YEAR, timeutil.LAST_YEAR) == (rules.FIRST_YEAR, rules.LAST_YEAR)
+    assert rules.FIRST_YEAR <= rules.MIN_YEAR <= rules.LAST_YEAR
+    root = Path(__file__).resolve().parents[2]
+    defines = re.compile(r"^\s*(?:[A-Z_]*YEARS?\b\s*,\s*)*[A-Z_]*YEARS?\s*(?::[^=]*)?=(?!=)",
+                         re.MULTILINE)
+    homes = sorted(str(p.relative_to(root)) for folder in ("store", "stats", "tui")
+                   for p in (root / folder).rglob("*.py") if defines.search(p.read_text()))
+    assert homes == ["store/rules.py"]
+
+
+def test_measurement_years_outside_the_bounds_are_refused(fill: Store, dump) -> None:
+    from lotwatch.store.rules import MIN_YEAR
+
+    before = dump(fill)
+    for when in (f"{MIN_YEAR - 1}-12-31T12:00:00Z", "0999-06-01T00:00:00Z"):
+        with pytest.raises(BadInput):
+            fill.log_lots([LotEntry("fill_volume", ["500.0"], TAGS, lot="Y1", measured_at=when)])
+    assert dump(fill) == before
