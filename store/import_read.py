@@ -149,7 +149,8 @@ def read_frame(path: Path, fmt: str, delimiter: str | None, notes: list[str]) ->
         header = next(csv.reader(io.StringIO(first_line), delimiter=delimiter), [])
     except csv.Error as exc:
         raise FileRefused(f"{path.name}: the header line cannot be read ({exc})") from None
-    names = [h.strip() for h in header]
+    # a header name neutralised by lotwatch's export ("'@key") reads back as it was stored
+    names = [re.sub(_NEUTRALISED, r"\1", h.strip()) for h in header]
     repeated = sorted({h for h in names if names.count(h) > 1})
     if repeated:
         raise FileRefused(f"{path.name}: the header names column(s) "

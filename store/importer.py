@@ -27,8 +27,8 @@ Timestamps are ISO 8601 (``2026-11-03T08:15:00Z``, ``2026-11-03 08:15``, ``2026-
 timestamp without a UTC offset is read as local time of this computer (the usual convention of lab
 exports), then converted to UTC; so is a Parquet timestamp column without a time zone.
 
-A CSV text cell starting with a single quote followed by ``=``, ``+``, ``-``, ``@``, tab or CR
-loses the quote: that is how ``lotwatch export`` neutralises formulas, so an export imports back
+A CSV text cell (or header name) starting with a single quote followed by ``=``, ``+``, ``-``,
+``@``, tab or CR loses the quote: that is how ``lotwatch export`` neutralises formulas, so an export imports back
 unchanged.
 
 Encodings: UTF-8 with or without a byte order mark, UTF-16 with a byte order mark; a file that is
