@@ -198,18 +198,20 @@ class Store(Session):
     def add_factor(self, name: str, required: bool = False) -> Factor:
         return catalog.add_factor(self, name, required)
 
-    def retire_characteristic(self, name: str, *, retire: bool = True) -> None:
-        """Hide a characteristic from reviews, detectors and the board (data kept);
-        ``retire=False`` restores it (``store.retire``)."""
+    def retire_characteristic(self, name: str, *, retire: bool = True) -> int:
+        """Hide a characteristic from reviews, detectors and the board (data kept; its active
+        alerts cleared with the reason); ``retire=False`` restores it (``store.retire``).
+        Returns the number of alerts cleared."""
         from lotwatch.store.retire import retire_characteristic
 
-        retire_characteristic(self, name, retire=retire)
+        return retire_characteristic(self, name, retire=retire)
 
-    def retire_factor(self, name: str, *, retire: bool = True) -> None:
-        """Hide a grouping factor from reviews and stop requiring it (data kept)."""
+    def retire_factor(self, name: str, *, retire: bool = True) -> int:
+        """Hide a grouping factor from reviews and stop requiring it (data kept; active alerts
+        by it cleared with the reason). Returns the number of alerts cleared."""
         from lotwatch.store.retire import retire_factor
 
-        retire_factor(self, name, retire=retire)
+        return retire_factor(self, name, retire=retire)
 
     def rename_factor(self, old: str, new: str) -> None:
         """Rename a grouping factor everywhere it is named, in one transaction."""

@@ -3,12 +3,20 @@
 A retired characteristic or grouping factor is hidden from reviews, detectors, the board and
 the entry form from then on; its lots, values, day sums, detector history and alerts are kept,
 and ``restore`` brings it back (the detectors then catch up from its first day). A retired
-factor is no longer required. Renaming a factor renames the tag key on every lot and every
+factor is no longer required.
+
+An alert still open (or acknowledged) on what is retired would stay open forever, since no
+detector looks at it any more, and an alerts list full of alerts nobody can clear teaches people
+to ignore it. Retiring therefore closes them in the same transaction, each with a ``cleared``
+event that names who retired what, and says the signal was not resolved (common practice: a
+record is closed with its reason, never left dangling or deleted). If the characteristic or
+factor is restored and the signal is still there, the detectors reopen the alert. Renaming a factor renames the tag key on every lot and every
 place that names the factor (day sums, alerts, detector state) in one transaction.
 """
 
 from __future__ import annotations
 
+import json
 from typing import TYPE_CHECKING
 
 from lotwatch.store.errors import Conflict, NotFound
@@ -41,8 +49,29 @@ def _factor_row(s: Session, name: str) -> str | None:
     return row[0]
 
 
-def retire_characteristic(s: Session, name: str, *, retire: bool = True) -> None:
-    """Hide ``name`` from reviews (``retire=False`` brings it back). Data is kept."""
+RETIRED_NOTE = ("closed because the {what} {name!r} was retired: no longer watched. The signal "
+                "was not resolved; review the data before relying on it.")
+
+
+def _close_alerts(s: Session, where: str, params: tuple, what: str, name: str) -> int:
+    """Clear every alert not yet cleared matching ``where`` with an event saying why."""
+    stamp = format_stored(now_utc())
+    ids = [int(r[0]) for r in s.conn.execute(
+        f"SELECT id FROM alerts WHERE state != 'cleared' AND {where} ORDER BY id", params)]
+    note = RETIRED_NOTE.format(what=what, name=name)
+    details = json.dumps({"reason": f"{what} retired", what: name})
+    for alert_id in ids:
+        s.conn.execute("UPDATE alerts SET state = 'cleared', updated_at = ? WHERE id = ?",
+                       (stamp, alert_id))
+        s.conn.execute(
+            "INSERT INTO alert_events(alert_id, at, event, by, note, window, details) "
+            "VALUES (?, ?, 'cleared', ?, ?, NULL, ?)", (alert_id, stamp, s.user, note, details))
+    return len(ids)
+
+
+def retire_characteristic(s: Session, name: str, *, retire: bool = True) -> int:
+    """Hide ``name`` from reviews (``retire=False`` brings it back). Data is kept; alerts still
+    active on it are cleared with an event giving the reason. Returns how many were cleared."""
     with s.write():
         cid, retired = _char_row(s, name)
         if retire and retired is not None:
@@ -55,11 +84,14 @@ def retire_characteristic(s: Session, name: str, *, retire: bool = True) -> None
             # the detectors skipped it while retired: recompute from its first day
             s.conn.execute("DELETE FROM detector_days WHERE characteristic_id = ?", (cid,))
             s.conn.execute("DELETE FROM detector_progress WHERE characteristic_id = ?", (cid,))
+            return 0
+        return _close_alerts(s, "characteristic_id = ?", (cid,), "characteristic", name)
 
 
-def retire_factor(s: Session, name: str, *, retire: bool = True) -> None:
+def retire_factor(s: Session, name: str, *, retire: bool = True) -> int:
     """Hide factor ``name`` from reviews and stop requiring it (``retire=False`` brings it back,
-    not required). Tags and day sums are kept."""
+    not required). Tags and day sums are kept; alerts still active on comparisons by it are
+    cleared with an event giving the reason. Returns how many were cleared."""
     with s.write():
         retired = _factor_row(s, name)
         if retire and retired is not None:
@@ -68,6 +100,7 @@ def retire_factor(s: Session, name: str, *, retire: bool = True) -> None:
             raise Conflict(f"factor {name!r} is not retired")
         s.conn.execute("UPDATE factors SET retired_at = ?, required = 0 WHERE name = ?",
                        (format_stored(now_utc()) if retire else None, name))
+        return _close_alerts(s, "factor = ?", (name,), "factor", name) if retire else 0
 
 
 def rename_factor(s: Session, old: str, new: str) -> None:

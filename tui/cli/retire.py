@@ -16,10 +16,18 @@ from lotwatch.tui.cli.setup import characteristic_group, factor_group
 @store_errors
 def characteristic_retire(name: str, db_path: Path) -> None:
     """Stop reviewing characteristic NAME: it leaves reviews, detectors, the board and the entry
-    form. Its values, history and alerts are kept; `characteristic restore` brings it back."""
+    form. Its values, history and alerts are kept (alerts still active are cleared, with the
+    reason in their history); `characteristic restore` brings it back."""
     with open_store(db_path) as store:
-        store.retire_characteristic(name)
+        closed = store.retire_characteristic(name)
     click.echo(plain(f"Retired characteristic {name}: no longer reviewed; its data is kept."))
+    _say_closed(closed)
+
+
+def _say_closed(closed: int) -> None:
+    if closed:
+        click.echo(f"Cleared {closed} active alert(s) on it, with the reason in their history "
+                   "(the signal was not resolved; see `alerts list --state cleared`).")
 
 
 @click.command("restore")
@@ -41,8 +49,9 @@ def factor_retire(key: str, db_path: Path) -> None:
     """Stop comparing groups by factor KEY and stop requiring it. Lots keep their KEY tags;
     `factor restore` brings it back."""
     with open_store(db_path) as store:
-        store.retire_factor(key)
+        closed = store.retire_factor(key)
     click.echo(plain(f"Retired factor {key}: no longer compared or required; tags are kept."))
+    _say_closed(closed)
 
 
 @click.command("restore")
