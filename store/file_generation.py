@@ -13,11 +13,21 @@ describe the old file, and their pages are read over (and later checkpointed int
   keeps the highest one it has seen. A file whose counter went below either floor was replaced
   by an older copy; one whose counter is above the current one was replaced by another copy.
 
+The counter on disk is read while other processes may be checkpointing into the file (a page
+half copied, the header already naming pages not yet written); a value counts only when two
+reads agree, and a write that finds no steady value goes ahead uncounted against the floor (the
+next write reads again; a copied-over file sits still and reads steadily).
+
 The counter on disk is read through a second, ``immutable`` SQLite connection, which reads the
 main file alone (no log). It is SQLite's own file handle, so closing it does not drop the POSIX
 locks the process's other connections hold (SQLite keeps a descriptor open while a lock is held,
 https://www.sqlite.org/howtocorrupt.html, section 2.2; a plain ``open()``/``close()`` of the file
 would drop them).
+
+What this cannot do: once any connection checkpoints the old log into the copy (SQLite does
+so when the last connection closes), the file's counter comes from the log again and the copy is
+mixed for good; ``PRAGMA integrity_check`` (``check``) then finds most such damage, and the repair
+is always ``lotwatch restore`` of the backup (``store.restore``).
 
 A copy of the same store that is not older than the file it replaces is a state the log has
 already passed through, page for page (SQLite's backup API and ``sqlite3 .backup`` copy pages as
@@ -34,7 +44,7 @@ from pathlib import Path
 SEQ_KEY = "write_seq"
 FLOOR_KEY = "file_seq_floor"
 
-_READ_TRIES = 3
+_READ_TRIES = 4
 
 
 def _as_int(text: object) -> int:
@@ -57,26 +67,38 @@ def counters(conn: sqlite3.Connection) -> tuple[int, int] | None:
     return _as_int(rows.get(SEQ_KEY, 0)), _as_int(rows.get(FLOOR_KEY, 0))
 
 
-def seq_on_disk(path: Path) -> int | None:
-    """The ``write_seq`` held by the main file at ``path`` itself, log ignored; None when the
-    file holds no store yet. Raises ``sqlite3.DatabaseError`` when the file cannot be read as
-    a database (after a few tries: a checkpoint may be writing the page just then)."""
+def _read_once(path: Path) -> int | None:
     from lotwatch.store.opening import connect
 
+    conn = connect(path, "ro", 5.0, immutable=True)
+    try:
+        got = counters(conn)
+    finally:
+        conn.close()
+    return None if got is None else got[0]
+
+
+class Unsettled(Exception):
+    """The file on disk could not be read the same way twice (a checkpoint of another process
+    was copying pages into it at that moment, or it is not a database any more)."""
+
+
+def seq_on_disk(path: Path) -> int | None:
+    """The ``write_seq`` held by the main file at ``path`` itself, log ignored; None when the
+    file holds no store yet.
+
+    The file is read without SQLite's locks, so a checkpoint of another process may be copying
+    pages into it meanwhile and a read can fail or, rarely, see a page half written: a value
+    counts only when two reads in a row agree. Raises ``Unsettled`` when they never do."""
     for attempt in range(_READ_TRIES):
-        conn = None
         try:
-            conn = connect(path, "ro", 5.0, immutable=True)
-            got = counters(conn)
-            return None if got is None else got[0]
-        except sqlite3.DatabaseError:
-            if attempt == _READ_TRIES - 1:
-                raise
-            time.sleep(0.05 * (attempt + 1))
-        finally:
-            if conn is not None:
-                conn.close()
-    return None  # pragma: no cover - the loop returns or raises
+            first = _read_once(path)
+            if _read_once(path) == first:
+                return first
+        except (sqlite3.DatabaseError, UnicodeDecodeError):
+            pass
+        time.sleep(0.02 * (attempt + 1))
+    raise Unsettled(f"{path} could not be read steadily")
 
 
 def overwritten_message(path: Path) -> str:
@@ -97,8 +119,10 @@ def check(conn: sqlite3.Connection, path: Path, seen: int) -> tuple[int, int, in
     current, floor = view
     try:
         disk = seq_on_disk(path)
-    except sqlite3.DatabaseError:
-        return None  # the file itself is no longer a readable database
+    except Unsettled:
+        # not conclusive: this write goes ahead uncounted against the floor (the next one
+        # reads again); a copied-over file is a still, whole database and reads steadily
+        return seen, current, floor
     if disk is not None:
         if disk < max(floor, seen) or disk > current:
             return None
@@ -126,8 +150,8 @@ def disk_problem(conn: sqlite3.Connection, path: Path) -> str | None:
         return None
     try:
         disk = seq_on_disk(path)
-    except sqlite3.DatabaseError as exc:
-        return f"the file on disk cannot be read as a database ({exc})"
+    except Unsettled:
+        return None  # busy with a checkpoint: PRAGMA integrity_check covers a damaged file
     if disk is not None and disk < view[1]:
         return ("the file on disk is older than its write-ahead log allows: it was copied over "
                 "while in use, and the store may mix old and new contents. Put a backup back "
@@ -145,7 +169,7 @@ def after_restore(conn: sqlite3.Connection, path: Path, before: tuple[int, int] 
         return
     try:
         disk = seq_on_disk(path) or 0
-    except sqlite3.DatabaseError:
+    except Unsettled:
         disk = 0
     old_seq = before[0] if before else 0
     conn.execute(
