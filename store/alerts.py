@@ -45,6 +45,9 @@ class Alert:
     size_high: float | None = None
     percent_of_tolerance: float | None = None  # 100 × size / (USL − LSL)
     evidence: float | None = None  # the detector's statistic / its threshold when last written
+    # why a cleared alert was closed when it was not the detector's doing (the note of its
+    # latest 'cleared' event, e.g. its characteristic was retired: store.retire); else None
+    closed_because: str | None = None
 
 
 @dataclass(frozen=True)
@@ -64,7 +67,9 @@ class AlertEvent:
 _SELECT = """
 SELECT a.id, c.name, a.factor, a.state, a.opened_at, a.opened_window, a.last_window, a.groups,
        a.direction, a.size, a.size_fraction, a.q, a.updated_at, a.kind, a.onset, a.detected_on,
-       a.size_low, a.size_high, a.percent_of_tolerance, a.evidence
+       a.size_low, a.size_high, a.percent_of_tolerance, a.evidence,
+       CASE WHEN a.state = 'cleared' THEN (SELECT e.note FROM alert_events e
+            WHERE e.alert_id = a.id AND e.event = 'cleared' ORDER BY e.id DESC LIMIT 1) END
 FROM alerts a JOIN characteristics c ON c.id = a.characteristic_id
 """
 
@@ -73,7 +78,7 @@ def _alert(row: tuple) -> Alert:
     groups = json.loads(row[7]) if row[7] else []
     return Alert(int(row[0]), row[1], row[2], row[3], row[4], row[5], row[6], list(groups), row[8],
                  row[9], row[10], row[11], row[12], row[13], row[14], row[15], row[16], row[17],
-                 row[18], row[19])
+                 row[18], row[19], row[20])
 
 
 def list_alerts(store, *, state: str | None = None, characteristic: str | None = None,

@@ -320,7 +320,7 @@ def build_demo_store(
 def demo_summary(store) -> str:
     """A few lines describing the demo store: scenario, size, characteristics, planted effects."""
     count, first, last = store.conn.execute(
-        "SELECT count(*), min(measured_at), max(measured_at) FROM measurements WHERE voided = 0"
+        "SELECT count(*), min(day), max(day) FROM measurements WHERE voided = 0"
     ).fetchone()
     lots = store.conn.execute("SELECT count(*) FROM lots").fetchone()[0]
     sites = store.tag_values("site")
@@ -331,7 +331,7 @@ def demo_summary(store) -> str:
         f"{len(sites)} plants ({', '.join(sites)}), {len(lines)} filling lines and "
         f"{len(shifts)} shifts ({', '.join(shifts)}).",
         f"{count:,} measurements in {lots:,} lots"
-        + (f", {first[:10]} to {last[:10]} (UTC)." if first else "."),
+        + (f", plant days {first} to {last} ({store.plant_zone})." if first else "."),
         "Characteristics:",
     ]
 

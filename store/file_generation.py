@@ -68,9 +68,9 @@ def counters(conn: sqlite3.Connection) -> tuple[int, int] | None:
 
 
 def _read_once(path: Path) -> int | None:
-    from lotwatch.store.opening import connect
-
-    conn = connect(path, "ro", 5.0, immutable=True)
+    # SQLite's own handle on the main file alone (no log, no locks): see the module docstring
+    uri = path.absolute().as_uri() + "?mode=ro&immutable=1"
+    conn = sqlite3.connect(uri, uri=True, timeout=5.0, isolation_level=None)
     try:
         got = counters(conn)
     finally:

@@ -49,8 +49,8 @@ def _factor_row(s: Session, name: str) -> str | None:
     return row[0]
 
 
-RETIRED_NOTE = ("closed because the {what} {name!r} was retired: no longer watched. The signal "
-                "was not resolved; review the data before relying on it.")
+RETIRED_NOTE = ("the {what} {name!r} was retired, so no detector watches it any more; the "
+                "signal was not resolved: review the data before relying on it.")
 
 
 def _close_alerts(s: Session, where: str, params: tuple, what: str, name: str) -> int:

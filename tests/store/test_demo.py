@@ -196,6 +196,9 @@ def test_summary_mentions_scenario_and_effects(demo):
     n_live = demo[1].filter(~pl.col("voided")).height
     assert f"{n_live:,} measurements" in summary
     assert "Riverbend" in summary and "fill_volume" in summary
+    # days are plant days, and the summary says which zone (issue 11, item 3)
+    days = sorted(demo[1].filter(~pl.col("voided"))["measured_at"].dt.date().unique())
+    assert f"plant days {days[0]} to {days[-1]} (UTC)" in summary  # the demo plant keeps UTC
     for e in DEMO_EFFECTS:
         if not e.implied:
             assert e.description in summary

@@ -132,7 +132,7 @@ def analyze_command(file: Path, value_col: str, by_col: str, resolution: str | N
         return
     from lotwatch.tui.render.battery_text import render_battery
 
-    click.echo(render_battery(result), nl=False)
+    click.echo(render_battery(result, resolution=resolution), nl=False)
 
 
 def register(main: click.Group) -> None:

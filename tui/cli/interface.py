@@ -16,16 +16,17 @@ def _replay_reviews(path: Path) -> tuple[int, int]:
 
     Returns (reviews recorded, alerts opened). Runs the real review engine on the demo data.
     """
-    from datetime import UTC, datetime, timedelta
+    from datetime import timedelta
 
     from lotwatch.store import Store
     from lotwatch.tui.services.review_engine import run_review
+    from lotwatch.tui.services.review_inputs import plant_today
 
-    today = datetime.now(UTC).date()
-    last_sunday = today - timedelta(days=today.isoweekday() % 7)
-    days = [last_sunday - timedelta(weeks=i) for i in range(REPLAY_WEEKS - 1, -1, -1)]
     opened = 0
     with Store.open(path) as store:
+        today = plant_today(store.plant_zone)  # weeks are the plant's calendar weeks
+        last_sunday = today - timedelta(days=today.isoweekday() % 7)
+        days = [last_sunday - timedelta(weeks=i) for i in range(REPLAY_WEEKS - 1, -1, -1)]
         for day in days:
             opened += len(run_review(store, as_of=day, persist=True,
                                      by="weekly review (demo replay)").opened)

@@ -34,6 +34,18 @@ def num(x: float | None, width: int = 10, digits: int = 6) -> str:
     return f"{x:.0e}".rjust(width)
 
 
+def meas(x: float | None, resolution: str | None, width: int = 10) -> str:
+    """A measured quantity (mean, SD, limit, difference) right-aligned in ``width``: with a
+    resolution, its decimals plus one (``render.numbers.measured``, the one rule of every
+    screen); without one (a file analysed with no --resolution), six significant digits."""
+    if resolution is None or x is None or not math.isfinite(x):
+        return num(x, width)
+    text = numbers.measured(x, resolution)
+    if width <= 0:
+        return text
+    return text.rjust(width) if len(text) <= width else num(x, width)
+
+
 def pval(p: float | None, width: int = 8) -> str:
     """A p-value cell in the one style of ``render.numbers.pval``, right-aligned."""
     if p is None or math.isnan(p):
@@ -99,14 +111,15 @@ def _checks(r: BatteryResult) -> list[str]:
     return lines
 
 
-def _groups(r: BatteryResult, unit: str) -> list[str]:
+def _groups(r: BatteryResult, unit: str, res: str | None) -> list[str]:
     u = f" ({clean(unit, 10)})" if unit else ""
     lines = _heading(f"Groups{u}, {1 - r.alpha:g} confidence intervals of the mean")
     lines.append(f"{'group':<14}{'n':>5} {'mean':>10} {'sd':>9} {'CI low':>10} {'CI high':>10} "
                  f"{'vs others':>10} {'let':<4}")
     for g in r.groups:
-        lines.append(f"{clean(g.name, 14):<14}{g.n:>5} {num(g.mean)} {num(g.sd, 9)} "
-                     f"{num(g.ci_low)} {num(g.ci_high)} {num(g.diff_from_others)} "
+        lines.append(f"{clean(g.name, 14):<14}{g.n:>5} {meas(g.mean, res)} "
+                     f"{meas(g.sd, res, 9)} {meas(g.ci_low, res)} {meas(g.ci_high, res)} "
+                     f"{meas(g.diff_from_others, res)} "
                      f"{clean(r.letters.get(g.name, ''), 4):<4}".rstrip())
     for e in r.excluded:
         lines.append(f"{clean(e.name, 14):<14}{e.n:>5}  excluded: {clean(e.reason)}")
@@ -117,7 +130,8 @@ def _groups(r: BatteryResult, unit: str) -> list[str]:
     return lines
 
 
-def _pairs(title: str, pairs: list[PairComparison], ranks: bool = False) -> list[str]:
+def _pairs(title: str, pairs: list[PairComparison], ranks: bool = False,
+           res: str | None = None) -> list[str]:
     if not pairs:
         return []
     lines = _heading(title)
@@ -125,31 +139,36 @@ def _pairs(title: str, pairs: list[PairComparison], ranks: bool = False) -> list
     lines.append(f"{'pair':<29}{diff:>10} {'lower':>10} {'upper':>10} {'p adj':>9} sig")
     for p in pairs:
         label = f"{clean(p.a, 13)} - {clean(p.b, 13)}"
-        lines.append(f"{label:<29}{num(p.diff)} {num(p.lower)} {num(p.upper)} {pval(p.p, 9)} "
+        r_ = None if ranks else res  # mean ranks are not in the data's unit
+        lines.append(f"{label:<29}{meas(p.diff, r_)} {meas(p.lower, r_)} {meas(p.upper, r_)} "
+                     f"{pval(p.p, 9)} "
                      f"{'yes' if p.significant else 'no'}")
     return lines
 
 
-def _dunnett(r: BatteryResult) -> list[str]:
+def _dunnett(r: BatteryResult, res: str | None) -> list[str]:
     if r.dunnett is None:
         return []
     lines = _heading(f"Dunnett: each group against {clean(r.reference or '', 30)}")
     lines.append(f"{'group':<29}{'diff':>10} {'lower':>10} {'upper':>10} {'p adj':>9} sig")
     for c in r.dunnett:
-        lines.append(f"{clean(c.group, 29):<29}{num(c.diff)} {num(c.lower)} {num(c.upper)} "
+        lines.append(f"{clean(c.group, 29):<29}{meas(c.diff, res)} {meas(c.lower, res)} "
+                     f"{meas(c.upper, res)} "
                      f"{pval(c.p, 9)} {'yes' if c.significant else 'no'}")
     return lines
 
 
-def _anom(r: BatteryResult) -> list[str]:
+def _anom(r: BatteryResult, res: str | None) -> list[str]:
     a = r.anom
     if not a.groups:
         return []
     lines = _heading(f"Analysis of means (alpha {a.alpha:g}, grand mean "
-                     f"{num(a.grand_mean, 0).strip()}, h = {num(a.critical_value, 0, 4).strip()})")
+                     f"{meas(a.grand_mean, res, 0).strip()}, "
+                     f"h = {num(a.critical_value, 0, 4).strip()})")
     lines.append(f"{'group':<29}{'mean':>10} {'lower':>10} {'upper':>10}  flag")
     for g in a.groups:
-        lines.append(f"{clean(g.group, 29):<29}{num(g.mean)} {num(g.lower)} {num(g.upper)}"
+        lines.append(f"{clean(g.group, 29):<29}{meas(g.mean, res)} {meas(g.lower, res)} "
+                     f"{meas(g.upper, res)}"
                      f"  {clean(g.flag)}")
     return lines
 
@@ -160,7 +179,7 @@ def _ci(ci: tuple[float, float] | None) -> str:
     return f" [{num(ci[0], 0, 3).strip()}, {num(ci[1], 0, 3).strip()}]"
 
 
-def _effect_power(r: BatteryResult, unit: str) -> list[str]:
+def _effect_power(r: BatteryResult, unit: str, res: str | None) -> list[str]:
     e, v, p = r.effect, r.variance_components, r.power
     lines = _heading("Effect size, variance components, power")
     level = f"{1 - r.alpha:g}"
@@ -176,7 +195,7 @@ def _effect_power(r: BatteryResult, unit: str) -> list[str]:
     u = f" {clean(unit, 10)}" if unit else ""
     if p.detectable_shift_80 is not None:
         lines.extend(_wrap(f"Smallest shift of one group detectable with 80% power now: "
-                           f"{num(p.detectable_shift_80, 0, 4).strip()}{u}."))
+                           f"{meas(p.detectable_shift_80, res, 0).strip()}{u}."))
     if p.shift is not None and p.power_at_shift is not None:
         lines.extend(_wrap(
             f"Power to detect a shift of {num(p.shift, 0, 4).strip()}{u}: "
@@ -188,20 +207,24 @@ def _effect_power(r: BatteryResult, unit: str) -> list[str]:
     return lines
 
 
-def _capability(r: BatteryResult) -> list[str]:
+def _index(x: float | None, width: int = 8) -> str:
+    """A capability index: two decimals (common practice for Cp/Cpk), right-aligned."""
+    return num(x, width) if x is None or not math.isfinite(x) else numbers.fixed(x, 2).rjust(width)
+
+
+def _capability(r: BatteryResult, res: str | None) -> list[str]:
     if not r.capability:
         return []
     lines = _heading("Capability of each group from its own spread")
     lines.extend(_wrap("Cp, Cpk from the group's within SD (pooled within lots where lots have "
                        "replicates, else average moving range / 1.128); Pp, Ppk from its overall "
                        f"SD; Cpk interval {1 - r.alpha:.0%} (Bissell 1990).", ""))
-    lines.append(f"{'group':<16}{'Cp':>8}{'Cpk':>8}{'Cpk interval':>18}"
+    lines.append(f"{'group':<16}{'Cp':>8}{'Cpk':>8}  {'Cpk interval':<14}"
                  f"{'Pp':>8}{'Ppk':>8}{'within SD':>12}")
     for c in r.capability:
-        ci = (f"{num(c.cpk_ci[0], 0).strip()}..{num(c.cpk_ci[1], 0).strip()}"
-              if c.cpk_ci else "-")
-        lines.append(f"{clean(c.group, 16):<16}{num(c.cp, 8, 3)}{num(c.cpk, 8, 3)}"
-                     f"{ci:>18}{num(c.pp, 8, 3)}{num(c.ppk, 8, 3)}{num(c.sd_within, 12, 4)}")
+        ci = (f"{_index(c.cpk_ci[0], 0)}..{_index(c.cpk_ci[1], 0)}" if c.cpk_ci else "-")
+        lines.append(f"{clean(c.group, 16):<16}{_index(c.cp)}{_index(c.cpk)}  {ci:<14}"
+                     f"{_index(c.pp)}{_index(c.ppk)}{meas(c.sd_within, res, 12)}")
     for c in r.capability:
         if c.status:
             lines.extend(_wrap(f"{c.group}: {c.status}."))
@@ -210,24 +233,27 @@ def _capability(r: BatteryResult) -> list[str]:
     return lines
 
 
-def render_battery(result: BatteryResult, *, unit: str = "") -> str:
-    """The whole battery as plain text, no line longer than 80 characters."""
+def render_battery(result: BatteryResult, *, unit: str = "", resolution: str | None = None,
+                   ) -> str:
+    """The whole battery as plain text, no line longer than 80 characters. With the data's
+    ``resolution`` (text, e.g. "0.01"), measured quantities carry its decimals plus one."""
+    res = None if resolution is None else str(resolution)
     r = result
     lines: list[str] = []
     if r.status != "ok":
         lines.extend(_wrap(f"Status: {r.status}", ""))
     lines.extend(_anova(r))
     lines.extend(_checks(r))
-    lines.extend(_groups(r, unit))
+    lines.extend(_groups(r, unit, res))
     for title, pairs, ranks in (("Tukey-Kramer comparisons", r.tukey, False),
                                 ("Games-Howell comparisons", r.games_howell, False),
                                 (f"Dunn comparisons (mean ranks, {r.dunn_adjust} adjusted)",
                                  r.dunn, True)):
-        lines.extend(_pairs(title, pairs, ranks))
-    lines.extend(_dunnett(r))
-    lines.extend(_anom(r))
-    lines.extend(_effect_power(r, unit))
-    lines.extend(_capability(r))
+        lines.extend(_pairs(title, pairs, ranks, res))
+    lines.extend(_dunnett(r, res))
+    lines.extend(_anom(r, res))
+    lines.extend(_effect_power(r, unit, res))
+    lines.extend(_capability(r, res))
     if r.notes:
         lines.extend(_heading("Notes"))
         for n in r.notes:

@@ -97,7 +97,9 @@ def report_markdown(rep: WeeklyReport) -> str:
         lines += ["| " + " | ".join(md_escape(x) for x in row) + " |"
                   for row in _groups_rows(b, ch.resolution)]
         lines += ["", "### Checks, post-hoc comparisons and capability (full battery)", "",
-                  "```text", render_battery(b, unit=s.detail.characteristic.unit).rstrip(), "```",
+                  "```text", render_battery(b, unit=s.detail.characteristic.unit,
+                                           resolution=s.detail.characteristic.resolution
+                                           ).rstrip(), "```",
                   "", "### Trend of each group's mean per window", "", "```text",
                   trend_chart_text(s.trend), "```", "", "```text",
                   trend_table_text(s.trend).rstrip(), "```", "", "### Events", ""]
@@ -179,7 +181,9 @@ def report_html(rep: WeeklyReport) -> str:
                   "<h3>Trend of each group's mean per window</h3>",
                   f"<figure>{trend_chart_svg(s.trend)}</figure>",
                   "<h3>Checks, post-hoc comparisons and capability (full battery)</h3>",
-                  f"<pre>{e(render_battery(b, unit=s.detail.characteristic.unit))}</pre>",
+                  "<pre>" + e(render_battery(b, unit=s.detail.characteristic.unit,
+                                             resolution=s.detail.characteristic.resolution))
+                  + "</pre>",
                   "<h3>Events</h3><ul>"]
         parts += [f"<li>{e(t)}</li>" for t in _events_text(s.events)]
         parts.append("</ul>")

@@ -33,9 +33,12 @@ def alert_sentence(characteristic: str, factor: str, groups: list[str], kind: st
 def stored_alert_sentence(alert: Any, unit: str, budget_years: float | None = None) -> str:
     """The sentence of a stored alert, with its id (see ``alert_sentence``)."""
     if alert.state == "cleared":
+        why = getattr(alert, "closed_because", None)
+        because = (why.rstrip(".") if why else
+                   f"back within the gate (last {alert.last_window or '?'})")
         return (f"alert {alert.id}: {alert.characteristic} by {alert.factor} "
-                f"({', '.join(alert.groups) or 'a group'}, {alert.kind}) cleared: back within "
-                f"the gate (last {alert.last_window or '?'}). {CAUTION}")
+                f"({', '.join(alert.groups) or 'a group'}, {alert.kind}) cleared: {because}. "
+                f"{CAUTION}")
     return f"alert {alert.id}: " + alert_sentence(
         alert.characteristic, alert.factor, list(alert.groups), alert.kind, alert.direction,
         alert.onset, alert.detected_on, alert.size, alert.size_low, alert.size_high,
