@@ -69,3 +69,18 @@ def test_capability_columns_stay_apart_and_match_the_oracle() -> None:
         ppk = min(USL - mean, mean - LSL) / (3 * g.std(ddof=1))
         assert row[5] == f"{ppk:.2f}", (row, ppk)
         assert row[6] == f"{sd_within:.3f}", (row, sd_within)
+
+
+def test_lots_are_counted_as_lots_beside_values() -> None:
+    """With two replicates per lot the group table shows both counts (issue 11, item 2)."""
+    groups, names = _groups()
+    lots = [[f"{name}-{i // 2}" for i in range(len(g))] for g, name in zip(groups, names,
+                                                                             strict=True)]
+    text = render_battery(run_battery(groups, names, resolution="0.01", lots=lots),
+                          resolution="0.01")
+    table = _section(text, "Groups, 0.95 confidence intervals of the mean")
+    assert table[0].split()[:3] == ["group", "lots", "values"]
+    for line in table[1:]:
+        if line.split()[0] in names:
+            assert line.split()[1:3] == ["30", "60"], line  # 60 values in 30 lots
+    assert max(len(line) for line in text.splitlines()) <= 80

@@ -114,15 +114,22 @@ def _checks(r: BatteryResult) -> list[str]:
 def _groups(r: BatteryResult, unit: str, res: str | None) -> list[str]:
     u = f" ({clean(unit, 10)})" if unit else ""
     lines = _heading(f"Groups{u}, {1 - r.alpha:g} confidence intervals of the mean")
-    lines.append(f"{'group':<14}{'n':>5} {'mean':>10} {'sd':>9} {'CI low':>10} {'CI high':>10} "
-                 f"{'vs others':>10} {'let':<4}")
+    # lots counted as lots: a lots column when the values of a lot are replicates
+    with_lots = any(g.lots is not None and g.lots != g.n for g in r.groups)
+    name_w = 8 if with_lots else 14
+    lots_h = f"{'lots':>6}" if with_lots else ""
+    vw = 8 if with_lots else 6
+    lines.append(f"{'group':<{name_w}}{lots_h}{'values':>{vw}} {'mean':>10} {'sd':>9} "
+                 f"{'CI low':>10} {'CI high':>10} {'vs others':>10} {'let':<4}")
     for g in r.groups:
-        lines.append(f"{clean(g.name, 14):<14}{g.n:>5} {meas(g.mean, res)} "
+        lots = (f"{'-' if g.lots is None else g.lots:>6}" if with_lots else "")
+        lines.append(f"{clean(g.name, name_w):<{name_w}}{lots}{g.n:>{vw}} {meas(g.mean, res)} "
                      f"{meas(g.sd, res, 9)} {meas(g.ci_low, res)} {meas(g.ci_high, res)} "
                      f"{meas(g.diff_from_others, res)} "
                      f"{clean(r.letters.get(g.name, ''), 4):<4}".rstrip())
     for e in r.excluded:
-        lines.append(f"{clean(e.name, 14):<14}{e.n:>5}  excluded: {clean(e.reason)}")
+        lines.append(f"{clean(e.name, name_w):<{name_w}}{' ' * len(lots_h)}{e.n:>{vw}}  "
+                     f"excluded: {clean(e.reason)}")
     if r.letters:
         lines.extend(_wrap(f"Letters: two groups with no letter in common differ by "
                            f"{r.recommendation.posthoc} at alpha {r.alpha:g}; a common letter "

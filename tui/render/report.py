@@ -15,7 +15,7 @@ from typing import Any
 
 from lotwatch.tui.caution import CAUTION
 from lotwatch.tui.render.detector_text import detector_cell, detector_summary, settings_sentence
-from lotwatch.tui.render.numbers import pval
+from lotwatch.tui.render.numbers import MISSING, measured, pval
 from lotwatch.tui.render.safe_text import clean
 
 WIDTH = 80
@@ -37,6 +37,21 @@ def fit(x: float | None, width: int) -> str:
             return s
     s = f"{x:.0e}".replace("e-0", "e-").replace("e+0", "e")
     return s if len(s) <= width else ("big" if x > 0 else "-big")
+
+
+def size_cell(c: Any, x: float | None) -> str:
+    """A size in a comparison's unit (shift, detectable shift, gate) for a Markdown or HTML
+    table: the resolution's decimals plus one (``numbers.measured``) and the unit."""
+    if x is None or not math.isfinite(x):
+        return MISSING
+    text = measured(x, c.resolution) if getattr(c, "resolution", "") else fit(x, 8)
+    unit = getattr(c, "unit", "")
+    return f"{text} {unit}" if unit else text
+
+
+def count_cell(n: int | None) -> str:
+    """A count in a table cell, with thousands separators; a dash when not known."""
+    return MISSING if n is None else f"{n:,}"
 
 
 def _omega(x: float | None) -> str:
@@ -174,17 +189,20 @@ def md_escape(s: str) -> str:
 
 
 def family_table_md(result: Any) -> list[str]:
-    head = ["characteristic", "factor", "window", "k", "N", "test", "F", "p", "q", "ω²", "η²",
+    head = ["characteristic", "factor", "window", "k", "lots", "values", "test", "F", "p", "q",
+            "ω²", "η²",
             "largest shift", "group", "detectable shift", "gate", "detector", "alert"]
     lines = ["| " + " | ".join(head) + " |", "|" + "---|" * len(head)]
     for c in result.comparisons:
         f = c.welch_f if c.test == "Welch" else c.f
         lines.append("| " + " | ".join([
             md_escape(c.characteristic), md_escape(c.factor), md_escape(c.window_label),
-            str(c.k), str(c.n_total), c.test, fit(f, 8), pval(c.p_used), pval(c.q),
+            str(c.k), count_cell(c.lots_total), f"{c.n_total:,}", c.test, fit(f, 8),
+            pval(c.p_used), pval(c.q),
             _omega(c.omega_squared), fit(c.eta_squared, 6),
-            fit(c.largest_shift, 8), md_escape(c.largest_shift_group or ""),
-            fit(c.detectable_shift, 8), fit(c.gate, 8), md_escape(detector_summary(c)),
+            md_escape(size_cell(c, c.largest_shift)), md_escape(c.largest_shift_group or ""),
+            md_escape(size_cell(c, c.detectable_shift)), md_escape(size_cell(c, c.gate)),
+            md_escape(detector_summary(c)),
             alert_tag(c) or "-"]) + " |")
     return lines
 

@@ -15,10 +15,12 @@ from lotwatch.tui.render.report import (
     _status_lines,
     alert_sentence,
     alert_tag,
+    count_cell,
     family_table_md,
     fit,
     md_escape,
     settings_sentence,
+    size_cell,
 )
 from lotwatch.tui.render.trend import trend_chart_svg, trend_chart_text, trend_table_text
 
@@ -151,15 +153,18 @@ def report_html(rep: WeeklyReport) -> str:
     for c in rep.cleared:
         parts.append(f"<li>cleared: {e(c.characteristic)} by {e(c.factor)}</li>")
     parts.append("</ul><h2>Every comparison (the FDR family)</h2>")
-    head = ["characteristic", "factor", "window", "k", "N", "test", "F", "p", "q", "ω²", "η²",
+    head = ["characteristic", "factor", "window", "k", "lots", "values", "test", "F", "p", "q",
+            "ω²", "η²",
             "largest shift", "group", "detectable shift", "gate", "alert"]
     rows = []
     for c in r.comparisons:
         f = c.welch_f if c.test == "Welch" else c.f
-        rows.append([c.characteristic, c.factor, c.window_label, c.k, c.n_total, c.test,
+        rows.append([c.characteristic, c.factor, c.window_label, c.k, count_cell(c.lots_total),
+                     f"{c.n_total:,}", c.test,
                      fit(f, 8), pval(c.p_used), pval(c.q), _omega(c.omega_squared),
-                     fit(c.eta_squared, 6), fit(c.largest_shift, 8), c.largest_shift_group or "",
-                     fit(c.detectable_shift, 8), fit(c.gate, 8), alert_tag(c) or "-"])
+                     fit(c.eta_squared, 6), size_cell(c, c.largest_shift),
+                     c.largest_shift_group or "", size_cell(c, c.detectable_shift),
+                     size_cell(c, c.gate), alert_tag(c) or "-"])
     parts.append(_html_table(head, rows))
     for line in _status_lines(r, clean=lambda s: s):
         if line:

@@ -99,6 +99,9 @@ class ComparisonSummary:
     detector_onset: str | None = None  # ISO plant day
     detector_size: float | None = None  # in the characteristic's unit
     detector_day: str | None = None  # the day of that state
+    # lots in the groups used (n_total counts values; they differ when lots carry replicates)
+    lots_total: int | None = None
+    resolution: str = ""  # the characteristic's resolution: sizes are written with its decimals
 
     def to_dict(self) -> dict[str, Any]:
         d = {k: getattr(self, k) for k in self.__dataclass_fields__}
@@ -205,6 +208,14 @@ def _status_day(store, day: date, explicit: bool) -> date | None:
     return day if through and day < max(through) else None
 
 
+def _lots_used(ws: mon.WindowStats, w: int, c: int) -> int | None:
+    """Lots in the groups window ``w`` of comparison ``c`` uses (None when lots are unknown)."""
+    lots = ws.sums.lots
+    if lots is None:
+        return None
+    return int(np.where(ws.usable[w, c], lots[w, c], 0).sum())
+
+
 def run_review(store, *, as_of: date | None = None, week: str | None = None,
                fdr_method: str | None = None, fdr_level: float | None = None,
                persist: bool = True, by: str | None = None) -> ReviewResult:
@@ -297,7 +308,8 @@ def run_review(store, *, as_of: date | None = None, week: str | None = None,
             detector_direction=best.direction if best else None,
             detector_onset=best.onset.isoformat() if best and best.onset else None,
             detector_size=best.size if best else None,
-            detector_day=best.last_day.isoformat() if best else None))
+            detector_day=best.last_day.isoformat() if best else None,
+            lots_total=_lots_used(ws, W, c), resolution=ch.resolution))
     summaries.sort(key=lambda s: (s.q is None, s.q if s.q is not None else 0.0,
                                   s.characteristic, s.factor))
     opened = [s for s in summaries if s.event in ("opened", "reopened")]
