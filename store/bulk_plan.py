@@ -29,6 +29,7 @@ if TYPE_CHECKING:
     from lotwatch.store.connection import Store
 
 TAG = "__tag:"
+STORED = "__stored"  # entries column: the lot was stored when the entry was judged
 JUDGE_SLICE = 100_000  # entries judged against the stored lots at once
 
 
@@ -196,11 +197,13 @@ def _judge_stored(conn, plan: Plan, source: str, required: list[str]) -> dict[st
     values as first logged, or those not voided) are duplicates, other values are refused. Every
     remaining entry must carry each required factor, in the file or stored with its lot. All by
     joins in polars; Python writes the message of each refused entry. Returns the stored lots'
-    ids; ``plan.entries`` keeps only what is to be written."""
+    ids; ``plan.entries`` keeps only what is to be written, marked ``STORED`` where its lot is
+    stored."""
     import polars as pl
 
     entries = plan.entries
     if entries.height == 0:
+        plan.entries = entries.with_columns(pl.lit(False).alias(STORED))
         return {}
     lot_ids = _stored_lots(conn, entries["lot"].unique().to_list())
     known = pl.DataFrame({"lot": list(lot_ids), "lot_id": list(lot_ids.values())},
@@ -243,7 +246,8 @@ def _judge_stored(conn, plan: Plan, source: str, required: list[str]) -> dict[st
         for r in refused.iter_rows(named=True):
             plan.problems.append(_refusal(r, plan.tag_keys, required, chars, source))
             plan.refused_values += len(r["units"])
-    plan.entries = entries.filter(e["_fate"].is_null())
+    plan.entries = entries.with_columns(e["lot_id"].is_not_null().alias(STORED)).filter(
+        e["_fate"].is_null())
     return lot_ids
 
 

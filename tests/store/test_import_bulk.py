@@ -291,3 +291,34 @@ def test_stored_lots_are_judged_in_slices(lab, tmp_path, monkeypatch):
     again = import_file(lab, fine)
     assert (again.stored, again.duplicates) == (6, 30)
     assert lab.check().ok
+
+
+def test_lots_stored_by_another_terminal_after_the_plan_are_judged_again(lab, tmp_path,
+                                                                         monkeypatch):
+    # A chunk is laid out before its transaction when its lots were new at planning time; a lot
+    # logged meanwhile must still be skipped as a duplicate (or join its stored lot), never be
+    # written twice, and the day sums must stay those of the raw rows (Store.check).
+    from lotwatch.store import LotEntry
+    from lotwatch.store.bulk import plan_values, write_plan
+    from lotwatch.store.importer import parse_import
+
+    monkeypatch.setattr(bulk, "CHUNK_VALUES", 4)
+    lab.add_characteristic("cap_torque", unit="N·m", resolution="0.01", plausible=(0, 5))
+    f = write(tmp_path / "a.csv", HEADER + "\n" + rows(20))
+    parsed = parse_import(f, ImportOptions(), factors=["site", "line", "shift"],
+                          characteristics=["fill_volume", "cap_torque"], zone=lab.plant_zone)
+    plan = plan_values(lab, parsed.values, parsed.tag_keys, source="a.csv", round_values=False,
+                       now_s="2026-11-03T09:00:00Z")
+    with Store.open(lab.path) as floor:  # another terminal, after the plan was made
+        floor.log_lots([
+            LotEntry("fill_volume", ["500.1", "500.1"], {"site": "S", "line": "L0", "shift": "e"},
+                     lot="L00003", measured_at="2026-11-03T08:15:00Z"),
+            LotEntry("cap_torque", ["2.05"], {"site": "S", "line": "L0", "shift": "e"},
+                     lot="L00006", measured_at="2026-11-03T08:15:00Z")])
+    ids, lots = write_plan(lab, plan, source="a.csv", skip_bad=False)
+    assert (len(ids), lots, plan.duplicates) == (18, 8, 2)  # L00006 was stored by the floor
+    per_lot = dict(lab.conn.execute(
+        "SELECT l.lot_code, count(*) FROM measurements m JOIN lots l ON l.id = m.lot_id "
+        "WHERE m.characteristic_id = 1 GROUP BY l.lot_code").fetchall())
+    assert per_lot == {f"L{i:05d}": 2 for i in range(10)}
+    assert lab.check().ok
