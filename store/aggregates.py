@@ -159,19 +159,28 @@ def refuse_overflowing_plan(conn: sqlite3.Connection, entries: Any, factors: lis
     cols = [f for f in factors if tag_prefix + f in entries.columns]
     if not cols or entries.height == 0:
         return
+    # stored + new passes the limit only if one of the two is over half of it
+    half = INT64_MAX // 2
+    # a bound first: no bucket's new sum of squares can pass half the limit when the number of
+    # values times the largest square does not (the usual case; then nothing is grouped)
+    u = pl.col("units").cast(pl.List(pl.Int128))
+    widest = pl.max_horizontal((u.list.max() - pl.col("origin")).abs(),
+                               (u.list.min() - pl.col("origin")).abs()).max()
+    bound = entries.select(pl.col("units").list.len().sum().cast(pl.Int128) * widest ** 2).item()
+    small = bound is not None and bound <= half
     d = (pl.col("units").cast(pl.Int128) - pl.col("origin")).alias("d")
-    vals = entries.select("cid", "day", "origin", "units", *(tag_prefix + f for f in cols)
-                          ).explode("units").with_columns(d)
     for f in cols:
-        sums = (vals.filter(pl.col(tag_prefix + f).is_not_null())
-                .group_by("cid", tag_prefix + f, "day")
-                .agg(pl.len().alias("n"), pl.col("d").sum().alias("s1"),
-                     (pl.col("d") ** 2).sum().alias("s2")))
-        # stored + new passes the limit only if one of the two is over half of it
-        half = INT64_MAX // 2
         big = {r[:3]: r[3] for r in conn.execute(
             "SELECT characteristic_id, level, day, sum_d2 FROM buckets WHERE factor = ? AND "
             "sum_d2 > ?", (f, half))}
+        if small and not big:
+            continue
+        sums = (entries.filter(pl.col(tag_prefix + f).is_not_null())
+                .select("cid", "day", "origin", "units", tag_prefix + f)
+                .explode("units").with_columns(d)
+                .group_by("cid", tag_prefix + f, "day")
+                .agg(pl.len().alias("n"), pl.col("d").sum().alias("s1"),
+                     (pl.col("d") ** 2).sum().alias("s2")))
         for cid, level, day, _n, _s1, s2 in sums.iter_rows():
             if s2 > half or (cid, level, day) in big:
                 stored = big.get((cid, level, day))

@@ -117,17 +117,22 @@ def plan_values(store: Store, values: pl.DataFrame, tag_keys: list[str], *, sour
     vals = values.join(_char_table(chars), on="characteristic", how="left",
                        maintain_order="left")
     vals = _value_checks(vals)
+    key = ["lot", "characteristic"]
+    entries = (vals.group_by(key, maintain_order=True).agg(
+        pl.col("cid").first(), pl.col("units"), pl.col("value"), pl.col("__row").alias("rows"),
+        pl.col("measured_at").first(), pl.col("by").first(), pl.col("column").first(),
+        pl.col("flag").any(), pl.col("origin").first(), *(pl.col(c).first() for c in tags)))
+    noted = vals.filter(pl.col("note").is_not_null())  # usually none: joined only if there
+    entries = (entries.join(noted.group_by(key).agg(pl.col("note").unique(maintain_order=True)
+                                                    .str.join("; ")),
+                            on=key, how="left", maintain_order="left") if noted.height
+               else entries.with_columns(pl.lit(None, pl.String).alias("note")))
     at = pl.col("measured_at").fill_null(pl.lit(now_s).str.to_datetime(
         STORED_FORMAT, time_zone="UTC", time_unit="us")).dt.truncate("1s")
     # the bucket day is the plant-local date of the time (store.plantzone)
-    vals = vals.with_columns(at.dt.strftime(STORED_FORMAT).alias("measured_at"),
-                             at.dt.convert_time_zone(zone).dt.strftime("%Y-%m-%d").alias("day"))
-    entries = (vals.group_by("lot", "characteristic", maintain_order=True).agg(
-        pl.col("cid").first(), pl.col("units"), pl.col("value"), pl.col("__row").alias("rows"),
-        pl.col("measured_at").first(), pl.col("day").first(), pl.col("by").first(),
-        pl.col("column").first(),
-        pl.col("note").drop_nulls().unique(maintain_order=True).str.join("; ").alias("note"),
-        pl.col("flag").any(), pl.col("origin").first(), *(pl.col(c).first() for c in tags)))
+    entries = entries.with_columns(
+        at.dt.strftime(STORED_FORMAT).alias("measured_at"),
+        at.dt.convert_time_zone(zone).dt.strftime("%Y-%m-%d").alias("day"))
     # lot IDs and tags are checked once per entry, not once per value
     bad_lot = (pl.col("lot").str.len_chars() > 100) | pl.col("lot").str.contains(_UNSAFE.pattern)
     for k, c in zip(tag_keys, tags, strict=True):

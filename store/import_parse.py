@@ -164,14 +164,19 @@ def parse_values(frame: pl.DataFrame, layout: Layout, source: str) -> ParsedValu
                                   f"={col}", col, "_r")
             bad = bad | pl.col(ROW).is_in(clash[ROW].implode())
 
-    # values: one row per (file row, value column)
+    # values: one row per (file row, value column), each carrying its row's lot, time and tags
+    keep = [pl.col(layout.lot).alias("lot"), pl.col("at").alias("measured_at"),
+            (pl.col(layout.note) if layout.note else pl.lit(None, pl.String)).alias("note"),
+            (pl.col(layout.by) if layout.by else pl.lit(None, pl.String))
+            .fill_null(pl.lit(layout.by_default, pl.String)).alias("by"),
+            *(pl.col(c).alias(TAG + k) for k, c in layout.tags.items())]
     parts = []
     values_read = 0
     for col, name in layout.values:
         base = work.select(ROW, pl.col(col).alias("raw"),
                            (pl.col(layout.char_column) if layout.char_column else
                             pl.lit(name)).alias("characteristic"),
-                           bad.alias("bad")).with_columns(pl.lit(col).alias("column"))
+                           pl.lit(col).alias("column"), bad.alias("bad"), *keep)
         if layout.char_column is not None:  # long: both cells must be there
             values_read += base.height
             problems += _problems(base.filter(pl.col("characteristic").is_null()), source,
@@ -193,23 +198,16 @@ def parse_values(frame: pl.DataFrame, layout: Layout, source: str) -> ParsedValu
         .otherwise(number_reason(layout.decimal_comma, layout.thousands)).alias("_r"))
     problems += _problems(vals.filter(pl.col("_r").is_not_null()), source, "column", "raw", "_r")
     # a row with any problem stores nothing, in any of its columns
-    row_bad = vals.group_by(ROW).agg((pl.col("bad") | pl.col("_r").is_not_null()).any()
-                                     .alias("row_bad"))
-    vals = vals.join(row_bad, on=ROW).filter(~pl.col("row_bad"))
-    order = {c: i for i, (c, _) in enumerate(layout.values)}
-    keep = work.select(
-        ROW, pl.col(layout.lot).alias("lot"), pl.col("at").alias("measured_at"),
-        (pl.col(layout.note) if layout.note else pl.lit(None, pl.String)).alias("note"),
-        (pl.col(layout.by) if layout.by else pl.lit(None, pl.String))
-        .fill_null(pl.lit(layout.by_default, pl.String)).alias("by"),
-        *(pl.col(c).alias(TAG + k) for k, c in layout.tags.items()))
-    values = (vals.join(keep, on=ROW, how="left")
-              .with_columns(pl.col("column").replace_strict(order, return_dtype=pl.Int32)
-                            .alias("_c"))
-              .sort(ROW, "_c")
-              .select(ROW, "lot", "characteristic", "column", pl.col("num").alias("value"),
-                      pl.col("raw"), "measured_at", "note", "by",
-                      *(TAG + k for k in layout.tags)))
+    refused = pl.col("bad") | pl.col("_r").is_not_null()
+    if len(parts) > 1:
+        refused = refused.any().over(ROW)
+    vals = vals.filter(~refused)
+    if len(parts) > 1:  # wide: back in file order, a row's values in column order
+        order = {c: i for i, (c, _) in enumerate(layout.values)}
+        vals = vals.sort(ROW, pl.col("column").replace_strict(order, return_dtype=pl.Int32))
+    values = vals.select(ROW, "lot", "characteristic", "column", pl.col("num").alias("value"),
+                         pl.col("raw"), "measured_at", "note", "by",
+                         *(TAG + k for k in layout.tags))
     return ParsedValues(values, list(layout.tags), problems, rows_read, values_read, notes)
 
 

@@ -322,3 +322,45 @@ def test_lots_stored_by_another_terminal_after_the_plan_are_judged_again(lab, tm
         "WHERE m.characteristic_id = 1 GROUP BY l.lot_code").fetchall())
     assert per_lot == {f"L{i:05d}": 2 for i in range(10)}
     assert lab.check().ok
+
+
+def test_notes_of_a_lots_rows_are_joined_once_each_in_file_order(lab, tmp_path):
+    # importer docstring: an entry's notes are joined; the replicates of one lot share them
+    f = write(tmp_path / "n.csv", HEADER + ",note\n"
+              "A,fill_volume,500.1,2026-11-03T08:15:00Z,S,L,e,second look\n"
+              "B,fill_volume,500.2,2026-11-03T08:15:00Z,S,L,e,\n"
+              "A,fill_volume,500.3,2026-11-03T08:15:00Z,S,L,e,\n"
+              "A,fill_volume,500.4,2026-11-03T08:15:00Z,S,L,e,gauge 2\n"
+              "A,fill_volume,500.5,2026-11-03T08:15:00Z,S,L,e,second look\n")
+    assert import_file(lab, f).stored == 5
+    got = lab.conn.execute("SELECT l.lot_code, m.note FROM measurements m "
+                           "JOIN lots l ON l.id = m.lot_id ORDER BY m.id").fetchall()
+    assert got == [("A", "second look; gauge 2")] * 4 + [("B", None)]
+
+
+def test_day_sums_past_the_limit_are_refused_before_anything_is_written(tmp_path, monkeypatch):
+    # The import refuses a file whose values would take a day sum of squares past SQLite's
+    # integer limit (tests/reliability/test_day_sum_bound.py does it at the real limit, slowly).
+    # Here the limit is lowered to 60 so each branch is quick: the file's own sums (the bound
+    # n * max d^2 = 4 * 16 > 30 sends it to the grouped check), and a stored sum over half the
+    # limit (48 > 30) with a small file.
+    from lotwatch.store import StoreError, aggregates
+
+    monkeypatch.setattr(aggregates, "INT64_MAX", 60)
+    with Store.create(tmp_path / "s.sqlite", zone="UTC") as s:
+        s.add_characteristic("x", unit="u", resolution="1", target=0)
+
+        def csv(name: str, values: list[int]) -> Path:
+            return write(tmp_path / name, HEADER + "\n" + "".join(
+                f"{name}{i},x,{v},2026-11-03T08:15:00Z,S,L,e\n" for i, v in enumerate(values)))
+
+        before = dump(s)
+        with pytest.raises(StoreError, match="too many extreme values of x for site = S"):
+            import_file(s, csv("four", [4, 4, 4, -4]))  # 64 > 60
+        assert dump(s) == before
+        assert import_file(s, csv("three", [4, 4, -4])).stored == 3  # 48 <= 60
+        before = dump(s)
+        with pytest.raises(StoreError, match="too many extreme values"):
+            import_file(s, csv("one", [4]))  # stored 48 + 16 > 60
+        assert dump(s) == before
+        assert import_file(s, csv("fits", [3])).stored == 1  # 48 + 9 = 57 <= 60
