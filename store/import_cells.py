@@ -67,9 +67,13 @@ def timestamps(texts: pl.Series, zone: str) -> pl.DataFrame:
         pl.col("text").str.len_chars() > 10)
     local = (naive.dt.replace_time_zone(zone, ambiguous="earliest", non_existent="null")
              .dt.convert_time_zone("UTC"))
-    frame = uniq.with_columns(
+    # the usual shape (seconds and an offset) first; only what it leaves goes through the rest
+    done = uniq.with_columns(pl.when(shaped & has_offset).then(t.str.to_datetime(
+        "%Y-%m-%dT%H:%M:%S%.f%#z", strict=False, time_zone="UTC", time_unit="us")).alias("at"))
+    left = done.filter(pl.col("at").is_null()).with_columns(
         pl.when(~shaped).then(None).when(has_offset).then(aware).otherwise(local).alias("at"))
-    rest = frame.filter(pl.col("at").is_null())["text"].to_list()
+    frame = pl.concat([done.filter(pl.col("at").is_not_null()), left])
+    rest = left.filter(pl.col("at").is_null())["text"].to_list()
     if rest:
         fixed: list[datetime | None] = []
         for text in rest:

@@ -6,13 +6,16 @@ Day bounds (``since``/``until``) are inclusive plant dates, compared with each m
 
 from __future__ import annotations
 
+from collections.abc import Iterator
+from contextlib import contextmanager
 from datetime import UTC, date, datetime, time, timedelta
+from itertools import chain
 from typing import TYPE_CHECKING
 from zoneinfo import ZoneInfo
 
 import numpy as np
 import polars as pl
-from lotwatch.store.errors import BadInput, NotFound, RowProblem
+from lotwatch.store.errors import BadInput, NotFound, RowProblem, StoreCorrupt
 from lotwatch.store.plantzone import read_zone
 from lotwatch.store.timeutil import BadTime, date_text
 from lotwatch.store.values import scale_of
@@ -20,10 +23,6 @@ from lotwatch.store.values import scale_of
 if TYPE_CHECKING:
     from lotwatch.store.connection import Store
 
-BUCKET_SCHEMA = {
-    "characteristic": pl.String, "factor": pl.String, "level": pl.String, "day": pl.String,
-    "n": pl.Int64, "sum_d": pl.Int64, "sum_d2": pl.Int64, "lots": pl.Int64,
-}
 VALUES_SCHEMA = {
     "measurement_id": pl.Int64, "lot": pl.String, "level": pl.String,
     "measured_at": pl.String, "units": pl.Int64,
@@ -58,7 +57,13 @@ def bucket_frame(store: Store, *, characteristic: str | None = None, factor: str
                  since: date | None = None, until: date | None = None) -> pl.DataFrame:
     """Bucket rows: characteristic:str, factor:str, level:str, day:date, n, sum_d, sum_d2,
     lots (i64), sorted by characteristic, factor, level, day. ``n`` counts values, ``lots``
-    distinct lots (they differ when lots carry replicates); ``day`` is the plant-local date."""
+    distinct lots (they differ when lots carry replicates); ``day`` is the plant-local date.
+
+    Read as two queries in one read transaction, both in the table's primary-key order (no
+    sort): each characteristic x factor x level with its number of days, then the days' numbers
+    alone (the day as days since 1970). Integers only, so the bulk of the rows reaches numpy
+    without a Python string per cell (about four times quicker than one query of all columns).
+    """
     lo, hi = _bounds(since, until)
     where: list[str] = []
     params: list[object] = []
@@ -74,20 +79,46 @@ def bucket_frame(store: Store, *, characteristic: str | None = None, factor: str
     short = (lo is not None and hi is not None
              and (date.fromisoformat(hi) - date.fromisoformat(lo)).days <= _INDEXED_DAYS)
     _day_range("b.day" if short else "+b.day", lo, hi, where, params)
-    sql = ("SELECT c.name, b.factor, b.level, b.day, b.n, b.sum_d, b.sum_d2, b.lots "
-           "FROM buckets b "
-           "JOIN characteristics c ON c.id = b.characteristic_id"
-           + (" WHERE " + " AND ".join(where) if where else "")
-           # primary-key order needs no sort in SQLite; names sort the same way unless the
-           # characteristics were created out of alphabetical order (then polars sorts)
-           + " ORDER BY b.characteristic_id, b.factor, b.level, b.day")
-    rows = store.conn.execute(sql, params).fetchall()
-    frame = pl.DataFrame(rows, schema=BUCKET_SCHEMA, orient="row")
-    frame = frame.with_columns(pl.col("day").str.to_date("%Y-%m-%d"))
+    cond = " WHERE " + " AND ".join(where) if where else ""
+    key_order = "b.characteristic_id, b.factor, b.level"
+    keys_sql = ("SELECT c.name, b.factor, b.level, count(*) FROM buckets b "
+                "JOIN characteristics c ON c.id = b.characteristic_id" + cond
+                + f" GROUP BY {key_order} ORDER BY {key_order}")
+    # unixepoch of a midnight is a multiple of 86400, so the division is exact
+    days_sql = ("SELECT unixepoch(b.day) / 86400, b.n, b.sum_d, b.sum_d2, b.lots FROM buckets b"
+                + cond + f" ORDER BY {key_order}, b.day")
+    with _one_snapshot(store.conn):
+        keys = store.conn.execute(keys_sql, params).fetchall()
+        rows = store.conn.execute(days_sql, params)
+        try:
+            cells = np.fromiter(chain.from_iterable(rows), dtype=np.int64).reshape(-1, 5)
+        except TypeError:  # unixepoch gave NULL: a day that is not YYYY-MM-DD
+            raise StoreCorrupt(f"{store.path}: a day sum has a malformed day; run lotwatch "
+                               "check for details") from None
+    run = np.repeat(np.arange(len(keys)), [k[3] for k in keys])
+    names = [pl.Series(name, [k[i] for k in keys], dtype=pl.String)[run]
+             for i, name in enumerate(("characteristic", "factor", "level"))]
+    frame = pl.DataFrame([
+        *names, pl.Series("day", cells[:, 0].astype(np.int32)).cast(pl.Date),
+        *(pl.Series(name, cells[:, i + 1]) for i, name in enumerate(
+            ("n", "sum_d", "sum_d2", "lots")))])
     by_id = sorted(store.characteristics(), key=lambda c: c.id)
     if [c.name for c in by_id] != sorted(c.name for c in by_id):
         frame = frame.sort("characteristic", "factor", "level", "day", maintain_order=True)
     return frame
+
+
+@contextmanager
+def _one_snapshot(conn) -> Iterator[None]:
+    """Run reads in one read transaction (unless one is open), so they see the same commit."""
+    if conn.in_transaction:
+        yield
+        return
+    conn.execute("BEGIN")
+    try:
+        yield
+    finally:
+        conn.execute("COMMIT")
 
 
 def _float_values(units: pl.Series, resolution: str, name: str) -> pl.Series:

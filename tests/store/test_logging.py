@@ -468,3 +468,43 @@ def test_bucket_frame_is_sorted_by_name_whatever_the_creation_order(store) -> No
     assert frame.equals(frame.sort("characteristic", "factor", "level", "day"))
     assert frame["characteristic"][0] == "alpha"
     assert frame.schema["day"] == pl.Date
+
+
+def test_bucket_frame_equals_a_plain_read_of_the_table(store: Store) -> None:
+    # bucket_frame reads keys and day numbers in two queries; the oracle is one plain SELECT of
+    # the same rows with the day text parsed by Python's date.fromisoformat. Characteristics are
+    # made out of alphabetical order and days span a year boundary, 1970-01-01 (day 0) and a
+    # day before 1970 (an import with --years can store one; set here by hand).
+    from datetime import date as Date
+
+    from lotwatch.store import StoreCorrupt
+
+    store.add_characteristic("z_torque", unit="N·m", resolution="0.01")
+    store.add_characteristic("a_fill", unit="mL", resolution="0.1")
+    entries = []
+    for i, at in enumerate(["1970-01-01T08:00:00Z", "2025-12-31T23:00:00Z",
+                            "2026-01-01T01:00:00Z", "2026-11-30T14:05:00Z"]):
+        for j, line in enumerate(["L1", "L2", "L3"][: i + 1]):
+            tags = {"site": "North", "line": line, "shift": "day"}
+            entries.append(LotEntry("z_torque", [f"2.{i}{j}", "2.50"], tags, lot=f"T{i}{j}",
+                                    measured_at=at))
+            entries.append(LotEntry("a_fill", [f"50{i}.{j}"], tags, lot=f"T{i}{j}",
+                                    measured_at=at))
+    store.log_lots(entries)
+    store.conn.execute("UPDATE buckets SET day = '1965-03-01' WHERE day = '1970-01-01' "
+                       "AND factor = 'site'")
+    got = store.bucket_frame()
+    plain = store.conn.execute(
+        "SELECT c.name, b.factor, b.level, b.day, b.n, b.sum_d, b.sum_d2, b.lots FROM buckets b "
+        "JOIN characteristics c ON c.id = b.characteristic_id").fetchall()
+    want = sorted((*r[:3], Date.fromisoformat(r[3]), *r[4:]) for r in plain)
+    # per characteristic: 1 + 2 + 3 + 3 line buckets, 4 site and 4 shift buckets
+    assert got.rows() == want and len(want) == 2 * (1 + 2 + 3 + 3 + 4 + 4)
+    part = store.bucket_frame(characteristic="z_torque", factor="line",
+                              since=Date(2025, 12, 31), until=Date(2026, 1, 1))
+    assert part.rows() == [r for r in want if r[0] == "z_torque" and r[1] == "line"
+                           and Date(2025, 12, 31) <= r[3] <= Date(2026, 1, 1)]
+    assert part.height == 5
+    store.conn.execute("UPDATE buckets SET day = '2026-13-01' WHERE day = '2026-11-30'")
+    with pytest.raises(StoreCorrupt, match="malformed day"):
+        store.bucket_frame()
