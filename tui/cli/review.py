@@ -226,13 +226,13 @@ ALERT_JSON_KEYS = ("id", "state", "characteristic", "factor", "groups", "kind", 
                    "last_window", "text")
 
 
-def _alert_item(a, unit: str, budget: float) -> dict:
+def _alert_item(a, unit: str, budget: float, resolution: str | None = None) -> dict:
     """One alert as the JSON contract (README: "alerts list --format json")."""
     from lotwatch.tui.services.alert_text import stored_alert_sentence
 
     d = {k: getattr(a, k) for k in ALERT_JSON_KEYS if hasattr(a, k)}
     d["unit"] = unit
-    d["text"] = stored_alert_sentence(a, unit, budget)
+    d["text"] = stored_alert_sentence(a, unit, budget, resolution)
     return {k: d.get(k) for k in ALERT_JSON_KEYS}
 
 
@@ -248,27 +248,36 @@ def alerts_list(state: str | None, fmt: str, db_path: Path) -> None:
     from lotwatch.stats.detect.settings import DetectorSettings
     from lotwatch.store import alerts as store_alerts
     from lotwatch.tui.caution import CAUTION
-    from lotwatch.tui.render.report import fit
+    from lotwatch.tui.render.numbers import num
     from lotwatch.tui.render.safe_text import clean
 
     with open_store(db_path, read_only=True) as store:
         rows = store_alerts.list_alerts(store, state=state)
-        units = {c.name: c.unit for c in store.characteristics()}
+        chars = {c.name: c for c in store.characteristics()}
         budget = _run(DetectorSettings.from_lookup, store.get_setting).years_per_false_alert
+
+    def unit_of(a) -> str:
+        return chars[a.characteristic].unit if a.characteristic in chars else ""
+
+    def resolution_of(a) -> str | None:
+        return chars[a.characteristic].resolution if a.characteristic in chars else None
+
     if fmt == "json":
-        click.echo(json.dumps([_alert_item(a, units.get(a.characteristic, ""), budget)
+        click.echo(json.dumps([_alert_item(a, unit_of(a), budget, resolution_of(a))
                                for a in rows], indent=2, allow_nan=False))
         return
     if not rows:
         click.echo("No alerts" + (f" in state {state}." if state else "."))
         return
     click.echo(f"{'id':>4} {'state':<12} {'characteristic':<14} {'factor':<7} {'kind':<6} "
-               f"{'group':<9} {'size':>7} {'%tol':>5} {'onset':<10} detected")
+               f"{'group':<9} {'size':>12} {'%tol':>5} {'onset':<10} detected")
     for a in rows:
+        size = "-" if a.size is None else clean(
+            f"{_size_text(a.size, resolution_of(a))} {unit_of(a)}".strip(), 12)
         click.echo(f"{a.id:>4} {a.state:<12} {clean(a.characteristic, 14):<14} "
                    f"{clean(a.factor, 7):<7} {a.kind:<6} "
-                   f"{clean(','.join(a.groups), 9):<9} {fit(a.size, 7):>7} "
-                   f"{fit(a.percent_of_tolerance, 5):>5} {(a.onset or '-'):<10} "
+                   f"{clean(','.join(a.groups), 9):<9} {size:>12} "
+                   f"{num(a.percent_of_tolerance, 3):>5} {(a.onset or '-'):<10} "
                    f"{a.detected_on or '-'}")
     click.echo(CAUTION)
 
@@ -288,7 +297,8 @@ def alerts_show(alert_id: int, db_path: Path) -> None:
     with open_store(db_path, read_only=True) as store:
         a = store_alerts.get_alert(store, alert_id)
         events = store_alerts.alert_history(store, alert_id)
-        unit = store.characteristic(a.characteristic).unit
+        ch = store.characteristic(a.characteristic)
+        unit, resolution = ch.unit, ch.resolution
         budget = _run(DetectorSettings.from_lookup, store.get_setting).years_per_false_alert
         zone = store.plant_zone
 
@@ -302,7 +312,7 @@ def alerts_show(alert_id: int, db_path: Path) -> None:
 
     click.echo(clean(f"Alert {a.id}: {a.characteristic} by {a.factor}, {a.kind}, "
                           f"{a.state}"))
-    for line in _wrap_plain(stored_alert_sentence(a, unit, budget)):
+    for line in _wrap_plain(stored_alert_sentence(a, unit, budget, resolution)):
         click.echo(clean("  " + line))
     click.echo(clean(f"  opened {local(a.opened_at)} ({a.opened_window}); last {a.last_window}"))
     click.echo(clean(f"Events (times in plant time, {zone}):"))
@@ -316,6 +326,13 @@ def alerts_show(alert_id: int, db_path: Path) -> None:
             line += f": {e.note}"
         click.echo(clean(line))
     click.echo(CAUTION)
+
+
+def _size_text(x: float, resolution: str | None) -> str:
+    """A size for the alerts list: the resolution's decimals plus one (``numbers.measured``)."""
+    from lotwatch.tui.render.numbers import measured, num
+
+    return measured(x, resolution) if resolution else num(x, 3)
 
 
 def _wrap_plain(text: str) -> list[str]:

@@ -6,21 +6,32 @@ from datetime import date
 from typing import Any
 
 from lotwatch.tui.caution import CAUTION
-from lotwatch.tui.render.numbers import num, signed
+from lotwatch.tui.render.numbers import measured, num, signed
+
+
+def _size(x: float, resolution: str | None, sign: bool = False) -> str:
+    """A size in the characteristic's unit: the resolution's decimals plus one (the one rule of
+    every screen, ``numbers.measured``); three significant digits when none is known."""
+    if not resolution:
+        return signed(x) if sign else num(x, 3)
+    text = measured(x, resolution)
+    return f"+{text}" if sign and not text.startswith("-") else text
 
 
 def alert_sentence(characteristic: str, factor: str, groups: list[str], kind: str,
                    direction: str | None, onset: date | str | None,
                    detected_on: date | str | None, size: float | None, low: float | None,
                    high: float | None, percent: float | None, unit: str,
-                   budget_years: float | None = None) -> str:
+                   budget_years: float | None = None, resolution: str | None = None) -> str:
     """The sentence an alert carries: group, mean or spread, direction, onset, size in units and
-    % of tolerance with its interval, detection day, and the caution."""
+    % of tolerance with its interval, detection day, and the caution. With the characteristic's
+    ``resolution``, sizes carry its decimals plus one."""
     who = ", ".join(groups) if groups else "a group"
     what = "mean" if kind == "mean" else "spread (SD)"
     how = direction or "different"
-    size_s = f"{signed(size)} {unit}".rstrip() if size is not None else "an unknown amount"
-    interval = (f" (95% interval {num(low, 3)} to {num(high, 3)})"
+    size_s = (f"{_size(size, resolution, sign=True)} {unit}".rstrip() if size is not None
+              else "an unknown amount")
+    interval = (f" (95% interval {_size(low, resolution)} to {_size(high, resolution)})"
                 if low is not None and high is not None else "")
     pct = f", {num(percent, 3)}% of the tolerance" if percent is not None else ""
     budget = (f" Thresholds allow one false alert per {num(budget_years, 4)} comparison-years."
@@ -30,7 +41,8 @@ def alert_sentence(characteristic: str, factor: str, groups: list[str], kind: st
             f"{budget} {CAUTION}")
 
 
-def stored_alert_sentence(alert: Any, unit: str, budget_years: float | None = None) -> str:
+def stored_alert_sentence(alert: Any, unit: str, budget_years: float | None = None,
+                          resolution: str | None = None) -> str:
     """The sentence of a stored alert, with its id (see ``alert_sentence``)."""
     if alert.state == "cleared":
         why = getattr(alert, "closed_because", None)
@@ -42,4 +54,4 @@ def stored_alert_sentence(alert: Any, unit: str, budget_years: float | None = No
     return f"alert {alert.id}: " + alert_sentence(
         alert.characteristic, alert.factor, list(alert.groups), alert.kind, alert.direction,
         alert.onset, alert.detected_on, alert.size, alert.size_low, alert.size_high,
-        alert.percent_of_tolerance, unit, budget_years)
+        alert.percent_of_tolerance, unit, budget_years, resolution)

@@ -38,7 +38,8 @@ def _transition(run: _Run, kind: str, factor: str, members: list[int], j: int, e
     direction = DIRECTIONS.get((kind, int(st["alarm"]) or 1))
     onset, detected = _day(st["alarm_onset"]), _day(st["detected"])
     text = alert_sentence(run.ch.name, factor, groups, kind, direction, onset, detected, size,
-                          low, high, pct, run.ch.unit, s.years_per_false_alert)
+                          low, high, pct, run.ch.unit, s.years_per_false_alert,
+                          run.ch.resolution)
     ref = _f(run.show[kind]["ref_sd"][j][p])
     details = {"text": text, "evidence": _f(ev[p]), "threshold": _f(rec.threshold[kind][j][p]),
                "day": day.isoformat(), "budget_years": s.years_per_false_alert,

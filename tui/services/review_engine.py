@@ -287,7 +287,8 @@ def run_review(store, *, as_of: date | None = None, week: str | None = None,
         alert = alerts.get(key)
         text = None
         if alert is not None and (alert.state != "cleared" or key in events):
-            text = detection.stored_alert_sentence(alert, ch.unit, dset.years_per_false_alert)
+            text = detection.stored_alert_sentence(alert, ch.unit, dset.years_per_false_alert,
+                                                   ch.resolution)
         summaries.append(ComparisonSummary(
             characteristic=comp.characteristic, factor=comp.factor, window_label=latest.label,
             k=int(ws.k[W, c]), n_total=int(ws.n_total[W, c]), f=_f(ws.f[W, c]),
