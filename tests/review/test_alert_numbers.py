@@ -33,7 +33,7 @@ def test_alert_sizes_carry_unit_and_resolution_decimals(demo_copy):
     listing = run(demo_copy, "alerts", "list").output.splitlines()
     items = {a["id"]: a for a in json.loads(run(demo_copy, "alerts", "list", "--format",
                                                 "json").output)}
-    for alert_id, (name, unit, res, size, low, high) in stored.items():
+    for alert_id, (_name, unit, res, size, low, high) in stored.items():
         d = _decimals(res)
         want = f"{size:.{d}f} {unit}"
         row = next(line for line in listing if line.split()[:1] == [str(alert_id)])

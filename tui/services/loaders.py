@@ -74,6 +74,7 @@ def _comparison_row(c: ComparisonSummary) -> ComparisonRow:
         largest_shift_group=c.largest_shift_group, detectable_shift=c.detectable_shift,
         alert_state=c.alert_state, status=c.status, alert_id=c.alert_id, unit=c.unit,
         groups=", ".join(c.groups) or c.largest_shift_group, direction=c.direction, gate=c.gate,
+        lots_total=c.lots_total, resolution=c.resolution,
     )
 
 

@@ -64,6 +64,8 @@ class ComparisonRow:
     direction: str | None = None  # "higher" | "lower"
     gate: float | None = None  # the practical size an alert needs (min shift)
     test: str = "F"  # "Welch" when ``f`` and the p behind ``q`` are Welch's (one rule: monitor)
+    lots_total: int | None = None  # lots in the groups used (``n_total`` counts values)
+    resolution: str = ""  # the characteristic's resolution: sizes carry its decimals plus one
 
 
 @dataclass(frozen=True)

@@ -12,7 +12,7 @@ from lotwatch.tui.app.screens.base import LotwatchScreen
 from lotwatch.tui.app.state import step_week
 from lotwatch.tui.app.widgets.caution import Caution
 from lotwatch.tui.app.widgets.compact import fill
-from lotwatch.tui.render.numbers import MISSING, num, pval
+from lotwatch.tui.render.numbers import MISSING, measured, num, pval
 from lotwatch.tui.render.safe_text import clean
 from lotwatch.tui.services.view_models import ComparisonRow, ReviewView
 from rich.text import Text
@@ -66,15 +66,16 @@ class ReviewScreen(LotwatchScreen):
         self.rows = list(review.rows)
         # p, k and effect sizes are left to the drill-in (Enter): at 80 columns the group, the
         # shift with its unit, the gate an alert needs and the alert state need the room.
-        headers = ["characteristic", "factor", "n", "F", "q", "group", "shift", "gate", "alert"]
+        headers = ["characteristic", "factor", "lots", "F", "q", "group", "shift", "gate", "alert"]
         right = [False, False, True, True, True, False, True, True, False]
         rows, styles = [], []
         for r in self.rows:
             alert = r.alert_state or ("–" if r.status == "ok" else r.status)
             group = clean(r.groups or "–", 10)
             shift = MISSING if r.largest_shift is None else (
-                f"{num(r.largest_shift, 3)} {clean(r.unit, 4)}".strip())
-            rows.append([clean(r.characteristic, 14), clean(r.factor, 7), str(r.n_total),
+                f"{_size(r.largest_shift, r.resolution)} {clean(r.unit, 4)}".strip())
+            lots = r.n_total if r.lots_total is None else r.lots_total  # lots counted as lots
+            rows.append([clean(r.characteristic, 14), clean(r.factor, 7), f"{lots:,}",
                          num(r.f, 3) + ("w" if r.test == "Welch" else ""), pval(r.q), group,
                          shift, num(r.gate, 2),
                          clean(alert, 12)])
@@ -129,3 +130,8 @@ class ReviewScreen(LotwatchScreen):
 
     def action_back(self) -> None:
         self.app.switch_mode("board")
+
+
+def _size(x: float, resolution: str) -> str:
+    """A shift in the characteristic's unit: its resolution's decimals plus one (one rule)."""
+    return measured(x, resolution) if resolution else num(x, 3)
