@@ -50,6 +50,7 @@ from scipy import special
 MIN_DF = 10  # trailing degrees of freedom a group and its rest need before they are watched
 MIN_CHANGES = 14  # day-to-day changes the dispersion needs before a group is watched
 SHEPPARD = 1.0 / 12.0
+PHI_FLOOR = 1.0  # the normal theory's dispersion is the least believed
 
 
 def _trailing(x: np.ndarray, length: int) -> np.ndarray:
@@ -115,9 +116,25 @@ TRIM = 0.02  # share of the largest day-to-day changes left out of the dispersio
 TRIMMED_SECOND_MOMENT = 0.8735
 
 
-def _dispersion(z: np.ndarray, valid: np.ndarray, days: int, first: int) -> np.ndarray:
-    """phi for each slot and day t >= first, from the changes z_t - z_prev over the ``days`` days
-    before t (see the module docstring); NaN (not watched yet) with fewer than MIN_CHANGES."""
+PHI_MAX = 9.0  # largest extra dispersion believed (beyond it the data are not a CUSUM's to judge)
+CHANGE_CORR = 1.5  # variance inflation of a mean of squared consecutive differences (lag-1
+# correlation of (z_t - z_{t-1})^2 and (z_{t+1} - z_t)^2 is 1/4 for iid normal z: 1 + 2 x 1/4)
+
+
+def _dispersion(z: np.ndarray, valid: np.ndarray, days: int, first: int, comp: np.ndarray,
+                log_arl: np.ndarray, floor: float) -> np.ndarray:
+    """phi for each slot and day t >= first (see the module docstring); NaN (not watched yet)
+    with fewer than MIN_CHANGES changes of the slot's own.
+
+    The trimmed mean square change is pooled over the slots of the comparison (so its noise,
+    which a CUSUM tuned to a long run length feels exponentially, is that of all its groups'
+    days), and a slot whose own estimate is clearly larger keeps its own (lower bound at two
+    standard errors). The pooled estimate is then raised for its remaining uncertainty: if
+    ``phi_hat = phi (1 + e)`` with ``var(e) = cv^2``, a false alarm, whose probability goes as
+    ``exp(-L phi / phi_hat)`` for a chart of in-control run length ``e^L``, becomes on average
+    ``exp(L^2 cv^2 / 2)`` times likelier; scaling phi by ``1 + L cv^2 / 2`` restores it
+    (first order). ``cv^2 = 2 x 1.5 / kept changes`` (chi-square with 1 df per change, the
+    overlap of consecutive changes counted). The result is kept within [floor, PHI_MAX]."""
     diffs = _successive(z, valid, lambda a, b, *_: (b - a) ** 2)
     S, T = z.shape
     phi = np.ones((S, T))
@@ -130,11 +147,77 @@ def _dispersion(z: np.ndarray, valid: np.ndarray, days: int, first: int) -> np.n
     count = np.sum(np.isfinite(win), axis=2)
     keep = np.floor((1.0 - TRIM) * count)
     used = np.arange(days)[None, None, :] < keep[:, :, None]
+    num = np.where(used, ordered, 0.0).sum(axis=2)
+    ok = count >= MIN_CHANGES
+    C = int(comp.max()) + 1
+    pooled_num = np.zeros((C, num.shape[1]))
+    pooled_keep = np.zeros((C, num.shape[1]))
+    np.add.at(pooled_num, comp, np.where(ok, num, 0.0))
+    np.add.at(pooled_keep, comp, np.where(ok, keep, 0.0))
+    scale = 2.0 * TRIMMED_SECOND_MOMENT
+    members = np.bincount(comp, minlength=C).astype(np.float64)
     with np.errstate(invalid="ignore", divide="ignore"):
-        est = np.where(used, ordered, 0.0).sum(axis=2) / keep / TRIMMED_SECOND_MOMENT / 2.0
-    phi[:, first:] = np.where(count >= MIN_CHANGES, np.clip(np.nan_to_num(est, nan=1.0), 1.0, 9.0),
-                              np.nan)
+        own = num / keep / scale
+        own_low = own * (1.0 - 2.0 * np.sqrt(2.0 * CHANGE_CORR / keep))
+        pool = (pooled_num / pooled_keep / scale)[comp]
+        # K group-vs-rest contrasts carry about K - 1 independent pieces (two are one, mirrored)
+        eff = (pooled_keep * np.maximum(members - 1.0, 1.0)[:, None] / members[:, None])[comp]
+        cv2 = 2.0 * CHANGE_CORR / eff
+        pool = pool * (1.0 + log_arl[:, first:] * cv2 / 2.0)
+        est = np.fmax(pool, own_low)
+    phi[:, first:] = np.where(ok, np.clip(np.nan_to_num(est, nan=1.0), floor, PHI_MAX), np.nan)
     return phi
+
+
+SKEW_MIN = 60  # pooled days of contrasts a skewness estimate needs
+
+
+def _skewness(z: np.ndarray, valid: np.ndarray, days: int, lag: int, comp: np.ndarray
+              ) -> tuple[np.ndarray, np.ndarray]:
+    """The skewness of the standardised contrasts that a detector may rely on, per slot and
+    day: ``(upper, lower)``, each >= 0, for the upward and the downward side.
+
+    Pooled over the comparison's slots, from the days ``t - lag - days .. t - lag - 1`` (the
+    most recent ``lag`` days are left out, so a change being looked for does not feed it),
+    each slot's values centred on its own mean over those days::
+
+        g = M3 / M2^(3/2),   M_r = sum_s sum_days (z - zbar_s)^r / N
+
+    and shrunk toward zero by two standard errors, ``sqrt(6 / N_eff)`` (the large-sample SE of
+    a sample skewness; ``N_eff = N (K - 1) / K`` for K mirrored group-vs-rest contrasts):
+    ``upper = max(g - 2 SE, 0)``, ``lower = max(-g - 2 SE, 0)``. Normal data give (0, 0) nearly
+    always. Skewed values (a one-sided tail of the lots) make one side's CUSUM cross its
+    threshold far more often than the normal theory says; ``cusum.thresholds`` raises that
+    side's threshold by the skewness."""
+    S, T = z.shape
+    y = np.where(valid, z, 0.0)
+    w = valid.astype(np.float64)
+
+    def window(x: np.ndarray) -> np.ndarray:
+        cs = np.zeros((S, T + 1))
+        np.cumsum(x, axis=1, out=cs[:, 1:])
+        t = np.arange(T)
+        hi = np.clip(t - lag, 0, T)
+        lo = np.clip(t - lag - days, 0, T)
+        return cs[:, hi] - cs[:, lo]
+
+    cnt, s1, s2, s3 = window(w), window(y), window(y * y), window(y ** 3)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        mean = s1 / cnt
+        m2 = np.where(cnt > 2, s2 - cnt * mean ** 2, 0.0)
+        m3 = np.where(cnt > 2, s3 - 3.0 * mean * s2 + 2.0 * cnt * mean ** 3, 0.0)
+    C = int(comp.max()) + 1
+    tot = np.zeros((3, C, T))
+    for i, x in enumerate((np.where(cnt > 2, cnt, 0.0), m2, m3)):
+        np.add.at(tot[i], comp, x)
+    members = np.bincount(comp, minlength=C).astype(np.float64)[:, None]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        g = (tot[2] / tot[0]) / (tot[1] / tot[0]) ** 1.5
+        se = np.sqrt(6.0 / (tot[0] * np.maximum(members - 1.0, 1.0) / members))
+    ok = (tot[0] >= SKEW_MIN) & np.isfinite(g)
+    upper = np.where(ok, np.maximum(g - 2.0 * se, 0.0), 0.0)[comp]
+    lower = np.where(ok, np.maximum(-g - 2.0 * se, 0.0), 0.0)[comp]
+    return upper, lower
 
 
 def _sparse_variance(n: np.ndarray, s1: np.ndarray, days: int) -> np.ndarray:
@@ -173,6 +256,8 @@ class Contrasts:
     days_per_year: np.ndarray  # the group's reporting days per year (trailing)
     groups: np.ndarray  # watched levels in the slot's comparison (trailing)
     ref_sd: np.ndarray  # the rest's trailing within-day SD (d units)
+    skew_m: tuple[np.ndarray, np.ndarray] | None = None  # (upper, lower) skewness allowed for
+    skew_s: tuple[np.ndarray, np.ndarray] | None = None  # (``_skewness``), mean and spread
     comp: np.ndarray | None = None  # (slots,) comparison of each slot
     n: np.ndarray | None = None  # the day's values of the group, their sum (d units),
     s1: np.ndarray | None = None  # and the trailing variances of the group and of its rest:
@@ -243,7 +328,13 @@ def contrasts(n: np.ndarray, s1: np.ndarray, s2: np.ndarray, comp: np.ndarray,
         delta = np.where(np.isnan(gate), settings.no_limits_sigmas * pooled_sd, gate)
         z = c / np.sqrt(v0)
         start_phi = max(first - settings.clear_days, 0)
-        phi_m = _dispersion(z, mean_ok, settings.dispersion_days, start_phi)
+        # ln of a one-sided detector's in-control run length (see ``cusum.thresholds``)
+        log_arl = np.log(settings.years_per_false_alert * 3.0 * groups * 365.0)
+        # (on the days with a contrast, whatever the dispersion: the same in a catch-up and
+        # day by day, as the history read before the first day covers the skewness window)
+        skew_m = _skewness(z, mean_ok, settings.dispersion_days, settings.clear_days, comp)
+        phi_m = _dispersion(z, mean_ok, settings.dispersion_days, start_phi, comp, log_arl,
+                            PHI_FLOOR)
         mean_ok = mean_ok & np.isfinite(phi_m)
         phi_m = np.nan_to_num(phi_m, nan=1.0)
 
@@ -258,7 +349,9 @@ def contrasts(n: np.ndarray, s1: np.ndarray, s2: np.ndarray, comp: np.ndarray,
         u = np.where(spread_ok, np.log(vg) - np.log(vr) - bias, 0.0)
         var_u0 = trigamma(nu_g / 2) + trigamma(nu_r / 2)
         zs = u / np.sqrt(var_u0)
-        phi_s = _dispersion(zs, spread_ok, settings.dispersion_days, start_phi)
+        skew_s = _skewness(zs, spread_ok, settings.dispersion_days, settings.clear_days, comp)
+        phi_s = _dispersion(zs, spread_ok, settings.dispersion_days, start_phi, comp, log_arl,
+                            PHI_FLOOR)
         spread_ok = spread_ok & np.isfinite(phi_s)
         phi_s = np.nan_to_num(phi_s, nan=1.0)
 
@@ -277,5 +370,6 @@ def contrasts(n: np.ndarray, s1: np.ndarray, s2: np.ndarray, comp: np.ndarray,
     return Contrasts(c=c, v=v0 * phi_m, mean_ok=mean_ok, delta=delta, u=u,
                      var_u=var_u0 * phi_s, spread_ok=spread_ok, phi_m=phi_m, phi_s=phi_s,
                      a_typ_m=a_typ_m, a_typ_s=a_typ_s, days_per_year=days_per_year,
-                     groups=groups, ref_sd=np.sqrt(var_r), comp=comp, n=n, s1=s1,
+                     groups=groups, ref_sd=np.sqrt(var_r), skew_m=skew_m, skew_s=skew_s,
+                     comp=comp, n=n, s1=s1,
                      var_g=var_g, var_r=var_r)

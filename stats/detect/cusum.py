@@ -92,17 +92,38 @@ class DayRecords:
     used: dict[str, np.ndarray] = field(default_factory=dict)  # the day had a usable contrast
 
 
-def thresholds(con: Contrasts, settings: DetectorSettings, first: int) -> dict[str, np.ndarray]:
-    """h (LLR scale) per kind, slot and day t >= first (NaN where the group is not watched)."""
+def skew_factor(gamma: np.ndarray, a: np.ndarray) -> np.ndarray:
+    """theta* <= 1 for one side of a CUSUM whose standardised steps have skewness ``gamma`` >= 0
+    toward that side: the root of the step's cumulant generating function to third order,
+    ``E exp(theta X) = 1`` for ``X = a (z - a/2)`` with ``K(s) = s^2/2 + gamma s^3/6``::
+
+        theta + c theta^2 = 1,  c = gamma a / 3   =>   theta = (sqrt(1 + 4c) - 1) / (2c)
+
+    (theta = 1 for normal steps). The in-control run length grows as ``exp(theta h)`` (the
+    exponential bound behind Siegmund's approximation), so ``h / theta`` keeps it."""
+    c = np.maximum(gamma, 0.0) * a / 3.0
+    with np.errstate(invalid="ignore", divide="ignore"):
+        theta = np.where(c > 1e-9, (np.sqrt(1.0 + 4.0 * c) - 1.0) / (2.0 * c), 1.0)
+    return theta
+
+
+def thresholds(con: Contrasts, settings: DetectorSettings, first: int
+               ) -> dict[str, dict[str, np.ndarray]]:
+    """h (LLR scale) per kind, side ("hi", "lo"), slot and day t >= first (NaN where the group
+    is not watched): the normal theory's, divided by ``skew_factor`` of the side's skewness."""
     arl = settings.years_per_false_alert * 3.0 * con.groups[:, first:] * \
         con.days_per_year[:, first:]
-    out = {}
-    for kind, a in (("mean", con.a_typ_m[:, first:]), ("spread", con.a_typ_s[:, first:])):
+    out: dict[str, dict[str, np.ndarray]] = {}
+    for kind, a, skew in (("mean", con.a_typ_m[:, first:], con.skew_m),
+                          ("spread", con.a_typ_s[:, first:], con.skew_s)):
         ok = np.isfinite(a) & (a > 0) & np.isfinite(arl) & (arl >= 1)
         h = np.full(a.shape, np.nan)
         if ok.any():
             h[ok] = a[ok] * decision_interval_markov(a[ok] / 2.0, arl[ok])
-        out[kind] = h
+        out[kind] = {}
+        for side, i in (("hi", 0), ("lo", 1)):
+            g = skew[i][:, first:] if skew is not None else np.zeros(a.shape)
+            out[kind][side] = h / skew_factor(g, np.nan_to_num(a))
     return out
 
 
@@ -184,7 +205,7 @@ def run(con: Contrasts, settings: DetectorSettings, first: int,
             s = st[k]
             if k == "mean":
                 x, w, ok = _set_apart(con, s["alarm"], t, x, w, ok)
-            h = hs[k][:, j]
+            h_hi, h_lo = hs[k]["hi"][:, j], hs[k]["lo"][:, j]
             two_sided = k == "mean"
             with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
                 # winsorised at WINSOR standard errors beyond the midpoint (Hawkins 1993): one
@@ -213,8 +234,8 @@ def run(con: Contrasts, settings: DetectorSettings, first: int,
             s["awc"] = np.where(alarmed & ok, s["awc"] + w * x, s["awc"])
             # raise
             with np.errstate(divide="ignore", invalid="ignore"):
-                ev_hi = s["s_hi"] / h
-                ev_lo = s["s_lo"] / h if two_sided else np.zeros(S)
+                ev_hi = s["s_hi"] / h_hi
+                ev_lo = s["s_lo"] / h_lo if two_sided else np.zeros(S)
                 size_hi = s["wc_hi"] / s["w_hi"]
                 size_lo = -s["wc_lo"] / s["w_lo"]
                 lw, lwx = (a[:, t] for a in lately[k])
@@ -277,10 +298,12 @@ def run(con: Contrasts, settings: DetectorSettings, first: int,
             for f in STATE_FIELDS:
                 rec.state[k][f][j] = s[f]
             rec.used[k][j] = ok
-            rec.threshold[k][j] = h
             with np.errstate(divide="ignore", invalid="ignore"):
-                rec.evidence[k][j] = np.maximum(s["s_hi"], s["s_lo"] if two_sided else 0.0) / h
-                lead_lo = two_sided & (s["s_lo"] > s["s_hi"]) if two_sided else np.zeros(S, bool)
+                ev_lo_now = s["s_lo"] / h_lo if two_sided else np.zeros(S)
+                ev_hi_now = s["s_hi"] / h_hi
+                lead_lo = (ev_lo_now > ev_hi_now) if two_sided else np.zeros(S, bool)
+                rec.threshold[k][j] = np.where(lead_lo, h_lo, h_hi)
+                rec.evidence[k][j] = np.fmax(ev_hi_now, ev_lo_now)
                 now_alarm = s["alarm"] != 0
                 w_run = np.where(now_alarm, s["aw"], np.where(lead_lo, s["w_lo"], s["w_hi"]))
                 wc_run = np.where(now_alarm, s["awc"], np.where(lead_lo, s["wc_lo"], s["wc_hi"]))

@@ -80,9 +80,12 @@ def test_the_detectors_recursion_has_the_chains_run_length(h, monkeypatch):
     """600 independent null runs through cusum.run (in 100-day chunks, carrying the state as the
     store does), threshold fixed at h, practical gate off: the mean run length to the first alarm
     is the chain's two-sided ARL (168 for h = 4) within 12% (simulation error about 4%)."""
-    monkeypatch.setattr(cusum, "thresholds", lambda con, s, first: {
-        "mean": np.full((con.c.shape[0], con.c.shape[1] - first), h),
-        "spread": np.full((con.c.shape[0], con.c.shape[1] - first), np.inf)})
+    def fixed(con, s, first):
+        shape = (con.c.shape[0], con.c.shape[1] - first)
+        return {"mean": {"hi": np.full(shape, h), "lo": np.full(shape, h)},
+                "spread": {"hi": np.full(shape, np.inf), "lo": np.full(shape, np.inf)}}
+
+    monkeypatch.setattr(cusum, "thresholds", fixed)
     monkeypatch.setattr(cusum, "Z95", 1e9)  # the gate always passes
     rng = np.random.default_rng(2024)
     S, chunk = 600, 100

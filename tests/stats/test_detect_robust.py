@@ -1,0 +1,99 @@
+"""The detectors' guards against data that are not the normal theory's: the extra dispersion
+pooled over a comparison (correlated lots) and the threshold raised for skewed contrasts
+(skewed lots), checked against Brook & Evans (1972) Markov chains with non-normal steps and
+against simulation."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from lotwatch.stats.detect import arl, cusum
+from lotwatch.stats.detect import contrasts as dcon
+from scipy import stats
+
+
+def _chain_arl(cdf, k: float, h: float, states: int = 300) -> float:
+    """One-sided ARL from zero of S = max(0, S + X - k), alarm at S > h, for steps X with the
+    given cdf (Brook & Evans 1972: the same discretisation as ``arl.arl_markov``)."""
+    w = 2.0 * h / (2 * states - 1)
+    centre = np.arange(states) * w
+    upper = centre[None, :] + w / 2 - centre[:, None] + k
+    lower = centre[None, :] - w / 2 - centre[:, None] + k
+    p = cdf(upper) - cdf(lower)
+    p[:, 0] = cdf(upper[:, 0])
+    return float(np.linalg.solve(np.eye(states) - p, np.ones(states))[0])
+
+
+def _skewed(gamma: float):
+    """cdf of a standardised gamma variable with skewness ``gamma`` (shape 4 / gamma^2)."""
+    shape = 4.0 / gamma ** 2
+    return lambda x: stats.gamma.cdf(x * np.sqrt(shape) + shape, shape)
+
+
+def test_the_chain_here_is_the_projects_chain_for_normal_steps():
+    assert _chain_arl(stats.norm.cdf, 0.5, 4.0, 200) == pytest.approx(arl.arl_markov(0.5, 4.0),
+                                                                      rel=1e-9)
+
+
+@pytest.mark.parametrize("gamma", [0.3, 0.6])
+@pytest.mark.parametrize("a", [1.4, 2.8])
+def test_a_threshold_raised_for_skewness_keeps_the_run_length(gamma, a):
+    """Steps with skewness 0.3-0.6 toward the alarm side: at the normal theory's decision
+    interval the in-control run length falls short of a 1e5 target many times over; divided by
+    ``skew_factor`` it stays within a factor 3 of it (the factor is a third-order
+    approximation)."""
+    target = 1e5
+    k = a / 2.0
+    h_z = float(arl.decision_interval_markov(k, target))
+    cdf = _skewed(gamma)
+    plain = _chain_arl(cdf, k, h_z)
+    theta = float(cusum.skew_factor(np.array(gamma), np.array(a)))
+    raised = _chain_arl(cdf, k, h_z / theta)
+    assert plain < target / 3  # the problem is real
+    assert target / 3 < raised < target * 3
+
+
+def test_no_skewness_no_change():
+    assert cusum.skew_factor(np.array([0.0, -0.5]), np.array([2.0, 2.0])).tolist() == [1.0, 1.0]
+
+
+def test_skewness_is_pooled_and_ignores_the_latest_days():
+    """Eight slots of one comparison: normal contrasts give no allowance; gamma contrasts with
+    skewness 0.8 give an upper allowance near 0.8 less two standard errors and none below; a step
+    in one slot during the last ``lag`` days changes nothing."""
+    rng = np.random.default_rng(1)
+    S, T, days, lag = 8, 200, 84, 14
+    comp = np.zeros(S, dtype=np.int64)
+    valid = np.ones((S, T), dtype=bool)
+    up, lo = dcon._skewness(rng.standard_normal((S, T)), valid, days, lag, comp)
+    assert up[:, -1].max() < 0.1 and lo[:, -1].max() < 0.1
+    shape = 4.0 / 0.8 ** 2
+    z = (rng.gamma(shape, size=(S, T)) - shape) / np.sqrt(shape)
+    up, lo = dcon._skewness(z, valid, days, lag, comp)
+    se = np.sqrt(6.0 / (days * S * 7 / 8))
+    assert up[0, -1] == pytest.approx(0.8 - 2 * se, abs=0.2)
+    assert lo[0, -1] == 0.0
+    stepped = z.copy()
+    stepped[3, T - lag:] += 4.0
+    up2, _ = dcon._skewness(stepped, valid, days, lag, comp)
+    np.testing.assert_array_equal(up2[:, -1], up[:, -1])
+
+
+def test_dispersion_is_pooled_over_the_comparison():
+    """Contrasts whose variance is 2 (the normal theory says 1) in every slot: the pooled
+    estimate is about 2, raised a little for its own uncertainty; a slot with variance 5 keeps
+    (at least) a lower bound of its own estimate."""
+    rng = np.random.default_rng(2)
+    S, T, days = 8, 240, 84
+    comp = np.zeros(S, dtype=np.int64)
+    sd = np.full((S, 1), np.sqrt(2.0))
+    sd[5] = np.sqrt(5.0)
+    z = rng.standard_normal((S, T)) * sd
+    valid = np.ones((S, T), dtype=bool)
+    log_arl = np.full((S, T), np.log(1e6))
+    phi = dcon._dispersion(z, valid, days, 0, comp, log_arl, 1.0)
+    others = np.delete(phi[:, -1], 5)
+    # the pooled mean square of all eight: (7 x 2 + 5) / 8 = 2.375, times 1 + L cv^2 / 2
+    assert others == pytest.approx(2.375 * 1.03, rel=0.2)
+    assert len(set(np.round(others, 12))) == 1
+    assert phi[5, -1] > 3.0
