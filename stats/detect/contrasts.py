@@ -34,8 +34,17 @@ than the normal theory says. ``phi`` is estimated from the day-to-day changes of
 standardised contrast over the trailing ``dispersion_days`` (a step adds one large change, which
 is trimmed; heavy tails are what the estimate is for, so only the largest 2% are left out): the
 mean of the smallest 98% of ``(z_t - z_prev)^2``, divided by their expectation under N(0, 2):
-``2 x 0.8735`` (the second moment of a standard normal below the 99% point of |X|), kept
-within [1, 9] (Hawkins & Olwell 1998 discuss the CUSUM's sensitivity to a misjudged scale).
+``2 x 0.8735`` (the second moment of a standard normal below the 99% point of |X|). It is
+pooled over the groups of the comparison and raised for its own uncertainty (``_dispersion``:
+a CUSUM tuned to a long run length feels an underestimated scale exponentially; Hawkins &
+Olwell 1998 discuss the CUSUM's sensitivity to a misjudged scale), and kept within [1, 9].
+
+Skewness: the contrasts' skewness, pooled over the comparison (``_skewness``), lets
+``cusum.thresholds`` raise the threshold of the side the tail points to.
+
+Replicates: ``n`` counts values, and a day's mean of lots measured several times varies more
+than ``var / n`` says (the lot-to-lot part is shared by a lot's values); ``phi``, measured on
+the contrasts themselves, carries that (up to 9 times the variance).
 """
 
 from __future__ import annotations

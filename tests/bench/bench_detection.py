@@ -53,6 +53,7 @@ CHANGE = 120
 DAYS = 220
 RES = 0.01  # resolution in sigma units
 BUDGET = 500.0
+NULL_DAYS = 600  # each null characteristic's history
 WARMUP = 42  # days before the detectors are counted for false alerts (history + warm-up)
 
 
@@ -76,11 +77,12 @@ class Scenario:
     plant_wide: bool = False
 
 
-def simulate(rng, plant: Plant, sc: Scenario | None, *, noise: str = "normal"):
+def simulate(rng, plant: Plant, sc: Scenario | None, *, noise: str = "normal",
+             days: int = DAYS):
     """Lots of one plant: arrays day, line, shift, value (sigma units), and the changed group."""
-    counts = rng.poisson(plant.lots, size=(DAYS, plant.lines))
-    day = np.repeat(np.repeat(np.arange(DAYS), plant.lines), counts.ravel())
-    line = np.repeat(np.tile(np.arange(plant.lines), DAYS), counts.ravel())
+    counts = rng.poisson(plant.lots, size=(days, plant.lines))
+    day = np.repeat(np.repeat(np.arange(days), plant.lines), counts.ravel())
+    line = np.repeat(np.tile(np.arange(plant.lines), days), counts.ravel())
     shift = rng.integers(0, plant.shifts, size=day.size)
     order = np.lexsort((shift, line, day))  # within a line and day, lots by shift (time order)
     day, line, shift = day[order], line[order], shift[order]
@@ -115,13 +117,14 @@ def simulate(rng, plant: Plant, sc: Scenario | None, *, noise: str = "normal"):
 
 def bucket_rows(char_id: int, plant: Plant, day, line, shift, value) -> list[tuple]:
     """The day sums the store keeps for these lots (exact integer units)."""
+    days = int(day.max()) + 1
     units = np.rint(value / RES).astype(np.int64)
     rows = []
     for factor, level, k in (("line", line, plant.lines), ("shift", shift, plant.shifts)):
         key = day * k + level
-        n = np.bincount(key, minlength=DAYS * k)
-        s1 = np.bincount(key, weights=units, minlength=DAYS * k)
-        s2 = np.bincount(key, weights=units.astype(np.float64) ** 2, minlength=DAYS * k)
+        n = np.bincount(key, minlength=days * k)
+        s1 = np.bincount(key, weights=units, minlength=days * k)
+        s2 = np.bincount(key, weights=units.astype(np.float64) ** 2, minlength=days * k)
         for idx in np.flatnonzero(n):
             d, lv = divmod(int(idx), k)
             rows.append((char_id, factor, f"{factor[0].upper()}{lv + 1}",
@@ -240,19 +243,20 @@ def run_scenario(sc: Scenario, n_plants: int, rng, tmp: Path) -> dict:
 
 def null_rate(noise: str, n_chars: int, rng, tmp: Path, plant: Plant) -> tuple[float, float, float]:
     """(lotwatch false alerts per comparison-year, baseline's, comparison-years)."""
-    plants = [(plant, simulate(rng, plant, None, noise=noise)) for _ in range(n_chars)]
+    plants = [(plant, simulate(rng, plant, None, noise=noise, days=NULL_DAYS))
+              for _ in range(n_chars)]
     store = build_store(tmp / f"null_{noise}.sqlite", plants, None)
     advance_detectors(store)
     opened = store.conn.execute(
         "SELECT count(*) FROM alert_events WHERE event IN ('opened', 'reopened') AND "
         "window >= ?", (f"day {(DAY0 + timedelta(days=WARMUP)).isoformat()}",)).fetchone()[0]
     store.close()
-    years = n_chars * 2 * (DAYS - WARMUP) / 365.0
+    years = n_chars * 2 * (NULL_DAYS - WARMUP) / 365.0
     b = 0
     for factor in ("line", "shift"):
         for alarms in baseline_alarms(plant, [p[1] for p in plants], factor):
             b += len({d for d, _ in alarms if d >= 100})
-    b_years = n_chars * 2 * (DAYS - 100) / 365.0
+    b_years = n_chars * 2 * (NULL_DAYS - 100) / 365.0
     return opened / years, b / b_years, years
 
 
@@ -315,7 +319,7 @@ def main() -> None:
     ap.add_argument("--quick", action="store_true", help="fewer plants and null years")
     args = ap.parse_args()
     n_plants = 6 if args.quick else 16
-    null_chars = 40 if args.quick else 480
+    null_chars = 40 if args.quick else 360  # full: 1,100 comparison-years per kind of noise
     rng = np.random.default_rng(20261202)
     with tempfile.TemporaryDirectory() as d:
         tmp = Path(d)

@@ -129,7 +129,10 @@ def detector_status(store, *, day: date | None = None) -> list[DetectorStatus]:
         if alarm:
             side, onset = alarm, st["alarm_onset"]
         elif st["s_hi"] > 0 or st["s_lo"] > 0:
-            side = 1 if st["s_hi"] >= st["s_lo"] else -1
+            # the side whose statistic the stored evidence x threshold is (sides may differ in
+            # threshold where the contrasts are skewed)
+            lead = (_f(ev) or 0.0) * (_f(h) or 0.0)
+            side = 1 if abs(lead - st["s_hi"]) <= abs(lead - st["s_lo"]) else -1
             onset = st["onset_hi"] if side == 1 else st["onset_lo"]
         else:
             side, onset = 0, -1
