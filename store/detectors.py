@@ -108,3 +108,13 @@ def rows_on(store, day: str | None = None) -> list[tuple]:
            "JOIN characteristics c ON c.id = d.characteristic_id WHERE d.day = ? "
            "ORDER BY c.name, d.factor, d.level, d.kind")
     return store.conn.execute(sql, (day,)).fetchall()
+
+
+def evidence_rows(store, characteristic_id: int, factor: str, since: str,
+                  until: str) -> list[tuple]:
+    """(level, kind, day, evidence) of one comparison's detectors over a day range, the day
+    by day history the run chart draws under the means (evidence may be NULL). One query."""
+    return store.conn.execute(
+        "SELECT level, kind, day, evidence FROM detector_days WHERE characteristic_id = ? "
+        "AND factor = ? AND day >= ? AND day <= ? ORDER BY level, kind, day",
+        (characteristic_id, factor, since, until)).fetchall()

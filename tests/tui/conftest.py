@@ -92,3 +92,19 @@ def demo_data_home(tmp_path_factory) -> Path:
         else:
             os.environ["XDG_DATA_HOME"] = old
     return home
+
+
+@pytest.fixture(scope="module")
+def demo_copy(demo_data_home, tmp_path_factory) -> Path:
+    """A copy of the demo store with its last weekly reviews recorded (as ``lotwatch demo``
+    does for a new store), so the planted RB-2 drift has an open alert."""
+    import sqlite3
+
+    from lotwatch.tui.cli.interface import _replay_reviews
+
+    src = demo_data_home / "lotwatch" / "demo.sqlite"
+    dst = tmp_path_factory.mktemp("demo") / "demo.sqlite"
+    with sqlite3.connect(src) as a, sqlite3.connect(dst) as b:
+        a.backup(b)
+    _replay_reviews(dst)
+    return dst

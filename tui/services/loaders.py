@@ -31,8 +31,8 @@ from lotwatch.tui.services.view_models import (
     Overview,
     RecentLot,
     ReviewView,
+    RunChart,
     SpreadRow,
-    TrendPoint,
 )
 
 if TYPE_CHECKING:
@@ -179,7 +179,8 @@ def recent_lots(store: Store, characteristic: str, factor: str) -> list[RecentLo
 
 
 def load_detail(path: Path, read_only: bool, request: DetailRequest) -> DetailView:
-    """The battery of the latest (or chosen) window, the trend of group means, and the limits."""
+    """The battery of the latest (or chosen) window, the run chart of daily means, and the
+    limits."""
     from lotwatch.tui.services.review_engine import comparison_detail, review_settings
 
     with opened(path, read_only) as store:
@@ -189,23 +190,25 @@ def load_detail(path: Path, read_only: bool, request: DetailRequest) -> DetailVi
         kind = review_settings(store, window=request.window).window
         recent = recent_lots(store, request.characteristic, request.factor)
         detectors = detector_lines(store, request.characteristic, request.factor)
-    trend = [
-        TrendPoint(window_end=_day_text(r["window_end"]), level=str(r["level"]), n=int(r["n"]),
-                   mean=float(r["mean"]))
-        for r in d.trend.iter_rows(named=True)
-        if r["mean"] is not None
-    ]
-    grand_means = []
-    if (frame := getattr(d, "grand_means", None)) is not None:
-        grand_means = [(_day_text(r["window_end"]), float(r["grand_mean"]))
-                       for r in frame.iter_rows(named=True)
-                       if r["grand_mean"] is not None]
+        chart = chart_of(store, request, detectors)
     pooled, spread = spread_rows(d.battery)
     return DetailView(request=request, characteristic=char_info(d.characteristic),
                       factor=d.factor, window_label=d.window_label, battery=d.battery,
-                      trend=trend, grand_mean=d.grand_mean, lsl=d.lsl, target=d.target,
-                      usl=d.usl, window_kind=kind, recent=recent, grand_means=grand_means,
-                      pooled_sd=pooled, spread=spread, detectors=detectors)
+                      grand_mean=d.grand_mean, lsl=d.lsl, target=d.target,
+                      usl=d.usl, window_kind=kind, recent=recent, pooled_sd=pooled, spread=spread, detectors=detectors, chart=chart)
+
+
+def chart_of(store: Store, request: DetailRequest, detectors: list[DetectorLine]) -> RunChart:
+    """The run chart up to the shown window's end, reaching back to the alarmed detectors'
+    onsets (and the strongest one's)."""
+    from lotwatch.tui.services.review_engine import resolve_as_of
+    from lotwatch.tui.services.run_chart import run_chart
+
+    until = resolve_as_of(week=request.week, zone=store.plant_zone)
+    marked = [d for d in detectors if d.alarmed] + detectors[:1]
+    onsets = [date.fromisoformat(d.onset) for d in marked if d.onset and d.evidence]
+    return run_chart(store, request.characteristic, request.factor, until=until,
+                     onsets=onsets)
 
 
 def detector_lines(store: Store, characteristic: str, factor: str) -> list[DetectorLine]:
@@ -235,12 +238,6 @@ def spread_rows(battery: BatteryResult) -> tuple[float | None, list[SpreadRow]]:
                       g.sd / pooled if g.sd is not None and pooled else None)
             for g in battery.groups]
     return pooled, rows
-
-
-def _day_text(value: Any) -> str:
-    if isinstance(value, date):
-        return value.isoformat()
-    return str(value)[:10]
 
 
 def load_review(path: Path, read_only: bool, week: str | None) -> ReviewView:

@@ -5,6 +5,7 @@ Voided values are listed too (marked), so a person can see what the statistics l
 
 from __future__ import annotations
 
+from datetime import date
 from pathlib import Path
 
 from lotwatch.tui.services.storefile import opened
@@ -20,7 +21,8 @@ def _outside(value: float, lsl: float | None, usl: float | None) -> bool:
 def load_lots(path: Path, read_only: bool, request: LotsRequest) -> LotsView:
     """Values of the lots tagged ``factor = level`` in the latest (or chosen week's) window,
     newest first, with who logged them, their note, and whether they were corrected or voided.
-    For "last lots per group" windows, the group's last N lots up to the window's end."""
+    For "last lots per group" windows, the group's last N lots up to the window's end; with
+    ``request.since``/``until`` (a chart point), the lots of those plant days instead."""
     import polars as pl
     from lotwatch.stats import monitor as mon
     from lotwatch.store.timeutil import format_local
@@ -32,16 +34,21 @@ def load_lots(path: Path, read_only: bool, request: LotsRequest) -> LotsView:
         zone = store.plant_zone  # days and shown times are plant-local
         day = resolve_as_of(week=request.week, zone=zone)
         win = mon.window_plan(day, settings, 1)[-1]
+        since, until, label = win.start, win.end, win.label
+        if request.since and request.until:  # a chart point's plant days
+            since, until = date.fromisoformat(request.since), date.fromisoformat(request.until)
+            label = (f"plant day {since}" if since == until
+                     else f"plant days {since} to {until}")
         ch = store.characteristic(request.characteristic)
         frame = store.measurements_frame(characteristic=request.characteristic,
-                                         since=win.start, until=win.end)
+                                         since=since, until=until)
     column = request.factor if request.factor in frame.columns else f"tag_{request.factor}"
     if column not in frame.columns:
         frame = frame.clear()
     else:
         frame = frame.filter(pl.col(column) == request.level)
     frame = frame.sort(["measured_at", "id"], descending=True)
-    if win.start is None:  # last N lots of the group
+    if since is None:  # last N lots of the group
         keep = frame.select("lot").unique(maintain_order=True).head(settings.last_n)["lot"]
         frame = frame.filter(pl.col("lot").is_in(keep.implode()))
     truncated = frame.height > MAX_LOTS
@@ -56,7 +63,7 @@ def load_lots(path: Path, read_only: bool, request: LotsRequest) -> LotsView:
             voided=bool(r["voided"]), by=str(r["logged_by"] or ""), note=str(r["note"] or ""),
             outside_spec=_outside(float(r["value"]), ch.lsl, ch.usl)))
     return LotsView(request=request, unit=ch.unit, resolution=ch.resolution,
-                    window_label=win.label, values=values, truncated=truncated)
+                    window_label=label, values=values, truncated=truncated)
 
 
 def value_history(path: Path, read_only: bool, measurement_id: int) -> list[AuditLine]:

@@ -133,14 +133,6 @@ class DetailRequest:
 
 
 @dataclass(frozen=True)
-class TrendPoint:
-    window_end: str  # YYYY-MM-DD
-    level: str
-    n: int
-    mean: float
-
-
-@dataclass(frozen=True)
 class RecentLot:
     """One of the latest lots of the shown characteristic (newest first)."""
 
@@ -174,25 +166,62 @@ class SpreadRow:
 
 
 @dataclass(frozen=True)
+class DayMean:
+    """One group's values of one plant day: their count, mean and SD (None below 2 values)."""
+
+    offset: int  # days after the chart's first day
+    n: int
+    mean: float
+    sd: float | None
+
+
+@dataclass(frozen=True)
+class RunChart:
+    """The run chart of one comparison: each group's daily means over the plant days
+    ``first_day`` .. ``last_day`` (inclusive) and each group's detector evidence day by day
+    (statistic / threshold; 1 = crossed), by (group, kind)."""
+
+    first_day: str  # YYYY-MM-DD
+    last_day: str
+    resolution: str
+    unit: str
+    lsl: float | None
+    target: float | None
+    usl: float | None
+    series: dict[str, tuple[DayMean, ...]] = field(default_factory=dict)
+    evidence: dict[tuple[str, str], tuple[tuple[int, float], ...]] = field(default_factory=dict)
+
+    @property
+    def days(self) -> int:
+        from datetime import date
+
+        return (date.fromisoformat(self.last_day) - date.fromisoformat(self.first_day)).days + 1
+
+    def day(self, offset: int) -> str:
+        from datetime import date, timedelta
+
+        return (date.fromisoformat(self.first_day) + timedelta(days=offset)).isoformat()
+
+
+@dataclass(frozen=True)
 class DetailView:
-    """The battery, trend and limits of one comparison, ready to show."""
+    """The battery, run chart and limits of one comparison, ready to show."""
 
     request: DetailRequest
     characteristic: CharacteristicInfo
     factor: str
     window_label: str
     battery: BatteryResult
-    trend: list[TrendPoint]
     grand_mean: float | None
     lsl: float | None
     target: float | None
     usl: float | None
     window_kind: str = ""
     recent: list[RecentLot] = field(default_factory=list)
-    grand_means: list[tuple[str, float]] = field(default_factory=list)  # (window end, mean)
     pooled_sd: float | None = None
     spread: list[SpreadRow] = field(default_factory=list)
     detectors: list[DetectorLine] = field(default_factory=list)  # most evidence first
+    chart: RunChart | None = None  # daily means and evidence over the weeks before
 
 
 @dataclass(frozen=True)
@@ -299,6 +328,8 @@ class LotsRequest:
     level: str
     week: str | None = None
     window: str | None = None
+    since: str | None = None  # plant days (YYYY-MM-DD, inclusive): a chart point's days
+    until: str | None = None  # instead of the window
 
 
 @dataclass(frozen=True)

@@ -14,6 +14,7 @@ from lotwatch.tui.app.widgets.anova_panel import AnovaPanel, anova_table, decisi
 from lotwatch.tui.app.widgets.group_table import GroupTable
 from lotwatch.tui.app.widgets.posthoc_tables import DunnettTable, PairwiseTable, SpreadTable
 from lotwatch.tui.app.widgets.status_line import StatusLine
+from lotwatch.tui.app.widgets.trend_chart import RunChartView
 from lotwatch.tui.render.safe_text import clean
 from lotwatch.tui.services.view_models import DetailView
 from rich.console import Group
@@ -59,6 +60,8 @@ class ComparisonScreen(LotwatchScreen):
         Binding("g", "reference", "Reference", show=False,
                 tooltip="Dunnett: the next group as reference"),
         Binding("l", "lots", "Lots", tooltip="The lots behind the highlighted group"),
+        Binding("d", "chart", "Days", show=False, tooltip="The chart's cursor over the days: ←/→ move, "
+                "↑/↓ group, Enter the lots of that day"),
         Binding("left_square_bracket", "week(-1)", "Earlier week", show=False,
                 key_display="["),
         Binding("right_square_bracket", "week(1)", "Later week", show=False, key_display="]"),
@@ -80,10 +83,7 @@ class ComparisonScreen(LotwatchScreen):
                 yield Static("", id="cmp-anova")
             with TabbedContent(id="tabs", initial="chart"):
                 with TabPane("1 Chart", id="chart"):
-                    # The chart (plotext) is mounted with the first result, keeping its
-                    # import off the first paint.
-                    yield Static("The chart appears once the comparison is computed.",
-                                 id="chart-wait")
+                    yield RunChartView(id="run-chart")
                     yield Static("", id="evidence", classes="tab-title")
                 with TabPane("2 Pairs", id="pairs"):
                     yield Static("", id="pairs-title", classes="tab-title")
@@ -119,7 +119,16 @@ class ComparisonScreen(LotwatchScreen):
             return
         changed = getattr(self, "_shown", None) != (detail.characteristic.name, detail.factor)
         self._shown = (detail.characteristic.name, detail.factor)
-        self.query_one(GroupTable).show(detail)
+        table = self.query_one(GroupTable)
+        group = self._chart_group(detail) if changed else getattr(self, "_chart_shown", None)
+        self._following = False  # the table's cursor moves below: not the reader's choice
+        table.show(detail)
+        names = [g.name for g in detail.battery.groups]
+        if group in names:
+            table.move_cursor(row=names.index(group))
+            # once laid out, scroll the row into view (the table may be three rows high)
+            self.call_after_refresh(table.move_cursor, row=names.index(group))
+        self._following = True
         b = detail.battery
         parts: list = []
         if len(b.groups) < 2:
@@ -131,7 +140,9 @@ class ComparisonScreen(LotwatchScreen):
             if b.anova.df_within > 0:
                 # Below 32 rows the chart needs the Total row's line (Tests has it).
                 parts.append(anova_table(detail, total=self.size.height >= 32))
-            parts.append(decision_text(detail))
+            # Under 32 rows the sentence alone fits one line at 80 columns.
+            parts.append(decision_text(detail) if self.size.height >= 32
+                         else Text(clean(b.anova.decision), style="bold"))
         self.query_one("#cmp-anova", Static).update(Group(*parts))
         self.query_one(AnovaPanel).show(detail)
         self.query_one("#pairs-title", Static).update(
@@ -142,21 +153,34 @@ class ComparisonScreen(LotwatchScreen):
             Text(self.query_one(SpreadTable).show(detail)))
         if changed:
             self.query_one("#tests-scroll", VerticalScroll).scroll_home(animate=False)
-        self._show_chart(detail)
+        self._show_chart(detail, group, keep_cursor=not changed)
         self.query_one("#evidence", Static).update(
             evidence_text(detail, 2 if self.size.height < 32 else EVIDENCE_LINES))
 
-    def _show_chart(self, detail: DetailView) -> None:
-        from lotwatch.tui.app.widgets.trend_chart import TrendChart
+    def _chart_group(self, detail: DetailView) -> str | None:
+        """The group the chart draws distinctly when a comparison arrives: the flagged one,
+        else the one whose detector is closest to its threshold (if it has any evidence)."""
+        names = {g.name for g in detail.battery.groups} | set(
+            detail.chart.series if detail.chart else ())
+        flagged = [g for g in self._flagged(detail) if g in names]
+        if flagged:
+            return flagged[0]
+        top = next((d for d in detail.detectors if d.evidence and d.group in names), None)
+        return top.group if top else None
 
-        flagged = self._flagged(detail)
-        charts = self.query(TrendChart)
-        if charts:
-            charts.first().show(detail, flagged)
-            return
-        self.query_one("#chart-wait", Static).display = False
-        self.query_one("#chart", TabPane).mount(
-            TrendChart(id="trend-chart", pending=(detail, flagged)), before="#evidence")
+    def _show_chart(self, detail: DetailView, group: str | None, *,
+                    keep_cursor: bool = False) -> None:
+        """Draw ``group`` distinctly; its strongest detector says whether the chart shows
+        means or (an alarmed spread detector) SDs, and where the onset is."""
+        mine = [d for d in detail.detectors if d.group == group]
+        top = mine[0] if mine else None  # most evidence first
+        kind = "spread" if top is not None and top.kind == "spread" and top.alarmed else "mean"
+        line = next((d for d in mine if d.kind == kind), None)
+        onset = line.onset if line is not None and line.evidence else None
+        role = "flagged" if group in self._flagged(detail) else "highlighted"
+        self.query_one(RunChartView).show(detail.chart, group=group, role=role, kind=kind,
+                                          onset=onset, keep_cursor=keep_cursor)
+        self._chart_shown = group
 
     def _show_problem(self, message: str) -> None:
         if message:
@@ -228,6 +252,38 @@ class ComparisonScreen(LotwatchScreen):
         v = self.state.view
         self.app.push_screen(LotsScreen(LotsRequest(d.characteristic.name, d.factor, key,
                                                     week=v.week, window=v.window)))
+
+    def on_data_table_row_highlighted(self, event: DataTable.RowHighlighted) -> None:
+        """The group table's cursor chooses the group the chart draws distinctly."""
+        d = self.state.detail
+        if event.data_table.id != "group-table" or d is None or \
+                not getattr(self, "_following", False):
+            return
+        key = event.row_key.value if event.row_key is not None else None
+        if key is not None and key != getattr(self, "_chart_shown", None):
+            self._show_chart(d, key, keep_cursor=True)
+
+    def on_run_chart_view_group_step(self, event: RunChartView.GroupStep) -> None:
+        table = self.query_one(GroupTable)
+        if table.row_count:
+            table.move_cursor(row=(table.cursor_row + event.step) % table.row_count)
+
+    def on_run_chart_view_days_chosen(self, event: RunChartView.DaysChosen) -> None:
+        """Enter on a chart point: the lots of that group on those plant days."""
+        from lotwatch.tui.app.screens.lots import LotsScreen
+        from lotwatch.tui.services.view_models import LotsRequest
+
+        d = self.state.detail
+        if d is None:
+            return
+        v = self.state.view
+        self.app.push_screen(LotsScreen(LotsRequest(
+            d.characteristic.name, d.factor, event.group, week=v.week, window=v.window,
+            since=event.first, until=event.last)))
+
+    def action_chart(self) -> None:
+        self.query_one(TabbedContent).active = "chart"
+        self.query_one(RunChartView).focus()
 
     def on_data_table_row_selected(self, event: DataTable.RowSelected) -> None:
         if event.data_table.id == "group-table":

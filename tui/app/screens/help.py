@@ -58,9 +58,17 @@ MEANINGS = [
     ("Comparison tabs",
      "Pairs = every pair of groups by the recommended post-hoc test (difference, simultaneous "
      "interval, adjusted p); Dunnett = each group against a reference you pick with g; Spread "
-     "= each group's SD against the pooled within-group SD (sqrt of MS Within). The chart draws "
-     "the flagged group with # and the others with ·, LSL, target and USL always on the "
-     "scale."),
+     "= each group's SD against the pooled within-group SD (sqrt of MS Within)."),
+    ("Run chart",
+     "Each group's mean per plant day over the twelve weeks before the window's end (further "
+     "back to an earlier onset; several days a column when they do not fit). The flagged group "
+     "(else the group highlighted in the table) is drawn with #, the others with ·; for an "
+     "alarmed spread detector the chart shows SDs per day instead. LSL and USL (═) and the "
+     "target (─) are always on the scale: far from the data they get a row of their own at the "
+     "edge, marked ≈ where the scale breaks. ┆ = the detector's estimated onset. The strip "
+     "under the axis is the group's detector evidence day by day (█ = at or over its "
+     "threshold; the number is the latest). d puts a cursor on the days: ←/→ move, ↑/↓ change "
+     "the group, Enter lists the lots of that group on those days."),
     ("Lots and corrections",
      "l (or Enter on a group) lists the lots behind it in plant time, with who logged them and "
      "their notes; c corrects and v voids a value with a required reason (kept with the "
@@ -71,7 +79,8 @@ MEANINGS = [
 
 KEY_NAMES = {"escape": "Esc", "enter": "Enter", "pagedown": "PgDn", "pageup": "PgUp",
              "down": "↓", "up": "↑", "question_mark": "?", "slash": "/", "tab": "Tab",
-             "left_square_bracket": "[", "right_square_bracket": "]"}
+             "left_square_bracket": "[", "right_square_bracket": "]", "left": "←",
+             "right": "→", "home": "Home", "end": "End"}
 
 
 def binding_lines(title: str, bindings: list[BindingType]) -> Text:
@@ -106,6 +115,7 @@ class HelpScreen(SizeGuard, ModalScreen[None]):
         from lotwatch.tui.app.screens.lots import LotsScreen
         from lotwatch.tui.app.screens.reason import ReasonScreen
         from lotwatch.tui.app.widgets.tag_input import TagInput
+        from lotwatch.tui.app.widgets.trend_chart import RunChartView
 
         text = Text()
         text.append("lotwatch help (↑/↓ scroll, Esc close)\n\n", style="bold")
@@ -120,6 +130,7 @@ class HelpScreen(SizeGuard, ModalScreen[None]):
             if isinstance(cls, type):
                 sections.append((title, list(getattr(cls, "BINDINGS", []))))
         sections += [
+            ("Run chart (after d)", RunChartView.BINDINGS),
             ("Lots behind a group", LotsScreen.BINDINGS),
             ("Correct or void a value", ReasonScreen.BINDINGS),
             ("Lot entry form", LotEntryScreen.BINDINGS),

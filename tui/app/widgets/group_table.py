@@ -1,5 +1,5 @@
-"""The group table: lots and values, mean, SD, confidence interval, difference from the others,
-ANOM, and each group's own Cpk and Ppk (units in the headers)."""
+"""The group table: lots and values, mean, SD, the confidence interval's half-width, difference
+from the others, ANOM, and each group's own Cpk and Ppk (the unit on the mean's header)."""
 
 from __future__ import annotations
 
@@ -20,6 +20,12 @@ class GroupTable(DataTable):
         self.cursor_type = "row"
         self.zebra_stripes = True
 
+    def on_resize(self) -> None:
+        # A few rows high under 32 lines: keep the chosen group (the flagged one) in view once
+        # the table has its size.
+        if self.row_count:
+            self.call_after_refresh(self.move_cursor, row=self.cursor_row)
+
     def show(self, detail: DetailView) -> None:
         b = detail.battery
         dec = decimals_of(detail.characteristic.resolution)
@@ -28,16 +34,19 @@ class GroupTable(DataTable):
         conf = round((1 - b.alpha) * 100)
         unit = clean(detail.characteristic.unit, 8)
         u = f" ({unit})" if unit else ""
-        headers = ["group", "lots", "values", f"mean{u}", f"SD{u}", f"{conf}% CI{u}",
-                   f"vs rest{u}", "ANOM"]
-        right = [False, True, True, True, True, False, True, False]
+        # The unit once, on the mean: SD, the interval's half-width and the difference from
+        # the rest are in the same unit (narrow enough to keep Cpk and Ppk in view).
+        headers = ["group", "lots", "values", f"mean{u}", "SD", f"±{conf}% CI",
+                   "vs rest", "ANOM"]
+        right = [False, True, True, True, True, True, True, False]
         if b.capability:
             headers += ["Cpk", "Ppk"]
             right += [True, True]
         rows: list[list[str]] = []
         styles: list[list[str]] = []
         for g in b.groups:
-            ci = (f"{fixed(g.ci_low, dec)}..{fixed(g.ci_high, dec)}"
+            # mean ± t·s/√n is symmetric (stats.results.GroupSummary): its half-width
+            ci = (f"±{fixed((g.ci_high - g.ci_low) / 2, dec)}"
                   if g.ci_low is not None and g.ci_high is not None else MISSING)
             diff = g.diff_from_others
             flag = anom.get(g.name, "")

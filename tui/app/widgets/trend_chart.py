@@ -1,96 +1,135 @@
-"""Run chart of each group's mean per window, the flagged group drawn distinctly.
+"""The comparison's run chart: one group's daily means drawn distinctly over the others', the
+limits, the onset and the group's detector evidence (drawn by ``tui.render.run_chart``).
 
-Readable without colour (NO_COLOR): the flagged group is drawn with "#" and named in the title,
-the other groups with a muted "·"; LSL, target and USL are always on the scale (the axis widens to
-hold them, never "off the chart"); the y labels are written at the characteristic's resolution.
+Focused (d, or Tab), a cursor walks the days: ←/→ a column, Home/End the first/last, ↑/↓ the
+previous/next group, Enter the lots behind the point (posted as ``DaysChosen``).
 """
 
 from __future__ import annotations
 
-from lotwatch.tui.render.numbers import decimals_of
-from lotwatch.tui.render.safe_text import clean
-from lotwatch.tui.services.view_models import DetailView
-from textual_plotext import PlotextPlot
-
-FLAGGED_MARKER = "#"
-OTHER_MARKER = "·"
-GRAND_MARKER = "-"
-LIMIT_MARKERS = {"LSL": "=", "target": ":", "USL": "="}
-ONSET_MARKER = "|"
-Y_TICKS = 5
+from lotwatch.tui.render.run_chart import Picture, draw
+from lotwatch.tui.services.view_models import RunChart
+from rich.console import Group, RenderableType
+from rich.text import Text
+from textual.binding import Binding
+from textual.message import Message
+from textual.widget import Widget
 
 
-def y_ticks(lo: float, hi: float, decimals: int) -> tuple[list[float], list[str]]:
-    """Evenly spaced ticks over [lo, hi] labelled with ``decimals`` decimals."""
-    if hi <= lo:
-        hi = lo + 10 ** -max(decimals, 0)
-    step = (hi - lo) / (Y_TICKS - 1)
-    ticks = [lo + i * step for i in range(Y_TICKS)]
-    return ticks, [f"{t:.{decimals}f}" for t in ticks]
+class RunChartView(Widget, can_focus=True):
+    """Renders a ``RunChart`` it is given; computes nothing but the layout."""
 
+    BINDINGS = [
+        Binding("left", "move(-1)", "Earlier", show=False),
+        Binding("right", "move(1)", "Later", show=False),
+        Binding("home", "move(-10000)", "First day", show=False),
+        Binding("end", "move(10000)", "Last day", show=False),
+        Binding("up", "group(-1)", "Previous group", show=False),
+        Binding("down", "group(1)", "Next group", show=False),
+        Binding("enter", "choose", "Lots of the day", show=False),
+    ]
 
-class TrendChart(PlotextPlot):
-    """Redrawn only when a new comparison arrives (rendering is costly)."""
+    class DaysChosen(Message):
+        """Enter on a point: the lots of ``group`` on plant days ``first`` .. ``last``."""
 
-    def __init__(self, *, pending: tuple[DetailView, list[str]] | None = None, **kwargs) -> None:
+        def __init__(self, group: str, first: str, last: str) -> None:
+            super().__init__()
+            self.group, self.first, self.last = group, first, last
+
+    class GroupStep(Message):
+        """↑/↓ on the chart: show the previous/next group."""
+
+        def __init__(self, step: int) -> None:
+            super().__init__()
+            self.step = step
+
+    def __init__(self, **kwargs) -> None:
         super().__init__(**kwargs)
-        self._pending = pending
+        self.chart: RunChart | None = None
+        self.group: str | None = None
+        self.role = ""
+        self.kind = "mean"
+        self.onset: str | None = None
+        self.cursor: int | None = None  # column index; None = the newest column
+        self.picture: Picture | None = None
 
-    def on_mount(self) -> None:
-        if self._pending is not None:
-            self.show(*self._pending)
-            self._pending = None
-
-    def show(self, detail: DetailView, flagged: list[str]) -> None:
-        plt = self.plt
-        plt.clear_data()
-        plt.clear_figure()
-        plt.date_form("Y-m-d")
-        unit = clean(detail.characteristic.unit, 10)
-        levels: dict[str, list[tuple[str, float]]] = {}
-        for p in detail.trend:
-            levels.setdefault(p.level, []).append((p.window_end, p.mean))
-        dates = sorted({p.window_end for p in detail.trend})
-        if not dates:
-            plt.title("no windows with data yet")
-            self.refresh()
-            return
-        marked = [g for g in flagged if g in levels]
-        # Short enough for a half-width chart (plotext drops a title that does not fit): the
-        # title is what names the flagged group when there is no colour.
-        title = (f"{FLAGGED_MARKER} = {clean(', '.join(marked), 24)} (flagged), "
-                 f"{OTHER_MARKER} = others" if marked else f"{OTHER_MARKER} = groups")
-        title += f" [{unit}]"
-        plt.title(title)
-        muted_label = "other groups"
-        for level, pts in sorted(levels.items()):
-            pts.sort()
-            xs, ys = [d for d, _ in pts], [m for _, m in pts]
-            if level in marked:
-                plt.plot(xs, ys, marker=FLAGGED_MARKER, label=clean(level, 12), color="red+")
-            else:
-                plt.plot(xs, ys, marker=OTHER_MARKER, color="gray", label=muted_label)
-                muted_label = ""
-        values = [p.mean for p in detail.trend]
-        if detail.grand_means:
-            plt.plot([d for d, _ in detail.grand_means], [m for _, m in detail.grand_means],
-                     marker=GRAND_MARKER, label="grand mean", color="blue")
-        for name, limit in (("LSL", detail.lsl), ("target", detail.target),
-                            ("USL", detail.usl)):
-            if limit is not None:
-                plt.plot(dates, [limit] * len(dates), marker=LIMIT_MARKERS[name], label=name,
-                         color="orange")
-                values.append(limit)
-        lo, hi = min(values), max(values)
-        pad = (hi - lo) * 0.05 or 1.0
-        onset = next((d.onset for d in detail.detectors
-                      if d.onset and d.group in marked and d.evidence), None)
-        if onset and dates[0] <= onset <= dates[-1]:
-            # The estimated onset of the flagged group's change, a vertical line of "|".
-            plt.plot([onset, onset], [lo - pad, hi + pad], marker=ONSET_MARKER, label="onset",
-                     color="magenta")
-        plt.ylim(lo - pad, hi + pad)
-        ticks, labels = y_ticks(lo - pad, hi + pad,
-                                max(decimals_of(detail.characteristic.resolution) - 1, 0))
-        plt.yticks(ticks, labels)
+    def show(self, chart: RunChart | None, *, group: str | None, role: str, kind: str,
+             onset: str | None, keep_cursor: bool = False) -> None:
+        if not keep_cursor:
+            self.cursor = None
+        self.picture = None
+        self.chart, self.group, self.role, self.kind, self.onset = (chart, group, role, kind,
+                                                                    onset)
         self.refresh()
+
+    def render(self) -> RenderableType:
+        if self.chart is None:
+            return Text("The chart appears once the comparison is computed.")
+        w, h = self.content_size
+        pic = draw(self.chart, group=self.group, role=self.role, kind=self.kind,
+                   onset=self.onset, cursor=self._cursor(w, h) if self.has_focus else None,
+                   width=w, height=h)
+        self.picture = pic
+        lines = list(pic.lines)
+        if not self.has_focus and lines:
+            hint = Text("d: the cursor over the days (←/→, Enter: the lots)", style="dim",
+                        no_wrap=True, overflow="crop")
+            lines[-1] = hint
+        return Group(*lines)
+
+    def drawn(self) -> Picture | None:
+        """The chart as drawn at the current size (None before a chart arrives)."""
+        if self.picture is None and self.chart is not None:
+            w, h = self.content_size
+            self.picture = draw(self.chart, group=self.group, role=self.role, kind=self.kind,
+                                onset=self.onset, cursor=self.cursor if self.has_focus else None,
+                                width=w, height=h)
+        return self.picture
+
+    def _columns(self) -> list[tuple[int, int]]:
+        """The plot's columns (day offsets) at the current size."""
+        pic = self.drawn()
+        return pic.columns if pic is not None else []
+
+    def _cursor(self, width: int, height: int) -> int:
+        """The cursor's column, clamped to the columns the current size gives; at first the
+        newest column where the shown group has values."""
+        columns = self._columns()
+        n = len(columns)
+        if self.cursor is None:
+            offsets = {p.offset for p in (self.chart.series.get(self.group or "", ())
+                                          if self.chart else ())}
+            self.cursor = next((i for i in range(n - 1, -1, -1)
+                                if any(a <= o <= b for o in offsets
+                                       for a, b in [columns[i]])), n - 1)
+        self.cursor = min(max(self.cursor, 0), n - 1)
+        return self.cursor
+
+    def on_focus(self) -> None:
+        self.refresh()
+
+    def on_blur(self) -> None:
+        self.refresh()
+
+    def on_resize(self) -> None:
+        self.picture = None
+
+    def action_move(self, step: int) -> None:
+        n = len(self._columns())
+        if not n:
+            return
+        current = n - 1 if self.cursor is None else self.cursor
+        self.cursor = min(max(current + step, 0), n - 1)
+        self.refresh()
+
+    def action_group(self, step: int) -> None:
+        self.post_message(self.GroupStep(step))
+
+    def action_choose(self) -> None:
+        columns = self._columns()
+        if self.chart is None or not columns or self.group is None:
+            return
+        c = len(columns) - 1 if self.cursor is None else min(max(self.cursor, 0),
+                                                              len(columns) - 1)
+        a, b = columns[c]
+        self.post_message(self.DaysChosen(self.group, self.chart.day(a), self.chart.day(b)))
