@@ -28,7 +28,7 @@ from lotwatch.store.errors import (
 from lotwatch.store.identity import file_identity, login_name
 
 DEFAULT_TIMEOUT = 30.0
-_BEGIN_RETRIES = 5
+_POLL_S = 0.005  # how often a writer waiting for the write lock tries again
 
 # sqlite3 primary result codes (https://www.sqlite.org/rescode.html)
 _SQLITE_BUSY, _SQLITE_LOCKED, _SQLITE_READONLY, _SQLITE_IOERR = 5, 6, 8, 10
@@ -226,18 +226,23 @@ class Session:
         return found[1], found[2]
 
     def _begin_immediate(self) -> None:
-        # The busy handler normally waits up to the timeout; SQLite can still return BUSY at once
-        # (e.g. while another connection recovers the WAL), so a quick BUSY is retried.
-        for attempt in range(_BEGIN_RETRIES):
-            started = time.monotonic()
-            try:
-                self.conn.execute("BEGIN IMMEDIATE")
-                return
-            except sqlite3.OperationalError as exc:
-                mapped = translate_error(exc, self.path)
-                waited = time.monotonic() - started
-                if (isinstance(mapped, StoreLocked) and waited < self.timeout / 2
-                        and attempt < _BEGIN_RETRIES - 1):
-                    time.sleep(0.05 * (attempt + 1))
-                    continue
-                raise (mapped or exc) from exc
+        # SQLite's busy handler sleeps up to 100 ms between tries, so a writer waiting behind a
+        # run of transactions with short pauses between them (an import's chunks) could miss
+        # every pause and wait for the whole run. Polling every few milliseconds up to the
+        # timeout gets it in at the first pause; it also retries the quick BUSY SQLite can
+        # return while another connection recovers the WAL.
+        deadline = time.monotonic() + self.timeout
+        self.conn.execute("PRAGMA busy_timeout = 0")
+        try:
+            while True:
+                try:
+                    self.conn.execute("BEGIN IMMEDIATE")
+                    return
+                except sqlite3.OperationalError as exc:
+                    mapped = translate_error(exc, self.path)
+                    if isinstance(mapped, StoreLocked) and time.monotonic() < deadline:
+                        time.sleep(_POLL_S)
+                        continue
+                    raise (mapped or exc) from exc
+        finally:
+            self.conn.execute(f"PRAGMA busy_timeout = {int(self.timeout * 1000)}")

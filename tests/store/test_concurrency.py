@@ -77,3 +77,49 @@ def test_same_lots_from_several_writers_stored_once(tmp_path: Path) -> None:
     with Store.open(path) as s:
         assert s.conn.execute("SELECT count(*) FROM measurements").fetchone()[0] == 60
         assert s.check().ok
+
+
+def test_a_waiting_writer_gets_in_at_the_first_pause_between_transactions(tmp_path: Path
+                                                                           ) -> None:
+    # An import writes in chunks with short pauses between its transactions. SQLite's own busy
+    # handler sleeps up to 100 ms between tries (sqlite3.c, sqliteDefaultBusyCallback), so a
+    # floor terminal could sleep through pause after pause; Session.write polls every few
+    # milliseconds instead. Here another connection holds the write lock, pauses 10 ms, takes
+    # it for 100 ms, and so on; the waiting writer must get in by the second pause (polling, it
+    # got in at the first in 8 of 8 trials; with SQLite's handler alone at the 3rd to 13th).
+    # Ordering, not timing, is asserted; one pause may be missed on a loaded machine.
+    import sqlite3
+    import threading
+    import time
+
+    path = tmp_path / "s.sqlite"
+    _make(path)
+    holder = sqlite3.connect(path, isolation_level=None, timeout=30)
+    holder.execute("BEGIN IMMEDIATE")
+    done, opened = threading.Event(), threading.Event()
+
+    def floor() -> None:
+        with Store.open(path) as store:
+            opened.set()
+            with store.write():
+                store.conn.execute("INSERT INTO settings(key, value) VALUES ('test.floor', '1')")
+        done.set()
+
+    t = threading.Thread(target=floor)
+    t.start()
+    assert opened.wait(timeout=30)
+    time.sleep(0.4)  # the floor writer is waiting, well into its back-off
+    pauses = 0
+    while not done.is_set() and pauses < 20:
+        holder.execute("COMMIT")
+        pauses += 1
+        time.sleep(0.01)
+        holder.execute("BEGIN IMMEDIATE")
+        if holder.execute("SELECT 1 FROM settings WHERE key = 'test.floor'").fetchone():
+            break
+        time.sleep(0.1)
+    holder.execute("COMMIT")
+    t.join(timeout=30)
+    holder.close()
+    assert done.is_set()
+    assert pauses <= 2, f"the waiting writer got in only at pause {pauses}"
