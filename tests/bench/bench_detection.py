@@ -241,8 +241,19 @@ def run_scenario(sc: Scenario, n_plants: int, rng, tmp: Path) -> dict:
             "n": n_plants, "base": b_delays, "seconds": elapsed}
 
 
-def null_rate(noise: str, n_chars: int, rng, tmp: Path, plant: Plant) -> tuple[float, float, float]:
-    """(lotwatch false alerts per comparison-year, baseline's, comparison-years)."""
+def poisson_interval(count: int, p: float = 0.95) -> tuple[float, float]:
+    """Exact (Garwood) interval for a Poisson mean from one count: chi-square quantiles
+    ``chi2(a/2, 2x)/2 .. chi2(1 - a/2, 2x + 2)/2``."""
+    from scipy.stats import chi2
+
+    a = 1.0 - p
+    low = chi2.ppf(a / 2, 2 * count) / 2 if count > 0 else 0.0
+    return float(low), float(chi2.ppf(1 - a / 2, 2 * count + 2) / 2)
+
+
+def null_rate(noise: str, n_chars: int, rng, tmp: Path, plant: Plant
+              ) -> tuple[int, float, float]:
+    """(lotwatch false alerts, baseline's per comparison-year, comparison-years)."""
     plants = [(plant, simulate(rng, plant, None, noise=noise, days=NULL_DAYS))
               for _ in range(n_chars)]
     store = build_store(tmp / f"null_{noise}.sqlite", plants, None)
@@ -257,7 +268,7 @@ def null_rate(noise: str, n_chars: int, rng, tmp: Path, plant: Plant) -> tuple[f
         for alarms in baseline_alarms(plant, [p[1] for p in plants], factor):
             b += len({d for d, _ in alarms if d >= 100})
     b_years = n_chars * 2 * (NULL_DAYS - 100) / 365.0
-    return opened / years, b / b_years, years
+    return opened, b / b_years, years
 
 
 def update_latency(tmp: Path) -> tuple[float, float]:
@@ -342,9 +353,12 @@ def main() -> None:
         plant = Plant(8, 3, 9)
         print(f"\nfalse alerts per comparison-year (budget {1 / BUDGET:.4f}):")
         for noise in ("normal", "lognormal", "ar1"):
-            rate, base, years = null_rate(noise, null_chars, rng, tmp, plant)
-            print(f"  {noise:<10} lotwatch {rate:.4f} ({rate * BUDGET:.2f}x budget), "
-                  f"baseline {base:.4f}, over {years:.0f} comparison-years")
+            count, base, years = null_rate(noise, null_chars, rng, tmp, plant)
+            rate = count / years
+            lo, hi = (x / years * BUDGET for x in poisson_interval(count))
+            print(f"  {noise:<10} lotwatch {rate:.4f} ({count} alerts; {rate * BUDGET:.2f}x "
+                  f"budget, 95% interval {lo:.2f}-{hi:.2f}x), baseline {base:.4f} "
+                  f"({base * BUDGET:.0f}x), over {years:.0f} comparison-years")
         one, full = update_latency(tmp)
         print(f"\none lot logged: every detector current in {1000 * one:.1f} ms; recomputing "
               f"from the first day {1000 * full:.0f} ms; ratio {full / one:.1f}x")
