@@ -27,24 +27,17 @@ from datetime import date
 from typing import Any
 
 from lotwatch.stats.detect import DetectorSettings
-from lotwatch.stats.monitor import ReviewSettings
+from lotwatch.stats.review_settings import ReviewSettings
 from lotwatch.store import alerts as store_alerts
 from lotwatch.store import detectors as sdet
 from lotwatch.tui.services.alert_text import (  # noqa: F401  (re-exported)
     alert_sentence,
     stored_alert_sentence,
 )
-from lotwatch.tui.services.detector_alerts import _decide
-from lotwatch.tui.services.detector_steps import (
-    DIRECTIONS,
-    _day,
-    _f,
-    _fingerprint,
-    _gate,
-    _process,
-    _tolerance,
-    _write_rows,
-)
+
+# Reading the stored state loads no numpy or scipy (the app's first board comes from it);
+# advancing imports the computation (detector_steps, detector_alerts) when it runs.
+from lotwatch.tui.services.detector_fields import DIRECTIONS, _day, _f, _tolerance
 
 
 @dataclass(frozen=True)
@@ -164,6 +157,9 @@ def advance_detectors(store, *, until: date | None = None, by: str | None = None
     Returns what was advanced and the alerts written. Raises ``ValueError`` for a bad setting and
     ``StoreError`` from the store (a read-only store refuses before anything is computed).
     """
+    from lotwatch.tui.services.detector_alerts import _decide
+    from lotwatch.tui.services.detector_steps import _fingerprint, _gate, _process, _write_rows
+
     result = AdvanceResult()
     with store.write():
         s = settings or detector_settings(store)

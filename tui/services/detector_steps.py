@@ -14,27 +14,13 @@ from lotwatch.stats.detect import contrasts as dcon
 from lotwatch.stats.monitor import Comparison, ReviewSettings, practical_gate
 from lotwatch.store import detectors as sdet
 
-DIRECTIONS = {("mean", 1): "higher", ("mean", -1): "lower", ("spread", 1): "wider",
-              ("spread", -1): "narrower"}
-
-
-def _f(x: Any) -> float | None:
-    if x is None:
-        return None
-    v = float(x)
-    return v if math.isfinite(v) else None
-
-
-def _day(ordinal: Any) -> date | None:
-    o = int(ordinal) if ordinal is not None else -1
-    return date.fromordinal(o) if o > 0 else None
-
-
-def _tolerance(ch) -> float | None:
-    if ch.lsl is not None and ch.usl is not None and ch.usl > ch.lsl:
-        return float(ch.usl - ch.lsl)
-    return None
-
+# Re-exported: detector_alerts reads them from here.
+from lotwatch.tui.services.detector_fields import (  # noqa: F401
+    DIRECTIONS,
+    _day,
+    _f,
+    _tolerance,
+)
 
 # --------------------------------------------------------------------------------------------
 # advancing
