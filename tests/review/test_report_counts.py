@@ -6,7 +6,7 @@ from __future__ import annotations
 
 import re
 import sqlite3
-from datetime import date, timedelta
+from datetime import date, datetime, timedelta
 
 from click.testing import CliRunner
 from lotwatch.tui.cli import main
@@ -37,3 +37,26 @@ def test_family_table_counts_lots_and_values_and_gives_units(demo_copy, tmp_path
     # fill_volume is read to 0.1 mL: sizes carry 2 decimals and the unit
     for key in ("largest shift", "detectable shift", "gate"):
         assert re.fullmatch(r"-?\d+\.\d{2} mL", row[key]), (key, row[key])
+
+
+def test_report_event_times_are_plant_local(demo_copy, tmp_path):
+    """Issue 11, item 3: the report's events read like alerts show and history (plant time,
+    saying so), never the stored UTC stamps. Oracle: zoneinfo on the stored stamps."""
+    from zoneinfo import ZoneInfo
+
+    zone = "America/Chicago"
+    r = CliRunner().invoke(main, ["--db", str(demo_copy), "zone", "set", zone])
+    assert r.exit_code == 0, r.output
+    out = tmp_path / "week.md"
+    r = CliRunner().invoke(main, ["--db", str(demo_copy), "report", "--dry-run", "--out",
+                                  str(out)])
+    assert r.exit_code == 0, r.output
+    text = out.read_text()
+    assert f"Events (times in plant time, {zone})" in text
+    with sqlite3.connect(demo_copy) as conn:
+        stamps = [s for (s,) in conn.execute("SELECT at FROM alert_events")]
+    assert stamps
+    for stamp in stamps:
+        assert stamp not in text  # no raw UTC stamp
+        utc = datetime.strptime(stamp, "%Y-%m-%dT%H:%M:%SZ").replace(tzinfo=ZoneInfo("UTC"))
+        assert f"- {utc.astimezone(ZoneInfo(zone)):%Y-%m-%d %H:%M} opened" in text

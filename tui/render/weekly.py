@@ -56,10 +56,24 @@ def group_head(unit: str) -> list[str]:
             f"vs others{u}"]
 
 
-def _events_text(events: list[Any]) -> list[str]:
-    return [f"{e.at} {e.event}" + (f" by {e.by}" if e.by else "") +
+def _event_time(stamp: str, zone: str) -> str:
+    """A stored UTC stamp in plant time, as ``alerts show`` and ``history`` write it."""
+    from lotwatch.store.timeutil import format_local
+
+    try:
+        return format_local(stamp, zone=zone)
+    except ValueError:
+        return stamp
+
+
+def _events_text(events: list[Any], zone: str) -> list[str]:
+    return [f"{_event_time(e.at, zone)} {e.event}" + (f" by {e.by}" if e.by else "") +
             (f" in {e.window}" if e.window else "") + (f": {e.note}" if e.note else "")
             for e in events]
+
+
+def _events_heading(rep: WeeklyReport) -> str:
+    return f"Events (times in plant time, {rep.zone})"
 
 
 def report_markdown(rep: WeeklyReport) -> str:
@@ -104,8 +118,9 @@ def report_markdown(rep: WeeklyReport) -> str:
                                            ).rstrip(), "```",
                   "", "### Trend of each group's mean per window", "", "```text",
                   trend_chart_text(s.trend), "```", "", "```text",
-                  trend_table_text(s.trend).rstrip(), "```", "", "### Events", ""]
-        lines += [f"- {md_escape(t)}" for t in _events_text(s.events)]
+                  trend_table_text(s.trend).rstrip(), "```", "",
+                  f"### {md_escape(_events_heading(rep))}", ""]
+        lines += [f"- {md_escape(t)}" for t in _events_text(s.events, rep.zone)]
     lines += ["", f"*{CAUTION}*", ""]
     return "\n".join(lines)
 
@@ -189,8 +204,8 @@ def report_html(rep: WeeklyReport) -> str:
                   "<pre>" + e(render_battery(b, unit=s.detail.characteristic.unit,
                                              resolution=s.detail.characteristic.resolution))
                   + "</pre>",
-                  "<h3>Events</h3><ul>"]
-        parts += [f"<li>{e(t)}</li>" for t in _events_text(s.events)]
+                  f"<h3>{e(_events_heading(rep))}</h3><ul>"]
+        parts += [f"<li>{e(t)}</li>" for t in _events_text(s.events, rep.zone)]
         parts.append("</ul>")
     parts += [f'<p class="caution">{e(CAUTION)}</p>', "</body></html>", ""]
     return "\n".join(parts)

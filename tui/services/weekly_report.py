@@ -21,6 +21,7 @@ class WeeklyReport:
     sections: list[AlertSection]
     new_alerts: list[Any]  # ComparisonSummary opened/reopened in this window
     cleared: list[Any]
+    zone: str = "UTC"  # the plant time zone: event times are shown in it
 
 
 def build_weekly_report(store, *, week: str | None = None, as_of=None,
@@ -44,4 +45,4 @@ def build_weekly_report(store, *, week: str | None = None, as_of=None,
                                            summary=c)
             tr = eng.trend(store, c.characteristic, c.factor, as_of=result.as_of)
             sections.append(AlertSection(c, detail, tr, events))
-    return WeeklyReport(result, sections, new, cleared)
+    return WeeklyReport(result, sections, new, cleared, store.plant_zone)
