@@ -23,7 +23,7 @@ MAX_N = 1_000_000
 
 
 def f_test_power(lam: float, df1: float, df2: float, alpha: float) -> float:
-    """P(F(df1, df2, λ) > F crit) for the (1 − alpha) critical value."""
+    """P(F(df1, df2, λ) > critical F) for the (1 − alpha) critical value."""
     crit = float(special.fdtri(df1, df2, 1 - alpha))
     if lam <= 0:
         return float(special.fdtrc(df1, df2, crit))
