@@ -51,3 +51,45 @@ async def test_the_review_screen_counts_lots_not_values(tmp_path):
         assert cells[labels.index("lots")] == f"{lots}"
         # bore is read to 0.01 mm: the shift carries three decimals and the unit
         assert re.fullmatch(r"-?\d+\.\d{3} mm", cells[labels.index("shift")]), cells
+
+
+async def test_an_earlier_week_says_it_shows_the_state_as_of_that_week(tmp_path):
+    """Issue 11, item 8: stepping the review back a week says that the detectors are shown as
+    they were then and the alerts as they stand now."""
+    from lotwatch.store import Store
+    from lotwatch.tui.services.review_engine import run_review
+    from tui_helpers import screen_text
+
+    path = tmp_path / "rep.sqlite"
+    _replicated_store(path)
+    with Store.open(path) as store:
+        run_review(store)  # the detectors advanced to the latest day
+    app = LotwatchApp(path)
+    async with app.run_test(size=(100, 30)) as pilot:
+        await settle(pilot, lambda: not app.computing)
+        await pilot.press("r")
+        await settle(pilot, lambda: app.review is not None)
+        assert "state as of that week" not in screen_text(app)
+        await pilot.press("left_square_bracket")
+        await settle(pilot, lambda: app.review is not None and app.review.week is not None)
+        text = " ".join(screen_text(app).split())
+        assert "state as of that week" in text and "acknowledgements made since" in text
+
+
+async def test_the_board_shows_a_factor_with_one_level_beside_detector_rows(tmp_path):
+    """A factor with a single level has no detector; once other rows carry detector columns
+    its row is padded, not a crash of the interface (seen at 100 columns)."""
+    from lotwatch.store import Store
+    from lotwatch.tui.services.review_engine import run_review
+
+    path = tmp_path / "rep.sqlite"
+    _replicated_store(path)  # line and shift have one level each
+    with Store.open(path) as store:
+        run_review(store)
+    for size in ((80, 24), (100, 30)):
+        app = LotwatchApp(path)
+        async with app.run_test(size=size) as pilot:
+            await settle(pilot, lambda a=app: a.overview is not None and not a.computing)
+            table = app.screen.query_one("#board", DataTable)
+            assert table.row_count == 3  # bore by site, line and shift
+            assert app.is_running

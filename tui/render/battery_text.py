@@ -215,8 +215,8 @@ def _effect_power(r: BatteryResult, unit: str, res: str | None) -> list[str]:
 
 
 def _index(x: float | None, width: int = 8) -> str:
-    """A capability index: two decimals (common practice for Cp/Cpk), right-aligned."""
-    return num(x, width) if x is None or not math.isfinite(x) else numbers.fixed(x, 2).rjust(width)
+    """A capability index (``numbers.index``), right-aligned."""
+    return numbers.index(x).rjust(width)
 
 
 def _capability(r: BatteryResult, res: str | None) -> list[str]:

@@ -6,6 +6,7 @@
 - p- and q-values in one style: in table cells four decimals, or "<0.0001" below that
   (``pval``; never an exponent, never a bare 0), and in sentences "p = 0.0123" / "p < 0.0001"
   (``p_is``), never "p = <0.0001";
+- capability indices with two decimals (``index``);
 - counts with thousands separators; a count of lots says so, and so does a count of values
   when they differ (``lots_and_values``: "943 lots, 1,886 values").
 """
@@ -44,6 +45,12 @@ def fixed(x: float | None, decimals: int = 2) -> str:
 def measured(x: float | None, resolution: str) -> str:
     """A measured quantity (mean, SD, interval end) with the decimals of ``resolution`` + 1."""
     return fixed(x, decimals_of(resolution))
+
+
+def index(x: float | None) -> str:
+    """A capability index (Cp, Cpk, Pp, Ppk, an end of Cpk's interval): two decimals (common
+    practice); a dash when undefined."""
+    return fixed(x, 2)
 
 
 def lots_and_values(lots: int | None, values: int) -> str:

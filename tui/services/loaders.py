@@ -249,7 +249,7 @@ def load_review(path: Path, read_only: bool, week: str | None) -> ReviewView:
     rows = _sort_q([_comparison_row(c) for c in review.comparisons])
     return ReviewView(week=week, window_label=review.window_label,
                       family_size=review.family_size, fdr_method=review.fdr_method,
-                      fdr_level=review.fdr_level, rows=rows)
+                      fdr_level=review.fdr_level, rows=rows, notes=tuple(review.notes))
 
 
 def load_alerts(path: Path, read_only: bool) -> AlertsView:

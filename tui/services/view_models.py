@@ -234,6 +234,8 @@ class ReviewView:
     fdr_method: str
     fdr_level: float
     rows: list[ComparisonRow]
+    # what the review says about itself, e.g. that an earlier week shows the state as of then
+    notes: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True)

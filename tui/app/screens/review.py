@@ -60,6 +60,8 @@ class ReviewScreen(LotwatchScreen):
                     f"false-discovery-adjusted p (level {review.fdr_level:g}) of the F "
                     "shown ('w': Welch's F, read where the spreads differ). gate = the shift an alert needs. [ ] week · Enter open · p record "
                     "(opens/clears alerts) · k acknowledge")
+        for note in review.notes:  # e.g. an earlier week: the state as of that week
+            head.append(f"\nNote: {clean(note)}", style="italic")
         self.query_one("#review-head", Static).update(head)
         t = self.query_one(DataTable)
         keep = t.cursor_row

@@ -74,6 +74,8 @@ class BoardTable(DataTable):
             c = board_cells(r)
             if not detector and len(c) > len(headers):
                 c = c[:7] + c[-1:]
+            elif detector and len(c) < len(headers):  # no detector on this row (one level)
+                c = c[:7] + [MISSING, MISSING] + c[-1:]
             cells.append(c)
             hot = r.state in (MEAN_ALERT, SPREAD_ALERT)
             styles.append(["bold reverse" if hot else ""] + ["bold" if hot else ""] * 10)
