@@ -140,3 +140,10 @@ async def test_a_chart_point_opens_the_lots_of_that_group_and_day(demo_copy):
         await pilot.press("up")
         await pilot.pause()
         assert chart.group == "RB-1" and chart.role == "highlighted"
+
+
+def test_several_days_a_column_are_named_in_the_legend():
+    # 20 days in 8 columns: three days a column, the oldest column shorter
+    pic = draw(_chart(), group="B", role="flagged", width=8 + 1 + 4 + 8, height=10)
+    assert pic.columns[-1] == (17, 19) and pic.columns[0] == (0, 1)
+    assert "mean per 3 days (mL)" in pic.lines[0].plain

@@ -128,7 +128,7 @@ def draw(chart: RunChart, *, group: str | None, role: str, kind: str = "mean",
     seen = [v for vs in values.values() for v in vs if v is not None]
     plot_h = max(height - FIXED_ROWS, 3)
     what = "SD" if kind == "spread" else "mean"
-    per = columns[0][1] - columns[0][0] + 1 if columns else 1
+    per = columns[-1][1] - columns[-1][0] + 1 if columns else 1  # the first may be shorter
     legend = Text(no_wrap=True, overflow="crop")
     if group is not None:
         legend.append(f"{SHOWN} {clean(group, 16)} ({role})", style=STYLE[SHOWN])

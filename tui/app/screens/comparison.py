@@ -159,14 +159,18 @@ class ComparisonScreen(LotwatchScreen):
 
     def _chart_group(self, detail: DetailView) -> str | None:
         """The group the chart draws distinctly when a comparison arrives: the flagged one,
-        else the one whose detector is closest to its threshold (if it has any evidence)."""
+        else the one whose detector is closest to its threshold (if it has any evidence), else
+        the table's first."""
         names = {g.name for g in detail.battery.groups} | set(
             detail.chart.series if detail.chart else ())
         flagged = [g for g in self._flagged(detail) if g in names]
         if flagged:
             return flagged[0]
         top = next((d for d in detail.detectors if d.evidence and d.group in names), None)
-        return top.group if top else None
+        if top is not None:
+            return top.group
+        # nothing stands out: the table's first group, drawn as "highlighted" (↑/↓ change it)
+        return detail.battery.groups[0].name if detail.battery.groups else None
 
     def _show_chart(self, detail: DetailView, group: str | None, *,
                     keep_cursor: bool = False) -> None:
