@@ -168,3 +168,34 @@ def test_the_board_first_then_log_a_lot_in_the_demo_at_80x24(tmux, demo_data_hom
         if time.monotonic() > deadline:
             raise AssertionError("the app did not quit on q")
         time.sleep(0.2)
+
+
+@pytest.mark.slow
+def test_the_comparison_and_its_chart_read_without_colour_at_80x24(tmux, demo_data_home):
+    """NO_COLOR in a real terminal: no colour codes at all, and the chart still tells the
+    flagged group ("#") from the others ("·"), with LSL and USL on the scale."""
+    db = demo_data_home / "lotwatch" / "demo.sqlite"
+    env = (f"XDG_DATA_HOME={shlex.quote(str(demo_data_home))} "
+           f"LOTWATCH_DB={shlex.quote(str(db))} TERM=xterm-256color NO_COLOR=1")
+    command = (f"cd {shlex.quote(str(ROOT))} && env {env} {shlex.quote(sys.executable)} "
+               "-m lotwatch.tui demo")
+    tmux.run("new-session", "-d", "-s", "lw", "-x", "80", "-y", "24", command)
+    tmux.wait_for("Decision:")
+    tmux.keys("Enter")
+    screen = tmux.wait_for("(flagged)")
+    lines = screen.splitlines()
+    legend = next(i for i, line in enumerate(lines) if "(flagged)" in line)
+    assert lines[legend].startswith("# RB-2 (flagged)  · others")  # store/demo.py effect (a)
+    plot = lines[legend + 1:legend + 10]
+    assert plot[0].rstrip().endswith("USL") and any(x.rstrip().endswith("LSL") for x in plot)
+    assert sum(x.count("#") for x in plot) > 20 and sum(x.count("·") for x in plot) > 20
+    assert any(line.startswith("Between") for line in lines)  # the ANOVA table beside it
+    # Textual honours NO_COLOR by drawing in greys: every 256-colour code is black, white or
+    # on the grey ramp (232-255; xterm's palette, common practice), so nothing rests on hue.
+    import re
+
+    coloured = tmux.run("capture-pane", "-p", "-e", "-t", "lw")
+    codes = {int(n) for n in re.findall(r"[34]8;5;(\d+)", coloured)}
+    assert codes and codes <= {0, 7, 8, 15, 16, 231} | set(range(232, 256)), codes
+    assert not re.search(r"\x1b\[(?:[0-9;]*;)?3[1-6]m", coloured)  # no basic hues either
+    tmux.keys("q")
