@@ -30,11 +30,13 @@ variance. The ``1/12`` (the variance of rounding to one resolution step, Sheppar
 finite for coarse gauges and pulls the ratio toward 1, i.e. errs toward silence.
 
 Extra dispersion: skewed values and correlated lots make the standardised contrasts vary more
-than the normal theory says. ``phi`` is estimated from the day-to-day changes of the
-standardised contrast over the trailing ``dispersion_days`` (a step adds one large change, which
-is trimmed; heavy tails are what the estimate is for, so only the largest 2% are left out): the
-mean of the smallest 98% of ``(z_t - z_prev)^2``, divided by their expectation under N(0, 2):
-``2 x 0.8735`` (the second moment of a standard normal below the 99% point of |X|). It is
+than the normal theory says. ``phi`` is estimated from the changes of the standardised contrast
+two days with data apart (``CHANGE_LAG``), over the trailing ``dispersion_days`` (a
+step adds two large changes, which are trimmed; heavy tails are what the estimate is for, so
+only the largest 2% are left out): the mean of the smallest 98% of ``(z_t - z_{t-2})^2``,
+divided by their expectation under N(0, 2):
+``2 x 0.8735`` (the second moment of a standard normal below the 99% point of |X|; from the
+share actually kept in short windows, ``trimmed_second_moment``). It is
 pooled over the groups of the comparison and raised for its own uncertainty (``_dispersion``:
 a CUSUM tuned to a long run length feels an underestimated scale exponentially; Hawkins &
 Olwell 1998 discuss the CUSUM's sensitivity to a misjudged scale), and kept within [1, 9].
@@ -108,26 +110,38 @@ def _trailing_median(x: np.ndarray, days: int, first: int) -> tuple[np.ndarray, 
     return med, count
 
 
-def _successive(x: np.ndarray, valid: np.ndarray, f) -> np.ndarray:
-    """``f(previous, current, i_prev, i_cur)`` of each slot's consecutive valid days, placed on
-    the later day (NaN elsewhere)."""
+def _successive(x: np.ndarray, valid: np.ndarray, f, lag: int = 1) -> np.ndarray:
+    """``f(earlier, current, i_earlier, i_cur, slot)`` of each slot's valid days ``lag`` valid
+    days apart, placed on the later day (NaN elsewhere)."""
     out = np.full(x.shape, np.nan)
     for s in range(x.shape[0]):
         idx = np.flatnonzero(valid[s])
-        if idx.size > 1:
-            out[s, idx[1:]] = f(x[s, idx[:-1]], x[s, idx[1:]], idx[:-1], idx[1:], s)
+        if idx.size > lag:
+            out[s, idx[lag:]] = f(x[s, idx[:-lag]], x[s, idx[lag:]], idx[:-lag], idx[lag:], s)
     return out
 
 
-TRIM = 0.02  # share of the largest day-to-day changes left out of the dispersion estimate
-# E[X^2 | |X| <= q] for X ~ N(0, 1) and q its 99% point of |X| (2.3263):
-# (0.98 - 2 q pdf(q)) / 0.98
-TRIMMED_SECOND_MOMENT = 0.8735
+TRIM = 0.02  # share of the largest changes left out of the dispersion estimate (at least
+# CHANGE_LAG of them: a step in a group's level makes that many large changes)
+
+
+def trimmed_second_moment(p: np.ndarray) -> np.ndarray:
+    """E[X^2 | |X| <= q] for X ~ N(0, 1) and q the point with P(|X| <= q) = p:
+    ``(p - 2 q pdf(q)) / p``, ``q = Phi^-1((1 + p) / 2)`` (0.8735 for p = 0.98)."""
+    p = np.clip(np.asarray(p, dtype=np.float64), 1e-9, 1.0)
+    q = special.ndtri((1.0 + p) / 2.0)
+    with np.errstate(invalid="ignore"):
+        pdf = np.where(np.isfinite(q), np.exp(-q * q / 2.0) / np.sqrt(2.0 * np.pi), 0.0)
+        return np.where(np.isfinite(q), (p - 2.0 * q * pdf) / p, 1.0)
 
 
 PHI_MAX = 9.0  # largest extra dispersion believed (beyond it the data are not a CUSUM's to judge)
+CHANGE_LAG = 2  # changes over two days with data: z_t - z_{t-2} has variance 2 var(z) (1 - rho_2),
+# blind only to the (much smaller) correlation two days apart, where the change from one day to
+# the next would lose the correlation between neighbouring days (lots correlated in time order
+# carry it across midnight) and so underestimate the scatter
 CHANGE_CORR = 1.5  # variance inflation of a mean of squared consecutive differences (lag-1
-# correlation of (z_t - z_{t-1})^2 and (z_{t+1} - z_t)^2 is 1/4 for iid normal z: 1 + 2 x 1/4)
+# correlation of the squares of two changes sharing a day is 1/4 for iid normal z: 1 + 2 x 1/4)
 
 
 def _dispersion(z: np.ndarray, valid: np.ndarray, days: int, first: int, comp: np.ndarray,
@@ -144,7 +158,7 @@ def _dispersion(z: np.ndarray, valid: np.ndarray, days: int, first: int, comp: n
     ``exp(L^2 cv^2 / 2)`` times likelier; scaling phi by ``1 + L cv^2 / 2`` restores it
     (first order). ``cv^2 = 2 x 1.5 / kept changes`` (chi-square with 1 df per change, the
     overlap of consecutive changes counted). The result is kept within [floor, PHI_MAX]."""
-    diffs = _successive(z, valid, lambda a, b, *_: (b - a) ** 2)
+    diffs = _successive(z, valid, lambda a, b, *_: (b - a) ** 2, lag=CHANGE_LAG)
     S, T = z.shape
     phi = np.ones((S, T))
     if first >= T:
@@ -154,21 +168,24 @@ def _dispersion(z: np.ndarray, valid: np.ndarray, days: int, first: int, comp: n
     win = np.lib.stride_tricks.sliding_window_view(padded[:, first:T + days - 1], days, axis=1)
     ordered = np.sort(win, axis=2)  # NaN last
     count = np.sum(np.isfinite(win), axis=2)
-    keep = np.floor((1.0 - TRIM) * count)
+    keep = np.maximum(np.minimum(np.floor((1.0 - TRIM) * count), count - CHANGE_LAG), 0.0)
     used = np.arange(days)[None, None, :] < keep[:, :, None]
     num = np.where(used, ordered, 0.0).sum(axis=2)
     ok = count >= MIN_CHANGES
+    # what the kept changes' mean square would be for phi = 1: 2 E[X^2 | X below the cut]
+    expect = 2.0 * keep * trimmed_second_moment(keep / np.maximum(count, 1.0))
     C = int(comp.max()) + 1
     pooled_num = np.zeros((C, num.shape[1]))
+    pooled_expect = np.zeros((C, num.shape[1]))
     pooled_keep = np.zeros((C, num.shape[1]))
     np.add.at(pooled_num, comp, np.where(ok, num, 0.0))
+    np.add.at(pooled_expect, comp, np.where(ok, expect, 0.0))
     np.add.at(pooled_keep, comp, np.where(ok, keep, 0.0))
-    scale = 2.0 * TRIMMED_SECOND_MOMENT
     members = np.bincount(comp, minlength=C).astype(np.float64)
     with np.errstate(invalid="ignore", divide="ignore"):
-        own = num / keep / scale
+        own = num / expect
         own_low = own * (1.0 - 2.0 * np.sqrt(2.0 * CHANGE_CORR / keep))
-        pool = (pooled_num / pooled_keep / scale)[comp]
+        pool = (pooled_num / pooled_expect)[comp]
         # K group-vs-rest contrasts carry about K - 1 independent pieces (two are one, mirrored)
         eff = (pooled_keep * np.maximum(members - 1.0, 1.0)[:, None] / members[:, None])[comp]
         cv2 = 2.0 * CHANGE_CORR / eff
@@ -179,6 +196,7 @@ def _dispersion(z: np.ndarray, valid: np.ndarray, days: int, first: int, comp: n
 
 
 SKEW_MIN = 60  # pooled days of contrasts a skewness estimate needs
+SKEW_SHRINK = 1.0  # standard errors the skewness is shrunk by
 
 
 def _skewness(z: np.ndarray, valid: np.ndarray, days: int, lag: int, comp: np.ndarray
@@ -192,10 +210,10 @@ def _skewness(z: np.ndarray, valid: np.ndarray, days: int, lag: int, comp: np.nd
 
         g = M3 / M2^(3/2),   M_r = sum_s sum_days (z - zbar_s)^r / N
 
-    and shrunk toward zero by two standard errors, ``sqrt(6 / N_eff)`` (the large-sample SE of
+    and shrunk toward zero by one standard error, ``sqrt(6 / N_eff)`` (the large-sample SE of
     a sample skewness; ``N_eff = N (K - 1) / K`` for K mirrored group-vs-rest contrasts):
-    ``upper = max(g - 2 SE, 0)``, ``lower = max(-g - 2 SE, 0)``. Normal data give (0, 0) nearly
-    always. Skewed values (a one-sided tail of the lots) make one side's CUSUM cross its
+    ``upper = max(g - SE, 0)``, ``lower = max(-g - SE, 0)``. Normal data give (0, 0) mostly, and
+    a small allowance otherwise (it only ever raises a threshold). Skewed values (a one-sided tail of the lots) make one side's CUSUM cross its
     threshold far more often than the normal theory says; ``cusum.thresholds`` raises that
     side's threshold by the skewness."""
     S, T = z.shape
@@ -224,8 +242,8 @@ def _skewness(z: np.ndarray, valid: np.ndarray, days: int, lag: int, comp: np.nd
         g = (tot[2] / tot[0]) / (tot[1] / tot[0]) ** 1.5
         se = np.sqrt(6.0 / (tot[0] * np.maximum(members - 1.0, 1.0) / members))
     ok = (tot[0] >= SKEW_MIN) & np.isfinite(g)
-    upper = np.where(ok, np.maximum(g - 2.0 * se, 0.0), 0.0)[comp]
-    lower = np.where(ok, np.maximum(-g - 2.0 * se, 0.0), 0.0)[comp]
+    upper = np.where(ok, np.maximum(g - SKEW_SHRINK * se, 0.0), 0.0)[comp]
+    lower = np.where(ok, np.maximum(-g - SKEW_SHRINK * se, 0.0), 0.0)[comp]
     return upper, lower
 
 

@@ -252,8 +252,14 @@ def run(con: Contrasts, settings: DetectorSettings, first: int,
             pick_hi = fire_hi & ~pick_lo
             if two_sided and con.comp is not None and (pick_hi | pick_lo).sum() > 1:
                 # one new mean alarm per comparison a day: the strongest (the others' rests
-                # hold it; they restart without it below and are judged again)
-                strength = np.where(pick_hi, ev_hi, np.where(pick_lo, ev_lo, -np.inf))
+                # hold it; they restart without it below and are judged again). Strength is
+                # the size since the onset in standard errors, |sum w c| / sqrt(sum w): the
+                # winsorised statistics of a group and of the others whose rest it moved can
+                # be equal when a change is far beyond the design shift
+                with np.errstate(divide="ignore", invalid="ignore"):
+                    z_hi = s["wc_hi"] / np.sqrt(s["w_hi"])
+                    z_lo = -s["wc_lo"] / np.sqrt(s["w_lo"])
+                strength = np.where(pick_hi, z_hi, np.where(pick_lo, z_lo, -np.inf))
                 best = np.full(int(con.comp.max()) + 1, -np.inf)
                 np.maximum.at(best, con.comp, strength)
                 lead = np.zeros(S, dtype=bool)
