@@ -364,3 +364,39 @@ def test_day_sums_past_the_limit_are_refused_before_anything_is_written(tmp_path
             import_file(s, csv("one", [4]))  # stored 48 + 16 > 60
         assert dump(s) == before
         assert import_file(s, csv("fits", [3])).stored == 1  # 48 + 9 = 57 <= 60
+
+
+def test_padded_cells_are_trimmed_and_blank_cells_are_empty(lab, tmp_path):
+    # surrounding white space (Unicode White_Space, so a no-break space too) is not part of a
+    # cell (common practice for CSV exports); a cell of spaces is an empty cell
+    f = write(tmp_path / "p.csv", HEADER + "\n"
+              " A ,fill_volume\u00a0, 500.1,2026-11-03T08:15:00Z ,S,\tL ,e\n"
+              "   ,fill_volume,500.2,2026-11-03T08:15:00Z,S,L,e\n")
+    with pytest.raises(BadInput) as err:
+        import_file(lab, f)
+    [p] = err.value.problems
+    assert (p.row, p.column, p.reason) == (2, "lot", "lot id is empty")
+    assert import_file(lab, f, ImportOptions(skip_bad=True)).stored == 1
+    assert lab.conn.execute(
+        "SELECT l.lot_code, m.measured_at, m.original_units, group_concat(t.key || '=' || t.value)"
+        " FROM measurements m JOIN lots l ON l.id = m.lot_id JOIN lot_tags t ON t.lot_id = l.id"
+        ).fetchone() == ("A", "2026-11-03T08:15:00Z", 5001, "line=L,shift=e,site=S")
+
+
+@pytest.mark.parametrize("order", ["adjacent", "apart"])
+def test_a_lot_whose_rows_disagree_on_a_tag_is_refused(lab, tmp_path, order):
+    # importer docstring: a lot whose tags disagree between rows is refused, row by row; checked
+    # by comparing neighbouring rows when a lot's rows are adjacent, by counting otherwise
+    a1 = "A,fill_volume,500.1,2026-11-03T08:15:00Z,S,L1,e\n"
+    a2 = "A,fill_volume,500.2,2026-11-03T08:15:00Z,S,L2,e\n"
+    b = "B,fill_volume,500.3,2026-11-03T08:15:00Z,S,L1,e\n"
+    body = a1 + a2 + b if order == "adjacent" else a1 + b + a2
+    f = write(tmp_path / "t.csv", HEADER + "\n" + body)
+    with pytest.raises(BadInput) as err:
+        import_file(lab, f)
+    [p] = err.value.problems
+    assert (p.row, p.column, p.value) == (2 if order == "adjacent" else 3, "line", "L2")
+    assert "lot 'A' has line='L1' on row 1" in p.reason
+    fine = write(tmp_path / "f.csv", HEADER + "\n" + (a1 + b + a1 if order == "apart"
+                                                      else a1 + a1 + b))
+    assert import_file(lab, fine).stored == 3
