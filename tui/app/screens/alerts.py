@@ -46,7 +46,7 @@ class AlertsScreen(LotwatchScreen):
         Binding("o", "next_state", "State", tooltip="Show all, open, acknowledged, cleared"),
         Binding("slash", "filter", "Filter", key_display="/"),
         Binding("enter", "drill", "Open", tooltip="Open the alert's comparison"),
-        Binding("escape", "back", "Back"),
+        Binding("escape", "back", "Back", show=False),  # b does the same; the footer fits 80
     ]
 
     def __init__(self) -> None:

@@ -55,8 +55,9 @@ class ComparisonScreen(LotwatchScreen):
     BINDINGS = [
         Binding("f", "factor(1)", "Factor", tooltip="Group by the next factor"),
         Binding("F", "factor(-1)", "Factor back", show=False),
-        Binding("w", "next_window", "Window", tooltip="Next window kind"),
-        Binding("s", "next_alpha", "Alpha", tooltip="Next significance level"),
+        # w and s stay out of the footer so that it fits 80 columns (help and palette list them)
+        Binding("w", "next_window", "Window", show=False, tooltip="Next window kind"),
+        Binding("s", "next_alpha", "Alpha", show=False, tooltip="Next significance level"),
         Binding("g", "reference", "Reference", show=False,
                 tooltip="Dunnett: the next group as reference"),
         Binding("l", "lots", "Lots", tooltip="The lots behind the highlighted group"),

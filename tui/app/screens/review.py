@@ -29,9 +29,11 @@ class ReviewScreen(LotwatchScreen):
         Binding("k", "acknowledge", "Ack", tooltip="Acknowledge the comparison's alert"),
         Binding("p", "record", "Record",
                 tooltip="Record this review: open, hold or clear alerts as it decides"),
-        Binding("left_square_bracket", "week(-1)", "Earlier", key_display="["),
-        Binding("right_square_bracket", "week(1)", "Later", key_display="]"),
-        Binding("escape", "back", "Back"),
+        # [ ] and Esc stay out of the footer so that it fits 80 columns (the head line names
+        # [ ], b goes back as Esc does; help lists them all)
+        Binding("left_square_bracket", "week(-1)", "Earlier", key_display="[", show=False),
+        Binding("right_square_bracket", "week(1)", "Later", key_display="]", show=False),
+        Binding("escape", "back", "Back", show=False),
     ]
 
     def __init__(self) -> None:
