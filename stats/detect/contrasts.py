@@ -41,8 +41,8 @@ pooled over the groups of the comparison and raised for its own uncertainty (``_
 a CUSUM tuned to a long run length feels an underestimated scale exponentially; Hawkins &
 Olwell 1998 discuss the CUSUM's sensitivity to a misjudged scale), and kept within [1, 9].
 
-Skewness: the contrasts' skewness, pooled over the comparison (``_skewness``), lets
-``cusum.thresholds`` raise the threshold of the side the tail points to.
+Skewness: the contrasts' skewness, pooled over the comparison
+(``skewness.contrast_skewness``), lets ``cusum.thresholds`` raise the threshold of the side the tail points to.
 
 Replicates: ``n`` counts values, and a day's mean of lots measured several times varies more
 than ``var / n`` says (the lot-to-lot part is shared by a lot's values); ``phi``, measured on
@@ -56,6 +56,7 @@ from dataclasses import dataclass
 
 import numpy as np
 from lotwatch.stats.detect.settings import DetectorSettings
+from lotwatch.stats.detect.skewness import contrast_skewness
 from scipy import special
 
 MIN_DF = 10  # trailing degrees of freedom a group and its rest need before they are watched
@@ -195,58 +196,6 @@ def _dispersion(z: np.ndarray, valid: np.ndarray, days: int, first: int, comp: n
     return phi
 
 
-SKEW_MIN = 60  # pooled days of contrasts a skewness estimate needs
-SKEW_SHRINK = 1.0  # standard errors the skewness is shrunk by
-
-
-def _skewness(z: np.ndarray, valid: np.ndarray, days: int, lag: int, comp: np.ndarray
-              ) -> tuple[np.ndarray, np.ndarray]:
-    """The skewness of the standardised contrasts that a detector may rely on, per slot and
-    day: ``(upper, lower)``, each >= 0, for the upward and the downward side.
-
-    Pooled over the comparison's slots, from the days ``t - lag - days .. t - lag - 1`` (the
-    most recent ``lag`` days are left out, so a change being looked for does not feed it),
-    each slot's values centred on its own mean over those days::
-
-        g = M3 / M2^(3/2),   M_r = sum_s sum_days (z - zbar_s)^r / N
-
-    and shrunk toward zero by one standard error, ``sqrt(6 / N_eff)`` (the large-sample SE of
-    a sample skewness; ``N_eff = N (K - 1) / K`` for K mirrored group-vs-rest contrasts):
-    ``upper = max(g - SE, 0)``, ``lower = max(-g - SE, 0)``. Normal data give (0, 0) mostly, and
-    a small allowance otherwise (it only ever raises a threshold). Skewed values (a one-sided tail of the lots) make one side's CUSUM cross its
-    threshold far more often than the normal theory says; ``cusum.thresholds`` raises that
-    side's threshold by the skewness."""
-    S, T = z.shape
-    y = np.where(valid, z, 0.0)
-    w = valid.astype(np.float64)
-
-    def window(x: np.ndarray) -> np.ndarray:
-        cs = np.zeros((S, T + 1))
-        np.cumsum(x, axis=1, out=cs[:, 1:])
-        t = np.arange(T)
-        hi = np.clip(t - lag, 0, T)
-        lo = np.clip(t - lag - days, 0, T)
-        return cs[:, hi] - cs[:, lo]
-
-    cnt, s1, s2, s3 = window(w), window(y), window(y * y), window(y ** 3)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        mean = s1 / cnt
-        m2 = np.where(cnt > 2, s2 - cnt * mean ** 2, 0.0)
-        m3 = np.where(cnt > 2, s3 - 3.0 * mean * s2 + 2.0 * cnt * mean ** 3, 0.0)
-    C = int(comp.max()) + 1
-    tot = np.zeros((3, C, T))
-    for i, x in enumerate((np.where(cnt > 2, cnt, 0.0), m2, m3)):
-        np.add.at(tot[i], comp, x)
-    members = np.bincount(comp, minlength=C).astype(np.float64)[:, None]
-    with np.errstate(invalid="ignore", divide="ignore"):
-        g = (tot[2] / tot[0]) / (tot[1] / tot[0]) ** 1.5
-        se = np.sqrt(6.0 / (tot[0] * np.maximum(members - 1.0, 1.0) / members))
-    ok = (tot[0] >= SKEW_MIN) & np.isfinite(g)
-    upper = np.where(ok, np.maximum(g - SKEW_SHRINK * se, 0.0), 0.0)[comp]
-    lower = np.where(ok, np.maximum(-g - SKEW_SHRINK * se, 0.0), 0.0)[comp]
-    return upper, lower
-
-
 def _sparse_variance(n: np.ndarray, s1: np.ndarray, days: int) -> np.ndarray:
     """A group's within-day variance when it has too few lots a day to measure it: from the
     changes of its day means between consecutive days with data,
@@ -284,7 +233,7 @@ class Contrasts:
     groups: np.ndarray  # watched levels in the slot's comparison (trailing)
     ref_sd: np.ndarray  # the rest's trailing within-day SD (d units)
     skew_m: tuple[np.ndarray, np.ndarray] | None = None  # (upper, lower) skewness allowed for
-    skew_s: tuple[np.ndarray, np.ndarray] | None = None  # (``_skewness``), mean and spread
+    skew_s: tuple[np.ndarray, np.ndarray] | None = None  # (``contrast_skewness``), mean and spread
     comp: np.ndarray | None = None  # (slots,) comparison of each slot
     n: np.ndarray | None = None  # the day's values of the group, their sum (d units),
     s1: np.ndarray | None = None  # and the trailing variances of the group and of its rest:
@@ -359,7 +308,8 @@ def contrasts(n: np.ndarray, s1: np.ndarray, s2: np.ndarray, comp: np.ndarray,
         log_arl = np.log(settings.years_per_false_alert * 3.0 * groups * 365.0)
         # (on the days with a contrast, whatever the dispersion: the same in a catch-up and
         # day by day, as the history read before the first day covers the skewness window)
-        skew_m = _skewness(z, mean_ok, settings.dispersion_days, settings.clear_days, comp)
+        skew_m = contrast_skewness(z, mean_ok, settings.dispersion_days, settings.clear_days,
+                                   comp)
         phi_m = _dispersion(z, mean_ok, settings.dispersion_days, start_phi, comp, log_arl,
                             PHI_FLOOR)
         mean_ok = mean_ok & np.isfinite(phi_m)
@@ -376,7 +326,8 @@ def contrasts(n: np.ndarray, s1: np.ndarray, s2: np.ndarray, comp: np.ndarray,
         u = np.where(spread_ok, np.log(vg) - np.log(vr) - bias, 0.0)
         var_u0 = trigamma(nu_g / 2) + trigamma(nu_r / 2)
         zs = u / np.sqrt(var_u0)
-        skew_s = _skewness(zs, spread_ok, settings.dispersion_days, settings.clear_days, comp)
+        skew_s = contrast_skewness(zs, spread_ok, settings.dispersion_days, settings.clear_days,
+                                   comp)
         phi_s = _dispersion(zs, spread_ok, settings.dispersion_days, start_phi, comp, log_arl,
                             PHI_FLOOR)
         spread_ok = spread_ok & np.isfinite(phi_s)

@@ -24,7 +24,7 @@ for ``K`` watched groups in the comparison, each with three one-sided detectors 
 down, spread up): so the comparison's false alerts stay at or below one per
 ``years_per_false_alert`` years (a sum of rates over its detectors; dependence between them only
 lowers the union's rate). ``a_typ`` uses the group's average values per day over the trailing
-days. Where the contrasts are skewed toward one side (``contrasts._skewness``), that side's
+days. Where the contrasts are skewed toward one side (``skewness.contrast_skewness``), that side's
 threshold is divided by ``skew_factor`` (<= 1), which keeps its run length near the target.
 
 Onset, size, gate. The estimated onset is the first day of the current run of S above zero (the

@@ -9,6 +9,7 @@ import numpy as np
 import pytest
 from lotwatch.stats.detect import arl, cusum
 from lotwatch.stats.detect import contrasts as dcon
+from lotwatch.stats.detect.skewness import contrast_skewness
 from scipy import stats
 
 
@@ -65,17 +66,17 @@ def test_skewness_is_pooled_and_ignores_the_latest_days():
     S, T, days, lag = 8, 200, 84, 14
     comp = np.zeros(S, dtype=np.int64)
     valid = np.ones((S, T), dtype=bool)
-    up, lo = dcon._skewness(rng.standard_normal((S, T)), valid, days, lag, comp)
+    up, lo = contrast_skewness(rng.standard_normal((S, T)), valid, days, lag, comp)
     assert up[:, -1].max() < 0.15 and lo[:, -1].max() < 0.15
     shape = 4.0 / 0.8 ** 2
     z = (rng.gamma(shape, size=(S, T)) - shape) / np.sqrt(shape)
-    up, lo = dcon._skewness(z, valid, days, lag, comp)
+    up, lo = contrast_skewness(z, valid, days, lag, comp)
     se = np.sqrt(6.0 / (days * S * 7 / 8))
     assert up[0, -1] == pytest.approx(0.8 - se, abs=0.2)
     assert lo[0, -1] == 0.0
     stepped = z.copy()
     stepped[3, T - lag:] += 4.0
-    up2, _ = dcon._skewness(stepped, valid, days, lag, comp)
+    up2, _ = contrast_skewness(stepped, valid, days, lag, comp)
     np.testing.assert_array_equal(up2[:, -1], up[:, -1])
 
 

@@ -1,0 +1,57 @@
+"""The skewness of a comparison's standardised day contrasts, for the detectors' thresholds
+(pure numpy)."""
+
+from __future__ import annotations
+
+import numpy as np
+
+SKEW_MIN = 60  # pooled days of contrasts a skewness estimate needs
+SKEW_SHRINK = 1.0  # standard errors the skewness is shrunk by
+
+
+def contrast_skewness(z: np.ndarray, valid: np.ndarray, days: int, lag: int, comp: np.ndarray
+              ) -> tuple[np.ndarray, np.ndarray]:
+    """The skewness of the standardised contrasts that a detector may rely on, per slot and
+    day: ``(upper, lower)``, each >= 0, for the upward and the downward side.
+
+    Pooled over the comparison's slots, from the days ``t - lag - days .. t - lag - 1`` (the
+    most recent ``lag`` days are left out, so a change being looked for does not feed it),
+    each slot's values centred on its own mean over those days::
+
+        g = M3 / M2^(3/2),   M_r = sum_s sum_days (z - zbar_s)^r / N
+
+    and shrunk toward zero by one standard error, ``sqrt(6 / N_eff)`` (the large-sample SE of
+    a sample skewness; ``N_eff = N (K - 1) / K`` for K mirrored group-vs-rest contrasts):
+    ``upper = max(g - SE, 0)``, ``lower = max(-g - SE, 0)``. Normal data give (0, 0) mostly, and
+    a small allowance otherwise (it only ever raises a threshold). Skewed values (a one-sided tail of the lots) make one side's CUSUM cross its
+    threshold far more often than the normal theory says; ``cusum.thresholds`` raises that
+    side's threshold by the skewness."""
+    S, T = z.shape
+    y = np.where(valid, z, 0.0)
+    w = valid.astype(np.float64)
+
+    def window(x: np.ndarray) -> np.ndarray:
+        cs = np.zeros((S, T + 1))
+        np.cumsum(x, axis=1, out=cs[:, 1:])
+        t = np.arange(T)
+        hi = np.clip(t - lag, 0, T)
+        lo = np.clip(t - lag - days, 0, T)
+        return cs[:, hi] - cs[:, lo]
+
+    cnt, s1, s2, s3 = window(w), window(y), window(y * y), window(y ** 3)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        mean = s1 / cnt
+        m2 = np.where(cnt > 2, s2 - cnt * mean ** 2, 0.0)
+        m3 = np.where(cnt > 2, s3 - 3.0 * mean * s2 + 2.0 * cnt * mean ** 3, 0.0)
+    C = int(comp.max()) + 1
+    tot = np.zeros((3, C, T))
+    for i, x in enumerate((np.where(cnt > 2, cnt, 0.0), m2, m3)):
+        np.add.at(tot[i], comp, x)
+    members = np.bincount(comp, minlength=C).astype(np.float64)[:, None]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        g = (tot[2] / tot[0]) / (tot[1] / tot[0]) ** 1.5
+        se = np.sqrt(6.0 / (tot[0] * np.maximum(members - 1.0, 1.0) / members))
+    ok = (tot[0] >= SKEW_MIN) & np.isfinite(g)
+    upper = np.where(ok, np.maximum(g - SKEW_SHRINK * se, 0.0), 0.0)[comp]
+    lower = np.where(ok, np.maximum(-g - SKEW_SHRINK * se, 0.0), 0.0)[comp]
+    return upper, lower
