@@ -60,7 +60,7 @@ from lotwatch.stats.detect.skewness import contrast_skewness
 from scipy import special
 
 MIN_DF = 10  # trailing degrees of freedom a group and its rest need before they are watched
-MIN_CHANGES = 14  # day-to-day changes the dispersion needs before a group is watched
+MIN_CONTRAST_DAYS = 15  # days with a contrast the dispersion needs before a group is watched
 SHEPPARD = 1.0 / 12.0
 PHI_FLOOR = 1.0  # the normal theory's dispersion is the least believed
 
@@ -148,7 +148,7 @@ CHANGE_CORR = 1.5  # variance inflation of a mean of squared consecutive differe
 def _dispersion(z: np.ndarray, valid: np.ndarray, days: int, first: int, comp: np.ndarray,
                 log_arl: np.ndarray, floor: float) -> np.ndarray:
     """phi for each slot and day t >= first (see the module docstring); NaN (not watched yet)
-    with fewer than MIN_CHANGES changes of the slot's own.
+    with fewer than MIN_CONTRAST_DAYS days of the slot's own.
 
     The trimmed mean square change is pooled over the slots of the comparison (so its noise,
     which a CUSUM tuned to a long run length feels exponentially, is that of all its groups'
@@ -172,7 +172,7 @@ def _dispersion(z: np.ndarray, valid: np.ndarray, days: int, first: int, comp: n
     keep = np.maximum(np.minimum(np.floor((1.0 - TRIM) * count), count - CHANGE_LAG), 0.0)
     used = np.arange(days)[None, None, :] < keep[:, :, None]
     num = np.where(used, ordered, 0.0).sum(axis=2)
-    ok = count >= MIN_CHANGES
+    ok = count >= MIN_CONTRAST_DAYS - CHANGE_LAG
     # what the kept changes' mean square would be for phi = 1: 2 E[X^2 | X below the cut]
     expect = 2.0 * keep * trimmed_second_moment(keep / np.maximum(count, 1.0))
     C = int(comp.max()) + 1
