@@ -147,3 +147,22 @@ def test_several_days_a_column_are_named_in_the_legend():
     pic = draw(_chart(), group="B", role="flagged", width=8 + 1 + 4 + 8, height=10)
     assert pic.columns[-1] == (17, 19) and pic.columns[0] == (0, 1)
     assert "mean per 3 days (mL)" in pic.lines[0].plain
+
+
+async def test_without_an_alert_the_chart_names_the_most_shifted_group_not_flagged(small_store):
+    """The small store has no alert (tests/tui/conftest.py: weight runs 1 g heavy on line L2):
+    the chart draws the board's most shifted group and says so, never "flagged"."""
+    path, _ = small_store
+    app = LotwatchApp(path)
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, lambda: app.overview is not None and not app.overview.partial
+                     and app.detail is not None and not app.computing, timeout=30)
+        row = next(r for r in app.overview.board if (r.characteristic, r.factor)
+                   == ("weight", "line"))
+        assert row.state not in ("mean alert", "spread alert", "acknowledged")
+        app.post_message(OpenComparison("weight", "line"))
+        await settle(pilot, lambda: app.current_mode == "comparison"
+                     and app.detail.factor == "line" and not app.computing)
+        chart = app.screen.query_one("#run-chart")
+        assert chart.group == row.group and chart.role == "largest shift"
+        assert "(largest shift)" in chart.drawn().lines[0].plain

@@ -16,7 +16,12 @@ from lotwatch.tui.app.widgets.posthoc_tables import DunnettTable, PairwiseTable,
 from lotwatch.tui.app.widgets.status_line import StatusLine
 from lotwatch.tui.app.widgets.trend_chart import RunChartView
 from lotwatch.tui.render.safe_text import clean
-from lotwatch.tui.services.view_models import DetailView
+from lotwatch.tui.services.view_models import (
+    ACKNOWLEDGED,
+    MEAN_ALERT,
+    SPREAD_ALERT,
+    DetailView,
+)
 from rich.console import Group
 from rich.text import Text
 from textual.app import ComposeResult, SystemCommand
@@ -106,14 +111,21 @@ class ComparisonScreen(LotwatchScreen):
 
     # --- showing results -------------------------------------------------------------------
 
-    def _flagged(self, detail: DetailView) -> list[str]:
+    def _board_groups(self, detail: DetailView) -> tuple[list[str], bool]:
+        """The board row's groups for this comparison and whether an alert flags them (else
+        they are the window's most shifted group)."""
         ov = self.state.overview
         if ov is None:
-            return []
+            return [], False
         for r in ov.board:
             if (r.characteristic, r.factor) == (detail.characteristic.name, detail.factor):
-                return [g.strip() for g in (r.group or "").split(",") if g.strip()]
-        return []
+                groups = [g.strip() for g in (r.group or "").split(",") if g.strip()]
+                return groups, r.state in (MEAN_ALERT, SPREAD_ALERT, ACKNOWLEDGED)
+        return [], False
+
+    def _flagged(self, detail: DetailView) -> list[str]:
+        groups, alert = self._board_groups(detail)
+        return groups if alert else []
 
     def _show_detail(self, detail: DetailView | None) -> None:
         if detail is None:
@@ -160,13 +172,16 @@ class ComparisonScreen(LotwatchScreen):
 
     def _chart_group(self, detail: DetailView) -> str | None:
         """The group the chart draws distinctly when a comparison arrives: the flagged one,
-        else the one whose detector is closest to its threshold (if it has any evidence), else
-        the table's first."""
+        else the board's most shifted one, else the one whose detector is closest to its
+        threshold (if it has any evidence), else the table's first."""
         names = {g.name for g in detail.battery.groups} | set(
             detail.chart.series if detail.chart else ())
         flagged = [g for g in self._flagged(detail) if g in names]
         if flagged:
             return flagged[0]
+        shifted = [g for g in self._board_groups(detail)[0] if g in names]
+        if shifted:
+            return shifted[0]
         top = next((d for d in detail.detectors if d.evidence and d.group in names), None)
         if top is not None:
             return top.group
@@ -182,7 +197,8 @@ class ComparisonScreen(LotwatchScreen):
         kind = "spread" if top is not None and top.kind == "spread" and top.alarmed else "mean"
         line = next((d for d in mine if d.kind == kind), None)
         onset = line.onset if line is not None and line.evidence else None
-        role = "flagged" if group in self._flagged(detail) else "highlighted"
+        groups, alert = self._board_groups(detail)
+        role = ("flagged" if alert else "largest shift") if group in groups else "highlighted"
         self.query_one(RunChartView).show(detail.chart, group=group, role=role, kind=kind,
                                           onset=onset, keep_cursor=keep_cursor)
         self._chart_shown = group

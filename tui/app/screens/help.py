@@ -62,7 +62,8 @@ MEANINGS = [
     ("Run chart",
      "Each group's mean per plant day over the twelve weeks before the window's end (further "
      "back to an earlier onset; several days a column when they do not fit). The flagged group "
-     "(else the group highlighted in the table) is drawn with #, the others with ·; for an "
+     "(without an alert: the most shifted one; after ↑/↓ or a move in the table: the "
+     "highlighted one; the legend says which) is drawn with #, the others with ·; for an "
      "alarmed spread detector the chart shows SDs per day instead. LSL and USL (═) and the "
      "target (─) are always on the scale: far from the data they get a row of their own at the "
      "edge, marked ≈ where the scale breaks. ┆ = the detector's estimated onset. The strip "
