@@ -93,3 +93,22 @@ async def test_the_board_shows_a_factor_with_one_level_beside_detector_rows(tmp_
             table = app.screen.query_one("#board", DataTable)
             assert table.row_count == 3  # bore by site, line and shift
             assert app.is_running
+
+
+async def test_alert_sizes_in_the_app_carry_unit_and_resolution(alert_store):
+    """The alerts screen and the acknowledge form write the size like every other screen: the
+    resolution's decimals plus one and the unit (bore: 0.01 mm, size 0.15 -> "0.150 mm")."""
+    from lotwatch.tui.app.screens.acknowledge import AcknowledgeScreen
+    from lotwatch.tui.app.screens.alerts import AlertsScreen
+    from tui_helpers import screen_text
+
+    path, _ = alert_store
+    app = LotwatchApp(path)
+    async with app.run_test(size=(100, 30)) as pilot:
+        await settle(pilot, lambda: not app.computing)
+        await pilot.press("a")
+        await settle(pilot, lambda: isinstance(app.screen, AlertsScreen) and app.alerts)
+        assert "0.150 mm" in screen_text(app)
+        await pilot.press("k")
+        await settle(pilot, lambda: isinstance(app.screen, AcknowledgeScreen))
+        assert "shift 0.150 mm" in screen_text(app)

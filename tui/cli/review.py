@@ -249,6 +249,7 @@ def alerts_list(state: str | None, fmt: str, db_path: Path) -> None:
     from lotwatch.store import alerts as store_alerts
     from lotwatch.tui.caution import CAUTION
     from lotwatch.tui.render.numbers import num
+    from lotwatch.tui.render.numbers import size as size_text
     from lotwatch.tui.render.safe_text import clean
 
     with open_store(db_path, read_only=True) as store:
@@ -272,8 +273,7 @@ def alerts_list(state: str | None, fmt: str, db_path: Path) -> None:
     click.echo(f"{'id':>4} {'state':<12} {'characteristic':<14} {'factor':<7} {'kind':<6} "
                f"{'group':<9} {'size':>12} {'%tol':>5} {'onset':<10} detected")
     for a in rows:
-        size = "-" if a.size is None else clean(
-            f"{_size_text(a.size, resolution_of(a))} {unit_of(a)}".strip(), 12)
+        size = clean(size_text(a.size, resolution_of(a), unit_of(a)), 12)
         click.echo(f"{a.id:>4} {a.state:<12} {clean(a.characteristic, 14):<14} "
                    f"{clean(a.factor, 7):<7} {a.kind:<6} "
                    f"{clean(','.join(a.groups), 9):<9} {size:>12} "
@@ -326,13 +326,6 @@ def alerts_show(alert_id: int, db_path: Path) -> None:
             line += f": {e.note}"
         click.echo(clean(line))
     click.echo(CAUTION)
-
-
-def _size_text(x: float, resolution: str | None) -> str:
-    """A size for the alerts list: the resolution's decimals plus one (``numbers.measured``)."""
-    from lotwatch.tui.render.numbers import measured, num
-
-    return measured(x, resolution) if resolution else num(x, 3)
 
 
 def _wrap_plain(text: str) -> list[str]:

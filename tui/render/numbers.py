@@ -47,6 +47,21 @@ def measured(x: float | None, resolution: str) -> str:
     return fixed(x, decimals_of(resolution))
 
 
+def size(x: float | None, resolution: str | None, unit: str = "", *, sign: bool = False) -> str:
+    """A size in a characteristic's unit (a shift, an alert's size, a gate): the resolution's
+    decimals plus one (``measured``; three significant digits when no resolution is known), an
+    explicit "+" when ``sign``, then the unit. A dash when missing."""
+    if x is None or not math.isfinite(x):
+        return MISSING
+    if resolution:
+        text = measured(x, resolution)
+        if sign and not text.startswith("-"):
+            text = "+" + text
+    else:
+        text = signed(x) if sign else num(x, 3)
+    return f"{text} {unit}" if unit else text
+
+
 def index(x: float | None) -> str:
     """A capability index (Cp, Cpk, Pp, Ppk, an end of Cpk's interval): two decimals (common
     practice); a dash when undefined."""

@@ -15,7 +15,7 @@ from typing import Any
 
 from lotwatch.tui.caution import CAUTION
 from lotwatch.tui.render.detector_text import detector_cell, detector_summary, settings_sentence
-from lotwatch.tui.render.numbers import MISSING, measured, pval
+from lotwatch.tui.render.numbers import MISSING, pval, size
 from lotwatch.tui.render.safe_text import clean
 
 WIDTH = 80
@@ -42,11 +42,7 @@ def fit(x: float | None, width: int) -> str:
 def size_cell(c: Any, x: float | None) -> str:
     """A size in a comparison's unit (shift, detectable shift, gate) for a Markdown or HTML
     table: the resolution's decimals plus one (``numbers.measured``) and the unit."""
-    if x is None or not math.isfinite(x):
-        return MISSING
-    text = measured(x, c.resolution) if getattr(c, "resolution", "") else fit(x, 8)
-    unit = getattr(c, "unit", "")
-    return f"{text} {unit}" if unit else text
+    return size(x, getattr(c, "resolution", "") or None, getattr(c, "unit", ""))
 
 
 def count_cell(n: int | None) -> str:

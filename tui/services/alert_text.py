@@ -6,16 +6,8 @@ from datetime import date
 from typing import Any
 
 from lotwatch.tui.caution import CAUTION
-from lotwatch.tui.render.numbers import measured, num, signed
-
-
-def _size(x: float, resolution: str | None, sign: bool = False) -> str:
-    """A size in the characteristic's unit: the resolution's decimals plus one (the one rule of
-    every screen, ``numbers.measured``); three significant digits when none is known."""
-    if not resolution:
-        return signed(x) if sign else num(x, 3)
-    text = measured(x, resolution)
-    return f"+{text}" if sign and not text.startswith("-") else text
+from lotwatch.tui.render.numbers import num
+from lotwatch.tui.render.numbers import size as size_text
 
 
 def alert_sentence(characteristic: str, factor: str, groups: list[str], kind: str,
@@ -29,9 +21,9 @@ def alert_sentence(characteristic: str, factor: str, groups: list[str], kind: st
     who = ", ".join(groups) if groups else "a group"
     what = "mean" if kind == "mean" else "spread (SD)"
     how = direction or "different"
-    size_s = (f"{_size(size, resolution, sign=True)} {unit}".rstrip() if size is not None
+    size_s = (size_text(size, resolution, unit, sign=True) if size is not None
               else "an unknown amount")
-    interval = (f" (95% interval {_size(low, resolution)} to {_size(high, resolution)})"
+    interval = (f" (95% interval {size_text(low, resolution)} to {size_text(high, resolution)})"
                 if low is not None and high is not None else "")
     pct = f", {num(percent, 3)}% of the tolerance" if percent is not None else ""
     budget = (f" Thresholds allow one false alert per {num(budget_years, 4)} comparison-years."

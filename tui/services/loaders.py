@@ -49,14 +49,15 @@ def char_info(c: Any) -> CharacteristicInfo:
     )
 
 
-def _alert_row(a: Alert) -> AlertRow:
+def _alert_row(a: Alert, unit: str = "", resolution: str = "") -> AlertRow:
     return AlertRow(id=a.id, characteristic=a.characteristic, factor=a.factor, state=a.state,
                     opened_at=a.opened_at, opened_window=a.opened_window,
                     last_window=a.last_window, groups=", ".join(a.groups) or None,
                     direction=a.direction, size=a.size, q=a.q, updated_at=a.updated_at,
                     kind=getattr(a, "kind", "mean"), onset=getattr(a, "onset", None),
                     evidence=getattr(a, "evidence", None),
-                    percent_of_tolerance=getattr(a, "percent_of_tolerance", None))
+                    percent_of_tolerance=getattr(a, "percent_of_tolerance", None),
+                    unit=unit, resolution=resolution)
 
 
 def _event_row(e: AlertEvent) -> AlertEventRow:
@@ -81,7 +82,9 @@ def _comparison_row(c: ComparisonSummary) -> ComparisonRow:
 def read_alerts(store: Store, state: str | None = None) -> list[AlertRow]:
     from lotwatch.store.alerts import list_alerts
 
-    return [_alert_row(a) for a in list_alerts(store, state=state)]
+    chars = {c.name: (c.unit, c.resolution) for c in store.characteristics()}
+    return [_alert_row(a, *chars.get(a.characteristic, ("", "")))
+            for a in list_alerts(store, state=state)]
 
 
 def _sort_q(rows: list[ComparisonRow]) -> list[ComparisonRow]:

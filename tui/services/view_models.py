@@ -98,6 +98,8 @@ class AlertRow:
     onset: str | None = None  # plant day the change is estimated to have begun
     evidence: float | None = None  # detector statistic / threshold when last written
     percent_of_tolerance: float | None = None
+    unit: str = ""  # the characteristic's unit and resolution: the size is written with them
+    resolution: str = ""
 
 
 @dataclass(frozen=True)

@@ -8,7 +8,7 @@ from lotwatch.tui.app import messages as msg
 from lotwatch.tui.app.screens.write_modal import WriteModal
 from lotwatch.tui.app.state import AppState
 from lotwatch.tui.app.widgets.caution import Caution
-from lotwatch.tui.render.numbers import num, pval
+from lotwatch.tui.render.numbers import pval, size
 from lotwatch.tui.render.safe_text import clean
 from lotwatch.tui.services.view_models import AlertRow
 from rich.text import Text
@@ -38,7 +38,8 @@ class AcknowledgeScreen(WriteModal):
         a = self.alert
         head = Text(f"Acknowledge alert #{a.id}: ", style="bold")
         head.append(f"{clean(a.characteristic, 24)} by {clean(a.factor, 12)}")
-        body = Text(f"groups {clean(a.groups or '-', 24)}, shift {num(a.size, 3)}, "
+        body = Text(f"groups {clean(a.groups or '-', 24)}, "
+                    f"shift {size(a.size, a.resolution or None, clean(a.unit, 8))}, "
                     f"q {pval(a.q)}, state {clean(a.state)}")
         with Vertical():
             yield Static(head)

@@ -12,7 +12,7 @@ from lotwatch.tui.app.screens.base import LotwatchScreen
 from lotwatch.tui.app.state import step_week
 from lotwatch.tui.app.widgets.caution import Caution
 from lotwatch.tui.app.widgets.compact import fill
-from lotwatch.tui.render.numbers import MISSING, measured, num, pval
+from lotwatch.tui.render.numbers import num, pval, size
 from lotwatch.tui.render.safe_text import clean
 from lotwatch.tui.services.view_models import ComparisonRow, ReviewView
 from rich.text import Text
@@ -76,8 +76,7 @@ class ReviewScreen(LotwatchScreen):
         for r in self.rows:
             alert = r.alert_state or ("–" if r.status == "ok" else r.status)
             group = clean(r.groups or "–", 10)
-            shift = MISSING if r.largest_shift is None else (
-                f"{_size(r.largest_shift, r.resolution)} {clean(r.unit, 4)}".strip())
+            shift = size(r.largest_shift, r.resolution, clean(r.unit, 4))
             lots = r.n_total if r.lots_total is None else r.lots_total  # lots counted as lots
             rows.append([clean(r.characteristic, 14), clean(r.factor, 7), f"{lots:,}",
                          num(r.f, 3) + ("w" if r.test == "Welch" else ""), pval(r.q), group,
@@ -135,7 +134,3 @@ class ReviewScreen(LotwatchScreen):
     def action_back(self) -> None:
         self.app.switch_mode("board")
 
-
-def _size(x: float, resolution: str) -> str:
-    """A shift in the characteristic's unit: its resolution's decimals plus one (one rule)."""
-    return measured(x, resolution) if resolution else num(x, 3)

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from lotwatch.tui.app.widgets.compact import fill
-from lotwatch.tui.render.numbers import num, pval
+from lotwatch.tui.render.numbers import pval, size
 from lotwatch.tui.render.safe_text import clean
 from lotwatch.tui.services.view_models import AlertRow
 from textual.widgets import DataTable
@@ -25,7 +25,8 @@ class AlertList(DataTable):
         rows, styles = [], []
         for a in alerts:
             rows.append([str(a.id), clean(a.state, 12), clean(a.characteristic, 16),
-                         clean(a.factor, 8), clean(a.groups or "", 12), num(a.size, 3),
+                         clean(a.factor, 8), clean(a.groups or "", 12),
+                         size(a.size, a.resolution or None, clean(a.unit, 6)),
                          pval(a.q), clean(a.opened_window or a.opened_at or "", 22)])
             styles.append(["", "bold reverse" if a.state == "open" else ""] + [""] * 6)
         fill(self, HEADERS, RIGHT, rows, keys=[str(a.id) for a in alerts], styles=styles)
