@@ -34,3 +34,23 @@ def test_store_failures_say_what_happened_and_what_to_do():
     assert db.startswith("reading the store: the store could not be read or written")
     odd = describe_error(ZeroDivisionError("division by zero"), "computing")
     assert "ZeroDivisionError" in odd and "keeps running" in odd
+
+
+def test_week_stepping_follows_the_plant_calendar(monkeypatch):
+    """Issue 11, item 3: 03:00 UTC on Monday 2026-11-30 is still Sunday evening in Chicago, so a
+    week back from the plant's current week (2026-W48) is 2026-W47, not 2026-W48 as in UTC.
+    ISO weeks: 2026-11-29 is the Sunday of 2026-W48 (common calendar fact)."""
+    from datetime import UTC, datetime
+
+    from lotwatch.tui.app.state import step_week
+    from lotwatch.tui.services import review_inputs
+
+    class Clock(datetime):
+        @classmethod
+        def now(cls, tz=None):
+            return datetime(2026, 11, 30, 3, 0, tzinfo=UTC).astimezone(tz)
+
+    monkeypatch.setattr(review_inputs, "datetime", Clock)
+    assert step_week(None, -1, "America/Chicago") == "2026-W47"
+    assert step_week(None, -1, "UTC") == "2026-W48"
+    assert step_week("2026-W47", 1, "America/Chicago") is None  # back to this plant week

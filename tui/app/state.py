@@ -7,7 +7,7 @@ The app holds a :class:`ViewState` in a reactive attribute; screens read it and 
 from __future__ import annotations
 
 from dataclasses import dataclass, replace
-from datetime import UTC, date, datetime, timedelta
+from datetime import date, timedelta
 from typing import TYPE_CHECKING, Protocol
 
 if TYPE_CHECKING:
@@ -46,14 +46,17 @@ class ViewState:
         i = kinds.index(current_kind) if current_kind in kinds else -1
         return self.but(window=kinds[(i + 1) % len(kinds)])
 
-    def shifted_week(self, step: int) -> ViewState:
-        """The windows' end a week back or forth; forth from this week returns to today."""
-        return self.but(week=step_week(self.week, step))
+    def shifted_week(self, step: int, zone: str | None = None) -> ViewState:
+        """The windows' end a week back or forth; forth from this week returns to today (weeks
+        of the plant calendar, ``zone``)."""
+        return self.but(week=step_week(self.week, step, zone))
 
 
-def utc_today() -> date:
-    """Today's date in UTC: the review engine's default review day."""
-    return datetime.now(UTC).date()
+def plant_today(zone: str | None = None) -> date:
+    """Today in the plant zone (UTC when not known): the review engine's default review day."""
+    from lotwatch.tui.services.review_inputs import plant_today as today
+
+    return today(zone)
 
 
 iso_week = iso_week_label  # ISO 8601 week label of a day, e.g. 2026-W49 (the one helper)
@@ -67,18 +70,19 @@ def parse_week(label: str) -> date | None:
         return None
 
 
-def shift_week(label: str, step: int) -> str:
-    """The ISO week ``step`` weeks after ``label``."""
+def shift_week(label: str, step: int, zone: str | None = None) -> str:
+    """The ISO week ``step`` weeks after ``label`` (a bad label: from this plant week)."""
     monday = parse_week(label)
     if monday is None:
-        monday = utc_today()
+        monday = plant_today(zone)
     return iso_week(monday + timedelta(weeks=step))
 
 
-def step_week(week: str | None, step: int) -> str | None:
-    """``step`` weeks from ``week`` (None = this week); this week or later becomes None."""
-    this_week = iso_week(utc_today())
-    target = shift_week(week or this_week, step)
+def step_week(week: str | None, step: int, zone: str | None = None) -> str | None:
+    """``step`` weeks from ``week`` (None = this week of the plant calendar, ``zone``); this
+    week or later becomes None."""
+    this_week = iso_week(plant_today(zone))
+    target = shift_week(week or this_week, step, zone)
     monday, now = parse_week(target), parse_week(this_week)
     return None if monday is None or now is None or monday >= now else target
 

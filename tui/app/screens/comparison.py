@@ -247,7 +247,9 @@ class ComparisonScreen(LotwatchScreen):
         self.post_message(msg.ChooseView(view))
 
     def action_week(self, step: int) -> None:
-        self.post_message(msg.ChooseView(self.state.view.shifted_week(step)))
+        ov = self.state.overview
+        zone = ov.plant_zone if ov is not None else None  # plant weeks, as the review's
+        self.post_message(msg.ChooseView(self.state.view.shifted_week(step, zone)))
 
     def action_reference(self) -> None:
         d = self.state.detail

@@ -129,7 +129,9 @@ class ReviewScreen(LotwatchScreen):
         self.post_message(msg.RecordReview())
 
     def action_week(self, step: int) -> None:
-        self.post_message(msg.ShowReviewWeek(step_week(self.state.review_week, step)))
+        ov = self.state.overview
+        zone = ov.plant_zone if ov is not None else None  # plant weeks, as the review's
+        self.post_message(msg.ShowReviewWeek(step_week(self.state.review_week, step, zone)))
 
     def action_back(self) -> None:
         self.app.switch_mode("board")
