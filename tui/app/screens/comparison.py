@@ -1,7 +1,9 @@
 """The comparison view: one characteristic × factor with its group table, ANOVA table and
-decision, and a chart, together at 80×24 (side by side from 120 columns); tabs hold what does
-not fit: the pairwise table of the recommended post-hoc test, Dunnett against a chosen
-reference, the spread view and the companion tests. The screen shows only computed results.
+decision, and the run chart, together at 80×24 (side by side from 120 columns); tabs hold what
+does not fit: the pairwise table of the recommended post-hoc test, Dunnett against a chosen
+reference, the spread view and the companion tests. The group table's cursor chooses the group
+the chart draws apart (at first the flagged one); d puts a cursor on the chart's days and Enter
+lists that group's lots of those days. The screen shows only computed results.
 """
 
 from __future__ import annotations
@@ -81,6 +83,10 @@ class ComparisonScreen(LotwatchScreen):
         Binding("escape", "back", "Board", show=False, tooltip="Back to the board"),
     ]
 
+    _shown: tuple[str, str] | None = None  # the comparison on screen
+    _chart_shown: str | None = None  # the group the chart draws apart
+    _following = False  # False while the screen itself moves the group table's cursor
+
     def compose_body(self) -> ComposeResult:
         yield StatusLine(id="status")
         with Container(id="cmp-body"):
@@ -130,10 +136,10 @@ class ComparisonScreen(LotwatchScreen):
     def _show_detail(self, detail: DetailView | None) -> None:
         if detail is None:
             return
-        changed = getattr(self, "_shown", None) != (detail.characteristic.name, detail.factor)
+        changed = self._shown != (detail.characteristic.name, detail.factor)
         self._shown = (detail.characteristic.name, detail.factor)
         table = self.query_one(GroupTable)
-        group = self._chart_group(detail) if changed else getattr(self, "_chart_shown", None)
+        group = self._chart_group(detail) if changed else self._chart_shown
         self._following = False  # the table's cursor moves below: not the reader's choice
         table.show(detail)
         names = [g.name for g in detail.battery.groups]
@@ -280,10 +286,10 @@ class ComparisonScreen(LotwatchScreen):
         """The group table's cursor chooses the group the chart draws distinctly."""
         d = self.state.detail
         if event.data_table.id != "group-table" or d is None or \
-                not getattr(self, "_following", False):
+                not self._following:
             return
         key = event.row_key.value if event.row_key is not None else None
-        if key is not None and key != getattr(self, "_chart_shown", None):
+        if key is not None and key != self._chart_shown:
             self._show_chart(d, key, keep_cursor=True)
 
     def on_run_chart_view_group_step(self, event: RunChartView.GroupStep) -> None:
