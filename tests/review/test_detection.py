@@ -241,3 +241,27 @@ def test_two_recorded_reviews_at_once_write_each_event_once(tmp_path):
     with Store.open(tmp_path / "s.sqlite") as s:
         got = s.conn.execute("SELECT event, count(*) FROM alert_events GROUP BY event").fetchall()
     assert dict(got) == {"opened": expected}
+
+
+def test_a_lot_logged_in_the_interface_brings_the_detectors_current(tmp_path):
+    """The interface's writer advances the detectors after the lot is stored: the board reads
+    the state of the lot's day at once, and equals what a catch-up from nothing gives."""
+    from lotwatch.tui.services import writers
+    from lotwatch.tui.services.view_models import EntryDraft
+
+    store = _store(tmp_path / "s.sqlite", 40)
+    detection.advance_detectors(store)
+    store.close()
+    day = DAY0 + timedelta(days=40)
+    draft = EntryDraft(values={"x": ["50.40"]}, tags={"site": "A", "line": "L1",
+                                                       "shift": "early"},
+                       lot="A-new", measured_at=f"{day.isoformat()}T09:00:00Z", note=None)
+    writers.log_draft(tmp_path / "s.sqlite", draft, "qe")
+    with Store.open(tmp_path / "s.sqlite") as s:
+        assert {st.last_day for st in detection.detector_status(s)} == {day}
+        live = _rows(s)
+    with Store.open(tmp_path / "s.sqlite") as s:
+        with s.write():
+            s.conn.execute("DELETE FROM detector_progress")
+        detection.advance_detectors(s)
+        assert _rows(s) == live

@@ -1,6 +1,8 @@
 """Writers the app runs in thread workers: log a lot, correct or void a value, record a review,
 acknowledge an alert. Each opens its own Store and writes through the store's API (the same rules
-and audit trail as the command line)."""
+and audit trail as the command line). After a lot is logged, corrected or voided, the detectors
+are brought current (``detection.advance_detectors``, its own transaction: the board's evidence
+moves with each lot and an alert opens on the day it is raised, not at the next review)."""
 
 from __future__ import annotations
 
@@ -40,11 +42,26 @@ def log_draft(path: Path, draft: EntryDraft, by: str) -> LoggedLot:
             outcome = store.log_lots(entries)
         except BadInput as exc:
             raise plain_words(exc, lot) from None
+        advance_after_write(store, by)
     flagged = sum(1 for name, values in draft.values.items() for v in values
                   if outside_spec(float(v), chars[name]))
     stored_lot = outcome.lots[0] if outcome.lots else lot
     return LoggedLot(list(draft.values), stored_lot, outcome.stored, outcome.duplicates,
                      outcome.rounded, flagged, dict(draft.tags))
+
+
+def advance_after_write(store, by: str) -> None:
+    """Bring every detector current after a write (cheap: only the days a write touched are
+    recomputed). The write has committed already; if the detectors cannot be advanced (a bad
+    ``detect.*`` setting) the next ``lotwatch review`` says why and catches up, so the write is
+    not reported as failed."""
+    from lotwatch.store import StoreError
+    from lotwatch.tui.services.detection import advance_detectors
+
+    try:
+        advance_detectors(store, by=by)
+    except (ValueError, StoreError):
+        pass
 
 
 def plain_words(exc: Exception, lot: str | None) -> Exception:
@@ -72,12 +89,14 @@ def correct_value(path: Path, measurement_id: int, new_value: str, reason: str,
     """Replace a stored value with a reason (the original and the change stay in the audit)."""
     with opened(path, False) as store:
         store.correct(measurement_id, new_value, reason=reason, by=by)
+        advance_after_write(store, by)
 
 
 def void_value(path: Path, measurement_id: int, reason: str, by: str) -> None:
     """Mark a stored value void with a reason (kept, left out of every statistic)."""
     with opened(path, False) as store:
         store.void(measurement_id, reason=reason, by=by)
+        advance_after_write(store, by)
 
 
 def record_review(path: Path, week: str | None, by: str) -> tuple[int, int, list[str]]:
