@@ -56,7 +56,7 @@ from dataclasses import dataclass
 
 import numpy as np
 from lotwatch.stats.detect.settings import DetectorSettings
-from lotwatch.stats.detect.skewness import contrast_skewness
+from lotwatch.stats.detect.skewness import contrast_skewness, spread_llr
 from scipy import special
 
 MIN_DF = 10  # trailing degrees of freedom a group and its rest need before they are watched
@@ -232,6 +232,7 @@ class Contrasts:
     days_per_year: np.ndarray  # the group's reporting days per year (trailing)
     groups: np.ndarray  # watched levels in the slot's comparison (trailing)
     ref_sd: np.ndarray  # the rest's trailing within-day SD (d units)
+    llr_s: np.ndarray | None = None  # the day's spread log-likelihood ratio (``spread_llr``)
     skew_m: tuple[np.ndarray, np.ndarray] | None = None  # (upper, lower) skewness allowed for
     skew_s: tuple[np.ndarray, np.ndarray] | None = None  # (``contrast_skewness``), mean and spread
     comp: np.ndarray | None = None  # (slots,) comparison of each slot
@@ -332,6 +333,8 @@ def contrasts(n: np.ndarray, s1: np.ndarray, s2: np.ndarray, comp: np.ndarray,
                             PHI_FLOOR)
         spread_ok = spread_ok & np.isfinite(phi_s)
         phi_s = np.nan_to_num(phi_s, nan=1.0)
+        llr_s = spread_llr(vg / vr, nu_g / phi_s, nu_r / phi_s, settings.spread_ratio ** 2)
+        llr_s = np.where(spread_ok, llr_s, 0.0)
 
         # a typical day (the group's actual lot rate over the trailing days)
         nbar_g = t_n / t_days
@@ -348,6 +351,7 @@ def contrasts(n: np.ndarray, s1: np.ndarray, s2: np.ndarray, comp: np.ndarray,
     return Contrasts(c=c, v=v0 * phi_m, mean_ok=mean_ok, delta=delta, u=u,
                      var_u=var_u0 * phi_s, spread_ok=spread_ok, phi_m=phi_m, phi_s=phi_s,
                      a_typ_m=a_typ_m, a_typ_s=a_typ_s, days_per_year=days_per_year,
-                     groups=groups, ref_sd=np.sqrt(var_r), skew_m=skew_m, skew_s=skew_s,
+                     groups=groups, ref_sd=np.sqrt(var_r), llr_s=llr_s, skew_m=skew_m,
+                     skew_s=skew_s,
                      comp=comp, n=n, s1=s1,
                      var_g=var_g, var_r=var_r)

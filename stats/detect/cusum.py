@@ -5,13 +5,16 @@ For each slot (a level of a grouping factor) and day t with a usable contrast (s
 shift" against "it does not" is, for a normal contrast ``c_t`` with variance ``v_t``::
 
     mean, upward:    l_t = (delta c_t - delta^2 / 2) / v_t       (and the mirror for downward)
-    spread, upward:  l_t = (D u_t - D^2 / 2) / var(u_t),   D = 2 ln(spread_ratio)
+    spread, upward:  l_t = the exact log-likelihood ratio of the day's variance ratio F for a
+                     variance spread_ratio^2 times the rest's (``skewness.spread_llr``: the F
+                     distribution, degrees of freedom shrunk by the measured dispersion)
 
 and the CUSUM is ``S_t = max(0, S_{t-1} + l_t)`` (Page 1954; the log-likelihood-ratio form of
 Hawkins & Olwell 1998, ch. 2 and 6 for scale). Days without a usable contrast leave S as it is.
 The standardised contrast enters winsorised at ``a/2 +- 3`` (Hawkins 1993, "Robustification of
 cumulative sum charts by winsorization"): a single wild day of skewed data then cannot cross the
 threshold alone, at the price of a second day for a change much larger than the design shift.
+A spread step is cut at ``h / SPREAD_CAP`` for the same reason.
 
 Threshold. With ``a = delta / sqrt(v)`` the step is ``a (z - a/2)``: a tabular CUSUM of the
 standardised contrast z with reference ``k = a/2``, scaled by a. The threshold is
@@ -26,6 +29,9 @@ down, spread up): so the comparison's false alerts stay at or below one per
 lowers the union's rate). ``a_typ`` uses the group's average values per day over the trailing
 days. Where the contrasts are skewed toward one side (``skewness.contrast_skewness``), that side's
 threshold is divided by ``skew_factor`` (<= 1), which keeps its run length near the target.
+The spread detector's steps are exact log-likelihood ratios, so its threshold is
+``h = ln ARL0`` (a CUSUM of log-likelihood ratios runs at least ``e^h`` in control; Lorden
+1971), divided by ``skew_factor`` of the log ratio's skewness where heavy tails skew it.
 
 Onset, size, gate. The estimated onset is the first day of the current run of S above zero (the
 day after S was last 0). The size since the onset is the precision-weighted mean contrast over
@@ -55,6 +61,7 @@ Z95 = 1.959963984540054
 STATE_FIELDS = ("s_hi", "s_lo", "onset_hi", "onset_lo", "w_hi", "wc_hi", "w_lo", "wc_lo",
                 "alarm", "detected", "alarm_onset", "aw", "awc")
 NONE = -1  # no day
+SPREAD_CAP = 2.0  # the largest share of the threshold one day of the spread CUSUM may add
 WINSOR = 3.0  # standard errors beyond half the design shift at which a day's contrast is cut
 
 
@@ -123,6 +130,13 @@ def thresholds(con: Contrasts, settings: DetectorSettings, first: int
         if ok.any():
             h[ok] = a[ok] * decision_interval_markov(a[ok] / 2.0, arl[ok])
         out[kind] = {}
+        if kind == "spread" and con.llr_s is not None:
+            # exact log-likelihood ratios: run length >= e^h (Lorden 1971)
+            h = np.where(ok, np.log(np.maximum(arl, 1.0)), np.nan)
+            if skew is not None:  # heavy-tailed values skew the log ratio to the right
+                h = h / skew_factor(skew[0][:, first:], np.nan_to_num(a))
+            out[kind] = {"hi": h, "lo": h}
+            continue
         for side, i in (("hi", 0), ("lo", 1)):
             g = skew[i][:, first:] if skew is not None else np.zeros(a.shape)
             out[kind][side] = h / skew_factor(g, np.nan_to_num(a))
@@ -215,6 +229,9 @@ def run(con: Contrasts, settings: DetectorSettings, first: int,
                 reach = gate / 2.0 + WINSOR / np.sqrt(w)
                 xw = np.clip(x, -reach, reach)
                 up = np.where(ok, (gate * xw - gate * gate / 2.0) * w, 0.0)
+                if k == "spread" and con.llr_s is not None:
+                    # no single day crosses alone (as the winsorised mean steps)
+                    up = np.where(ok, np.minimum(con.llr_s[:, t], h_hi / SPREAD_CAP), 0.0)
                 dn = np.where(ok, (-gate * xw - gate * gate / 2.0) * w, 0.0)
             for side, inc in (("hi", up), ("lo", dn)):
                 if side == "lo" and not two_sided:

@@ -1,5 +1,6 @@
-"""The skewness of a comparison's standardised day contrasts, for the detectors' thresholds
-(pure numpy)."""
+"""The shape of the day contrasts beyond their variance (pure numpy): the skewness of a
+comparison's standardised mean contrasts, for the thresholds, and the exact likelihood ratio of
+a day's variance ratio, for the spread detector."""
 
 from __future__ import annotations
 
@@ -55,3 +56,24 @@ def contrast_skewness(z: np.ndarray, valid: np.ndarray, days: int, lag: int, com
     upper = np.where(ok, np.maximum(g - SKEW_SHRINK * se, 0.0), 0.0)[comp]
     lower = np.where(ok, np.maximum(-g - SKEW_SHRINK * se, 0.0), 0.0)[comp]
     return upper, lower
+
+
+def spread_llr(ratio: np.ndarray, nu_g: np.ndarray, nu_r: np.ndarray, rho: float) -> np.ndarray:
+    """The log-likelihood ratio of "the group's variance is ``rho`` times the rest's" against
+    "they are equal", from one day's ratio ``F = v_g / v_r`` of the two within-day variances
+    with ``nu_g`` and ``nu_r`` degrees of freedom (F-distributed under equality for normal
+    data; the density of ``F / rho`` divided by ``rho`` under the alternative)::
+
+        l = -(nu_g / 2) ln rho - ((nu_g + nu_r) / 2) ln[(1 + nu_g F / (rho nu_r))
+                                                          / (1 + nu_g F / nu_r)]
+
+    Increasing in F and bounded above by ``(nu_r / 2) ln rho``. A CUSUM of exact
+    log-likelihood ratios has an in-control run length of at least ``e^h`` (Lorden 1971), so
+    its threshold needs no normal approximation; scale CUSUMs: Hawkins & Olwell (1998), ch. 6.
+    Non-normal data (heavy tails) are allowed for by shrinking both degrees of freedom by the
+    measured extra dispersion of the log ratio (a chi-square with the same variance of its
+    log)."""
+    with np.errstate(invalid="ignore", divide="ignore"):
+        a = nu_g * ratio / nu_r
+        return (-(nu_g / 2.0) * np.log(rho)
+                - ((nu_g + nu_r) / 2.0) * (np.log1p(a / rho) - np.log1p(a)))

@@ -114,3 +114,40 @@ def test_dispersion_sees_correlation_between_neighbouring_days():
     phi = dcon._dispersion(z, valid, days, 0, np.zeros(S, dtype=np.int64),
                            np.full((S, T), np.log(1e6)), 1.0)
     assert np.median(phi[:, 200:]) > 1.7
+
+
+@pytest.mark.parametrize(("nu_g", "nu_r"), [(3.0, 20.0), (8.0, 56.0), (20.0, 100.0)])
+def test_spread_llr_is_the_f_distributions_likelihood_ratio(nu_g, nu_r):
+    """Against scipy's F density: l(F) = ln[f(F / rho) / rho] - ln f(F)."""
+    from lotwatch.stats.detect.skewness import spread_llr
+
+    rho = 1.5 ** 2
+    ratio = np.array([0.2, 0.9, 1.0, 2.5, 7.0])
+    expected = (stats.f.logpdf(ratio / rho, nu_g, nu_r) - np.log(rho)
+                - stats.f.logpdf(ratio, nu_g, nu_r))
+    np.testing.assert_allclose(spread_llr(ratio, nu_g, nu_r, rho), expected, rtol=1e-10)
+    assert spread_llr(np.array(1e12), nu_g, nu_r, rho) < nu_r / 2 * np.log(rho)
+
+
+def test_a_cusum_of_spread_llrs_keeps_lordens_bound():
+    """Normal data, equal variances: the CUSUM of exact log-likelihood ratios with h = ln 300
+    runs at least about 300 days before a false alarm (Lorden 1971: ARL >= e^h; simulated,
+    2,000 runs cut at 5,000 days, so the mean is a lower bound)."""
+    from lotwatch.stats.detect.skewness import spread_llr
+
+    rng = np.random.default_rng(5)
+    runs, h = 2000, np.log(300.0)
+    s = np.zeros(runs)
+    length = np.zeros(runs)
+    alive = np.ones(runs, dtype=bool)
+    cap = 5_000
+    for step in range(1, cap):
+        ratio = rng.f(8, 56, runs)
+        s = np.maximum(0.0, s + spread_llr(ratio, 8.0, 56.0, 2.25))
+        crossed = alive & (s > h)
+        length[crossed] = step
+        alive &= ~crossed
+        if not alive.any():
+            break
+    length[alive] = cap
+    assert length.mean() > 300 * 0.9
