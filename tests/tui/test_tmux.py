@@ -171,14 +171,16 @@ def test_the_board_first_then_log_a_lot_in_the_demo_at_80x24(tmux, demo_data_hom
 
 
 @pytest.mark.slow
-def test_the_comparison_and_its_chart_read_without_colour_at_80x24(tmux, demo_data_home):
+def test_the_comparison_and_its_chart_read_without_colour_at_80x24(tmux, demo_data_home,
+                                                                   demo_copy):
     """NO_COLOR in a real terminal: no colour codes at all, and the chart still tells the
-    flagged group ("#") from the others ("·"), with LSL and USL on the scale."""
-    db = demo_data_home / "lotwatch" / "demo.sqlite"
+    flagged group ("#") from the others ("·"), with LSL and USL on the scale. The store is the
+    demo with its weekly reviews recorded (as ``lotwatch demo`` does for a new store), so the
+    RB-2 drift has its alert."""
     env = (f"XDG_DATA_HOME={shlex.quote(str(demo_data_home))} "
-           f"LOTWATCH_DB={shlex.quote(str(db))} TERM=xterm-256color NO_COLOR=1")
+           f"TERM=xterm-256color NO_COLOR=1")
     command = (f"cd {shlex.quote(str(ROOT))} && env {env} {shlex.quote(sys.executable)} "
-               "-m lotwatch.tui demo")
+               f"-m lotwatch.tui watch --db {shlex.quote(str(demo_copy))}")
     tmux.run("new-session", "-d", "-s", "lw", "-x", "80", "-y", "24", command)
     tmux.wait_for("Decision:")
     tmux.keys("Enter")
