@@ -41,3 +41,13 @@ def test_years_option(cli, db: Path, tmp_path: Path) -> None:
     assert bad.exit_code == 2 and "FROM-TO" in bad.output
     done = cli("import", f, "--years", "1950-2030", "--db", db)
     assert done.exit_code == 0, done.output
+
+
+def test_each_note_is_printed_once(cli, db: Path, tmp_path: Path) -> None:
+    """A note about the file (here an ignored column) is said before storing, not again after."""
+    f = tmp_path / "n.csv"
+    f.write_text("lot,characteristic,value,measured_at,site,line,shift,extra\n"
+                 "A,fill_volume,500.1,2026-11-03T08:15:00Z,S,L,e,1\n", encoding="utf-8")
+    result = cli("import", f, "--db", db)
+    assert result.exit_code == 0, result.output
+    assert result.output.count("ignored columns") == 1, result.output

@@ -159,7 +159,8 @@ def import_command(file: str, fmt: str, layout: str, lot_column: str, time_colum
         summary.rejected_file = write_rejected(parsed, summary.rejected)
 
     for note in summary.notes:
-        click.echo(plain(f"Note: {note}"))
+        if note not in parsed.notes:  # those were said before storing
+            click.echo(plain(f"Note: {note}"))
     click.echo(plain(f"Imported {summary.path.name} ({summary.layout} layout)"))
     counts = [("rows read", summary.rows_read), ("values read", summary.values_read),
               ("values stored", summary.stored),
