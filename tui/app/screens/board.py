@@ -39,9 +39,10 @@ def headline(row: BoardRow) -> Text:
         if row.percent_of_tolerance is not None:
             extra.append(f"{row.percent_of_tolerance:.0f}% of tolerance")
         if row.min_shift is not None:
-            extra.append(f"min shift {fixed(row.min_shift, decimals_of(row.resolution) - 1)}")
+            extra.append(f"min shift {fixed(row.min_shift, decimals_of(row.resolution) - 1)} "
+                         f"{clean(row.unit, 8)}".rstrip())
         if row.evidence is not None:
-            extra.append(f"evidence {row.evidence:.2f} of threshold")
+            extra.append(f"evidence {row.evidence:.2f} × the threshold")
         if extra:
             t.append(f" ({'; '.join(extra)})")
         t.append(f", q {pval(row.q)}.")
