@@ -307,14 +307,18 @@ def contrasts(n: np.ndarray, s1: np.ndarray, s2: np.ndarray, comp: np.ndarray,
         start_phi = max(first - settings.clear_days, 0)
         # ln of a one-sided detector's in-control run length (see ``cusum.thresholds``)
         log_arl = np.log(settings.years_per_false_alert * 3.0 * groups * 365.0)
-        # (on the days with a contrast, whatever the dispersion: the same in a catch-up and
-        # day by day, as the history read before the first day covers the skewness window)
-        skew_m = contrast_skewness(z, mean_ok, settings.dispersion_days, settings.clear_days,
-                                   comp)
-        phi_m = _dispersion(z, mean_ok, settings.dispersion_days, start_phi, comp, log_arl,
-                            PHI_FLOOR)
-        mean_ok = mean_ok & np.isfinite(phi_m)
-        phi_m = np.nan_to_num(phi_m, nan=1.0)
+
+        def shape(zz: np.ndarray, ok: np.ndarray):
+            """(skewness, phi, ok where phi is known) of one kind's standardised contrasts.
+            The skewness is taken on the days with a contrast, whatever the dispersion: the
+            same in a catch-up and day by day, as the history read before the first day
+            covers its window."""
+            sk = contrast_skewness(zz, ok, settings.dispersion_days, settings.clear_days, comp)
+            phi = _dispersion(zz, ok, settings.dispersion_days, start_phi, comp, log_arl,
+                              PHI_FLOOR)
+            return sk, np.nan_to_num(phi, nan=1.0), ok & np.isfinite(phi)
+
+        skew_m, phi_m, mean_ok = shape(z, mean_ok)
 
         # spread
         spread_ok = warm & (n >= 2) & (rdf >= 2)
@@ -327,12 +331,7 @@ def contrasts(n: np.ndarray, s1: np.ndarray, s2: np.ndarray, comp: np.ndarray,
         u = np.where(spread_ok, np.log(vg) - np.log(vr) - bias, 0.0)
         var_u0 = trigamma(nu_g / 2) + trigamma(nu_r / 2)
         zs = u / np.sqrt(var_u0)
-        skew_s = contrast_skewness(zs, spread_ok, settings.dispersion_days, settings.clear_days,
-                                   comp)
-        phi_s = _dispersion(zs, spread_ok, settings.dispersion_days, start_phi, comp, log_arl,
-                            PHI_FLOOR)
-        spread_ok = spread_ok & np.isfinite(phi_s)
-        phi_s = np.nan_to_num(phi_s, nan=1.0)
+        skew_s, phi_s, spread_ok = shape(zs, spread_ok)
         llr_s = spread_llr(vg / vr, nu_g / phi_s, nu_r / phi_s, settings.spread_ratio ** 2)
         llr_s = np.where(spread_ok, llr_s, 0.0)
 

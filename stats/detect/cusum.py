@@ -126,10 +126,6 @@ def thresholds(con: Contrasts, settings: DetectorSettings, first: int
     for kind, a, skew in (("mean", con.a_typ_m[:, first:], con.skew_m),
                           ("spread", con.a_typ_s[:, first:], con.skew_s)):
         ok = np.isfinite(a) & (a > 0) & np.isfinite(arl) & (arl >= 1)
-        h = np.full(a.shape, np.nan)
-        if ok.any():
-            h[ok] = a[ok] * decision_interval_markov(a[ok] / 2.0, arl[ok])
-        out[kind] = {}
         if kind == "spread" and con.llr_s is not None:
             # exact log-likelihood ratios: run length >= e^h (Lorden 1971)
             h = np.where(ok, np.log(np.maximum(arl, 1.0)), np.nan)
@@ -137,6 +133,10 @@ def thresholds(con: Contrasts, settings: DetectorSettings, first: int
                 h = h / skew_factor(skew[0][:, first:], np.nan_to_num(a))
             out[kind] = {"hi": h, "lo": h}
             continue
+        h = np.full(a.shape, np.nan)
+        if ok.any():
+            h[ok] = a[ok] * decision_interval_markov(a[ok] / 2.0, arl[ok])
+        out[kind] = {}
         for side, i in (("hi", 0), ("lo", 1)):
             g = skew[i][:, first:] if skew is not None else np.zeros(a.shape)
             out[kind][side] = h / skew_factor(g, np.nan_to_num(a))

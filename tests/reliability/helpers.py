@@ -147,3 +147,22 @@ def write_long_csv(path: Path, rows: list[tuple[str, str, str, str, str, str]]) 
         lines.append(f"{lot},{char},{value},{site},{line},{shift},2026-11-20T08:00:00Z")
     path.write_text("\n".join(lines) + "\n", encoding="utf-8")
     return path
+
+
+def log_named_lots(store, *lots: str) -> None:
+    """Log one value of CHAR with TAGS for each lot ID (through the store's API)."""
+    from lotwatch.store import LotEntry
+
+    store.log_lots([LotEntry(CHAR, ["500.1"], TAGS, lot=lot) for lot in lots])
+
+
+def backup_copy(path: Path, to: Path) -> Path:
+    """A backup made while the store is in use, as the README advises (sqlite3 ".backup")."""
+    src, dst = sqlite3.connect(path), sqlite3.connect(to)
+    try:
+        src.backup(dst)
+    finally:
+        src.close()
+        dst.close()
+    return to
+

@@ -13,32 +13,20 @@ import subprocess
 from pathlib import Path
 
 import pytest
-from lotwatch.store import LotEntry, Store, StoreError
+from lotwatch.store import Store, StoreError
 from lotwatch.store.file_generation import SEQ_KEY, seq_on_disk
 
 from tests.reliability.helpers import (
     CHAR,
     TAGS,
     assert_clean_refusal,
+    backup_copy,
     check_ok,
+    log_named_lots,
     lot_value_counts,
     make_store,
     run_cli,
 )
-
-
-def _log(store: Store, *lots: str) -> None:
-    store.log_lots([LotEntry(CHAR, ["500.1"], TAGS, lot=lot) for lot in lots])
-
-
-def _backup(path: Path, to: Path) -> Path:
-    src, dst = sqlite3.connect(path), sqlite3.connect(to)
-    try:
-        src.backup(dst)  # sqlite3 ".backup", the copy README advises
-    finally:
-        src.close()
-        dst.close()
-    return to
 
 
 def _checkpoint(path: Path) -> None:
@@ -66,18 +54,18 @@ def test_a_backup_copied_over_an_open_store_is_refused_then_restore_repairs(
         tmp_path: Path) -> None:
     path = make_store(tmp_path / "plant.sqlite")
     with Store.open(path) as s:
-        _log(s, "A1", "A2")
-    backup = _backup(path, tmp_path / "monday.sqlite")
+        log_named_lots(s, "A1", "A2")
+    backup = backup_copy(path, tmp_path / "monday.sqlite")
     session = Store.open(path)  # an interface left open on the store
     try:
-        _log(session, "B1", "B2")
+        log_named_lots(session, "B1", "B2")
         _checkpoint(path)  # the day's work reaches the file on disk
-        _log(session, "B3")  # and more sits in the write-ahead log
+        log_named_lots(session, "B3")  # and more sits in the write-ahead log
         inode = path.stat().st_ino
         _cp(backup, path)
         assert path.stat().st_ino == inode  # same file: the inode check alone cannot tell
         with pytest.raises(StoreError, match="copied over"):
-            _log(session, "LATE")
+            log_named_lots(session, "LATE")
         res = _cli_log(path, "LATE2")
         out = assert_clean_refusal(res, contains=("copied over", "lotwatch restore"))
         assert res.returncode == 2, out
@@ -87,7 +75,7 @@ def test_a_backup_copied_over_an_open_store_is_refused_then_restore_repairs(
         res = run_cli("restore", backup, "--db", path)
         assert res.returncode == 0, res.stdout + res.stderr
         with pytest.raises(StoreError):
-            _log(session, "LATE3")  # the open session must be reopened first
+            log_named_lots(session, "LATE3")  # the open session must be reopened first
     finally:
         session.close()
     assert set(lot_value_counts(path)) == {"A1", "A2"}
@@ -103,13 +91,13 @@ def test_the_refusal_holds_for_a_session_opened_after_the_copy(tmp_path: Path) -
     process that opens the store after the copy refuse too."""
     path = make_store(tmp_path / "plant.sqlite")
     with Store.open(path) as s:
-        _log(s, "A1")
-    backup = _backup(path, tmp_path / "monday.sqlite")
+        log_named_lots(s, "A1")
+    backup = backup_copy(path, tmp_path / "monday.sqlite")
     holder = Store.open(path)
     try:
-        _log(holder, "B1")
+        log_named_lots(holder, "B1")
         _checkpoint(path)
-        _log(holder, "B2")  # records the counter it found on disk, above the backup's
+        log_named_lots(holder, "B2")  # records the counter it found on disk, above the backup's
         _cp(backup, path)
         res = _cli_log(path, "LATE")
         assert_clean_refusal(res, contains=("copied over",))
@@ -125,7 +113,7 @@ def test_ordinary_use_is_never_refused(tmp_path: Path) -> None:
     a, b = Store.open(path), Store.open(path)
     try:
         for i in range(20):
-            _log(a if i % 2 else b, f"L{i}")
+            log_named_lots(a if i % 2 else b, f"L{i}")
             if i % 5 == 0:
                 _checkpoint(path)
         disk = seq_on_disk(path)
@@ -138,7 +126,7 @@ def test_ordinary_use_is_never_refused(tmp_path: Path) -> None:
         a.close()
         b.close()
     with Store.open(path) as s:
-        _log(s, "AFTER")
+        log_named_lots(s, "AFTER")
     assert len(lot_value_counts(path)) == 21
     check_ok(path)
 
@@ -149,27 +137,27 @@ def test_counter_on_disk_is_read_without_dropping_the_sessions_locks(tmp_path: P
     (a plain open()/close() of the file in this process would drop our POSIX locks)."""
     path = make_store(tmp_path / "plant.sqlite")
     with Store.open(path) as session:
-        _log(session, "A1")  # a write reads the counter on disk
+        log_named_lots(session, "A1")  # a write reads the counter on disk
         assert Path(f"{path}-wal").exists()
         subprocess.run([os.environ.get("PYTHON", "python3"), "-c",
                         "import sqlite3,sys; c=sqlite3.connect(sys.argv[1]); "
                         "c.execute('SELECT count(*) FROM lots').fetchone(); c.close()",
                         str(path)], check=True)
         assert Path(f"{path}-wal").exists(), "our locks were dropped: the log was deleted"
-        _log(session, "A2")
+        log_named_lots(session, "A2")
     assert set(lot_value_counts(path)) == {"A1", "A2"}
 
 
 def test_check_reports_a_store_copied_over(tmp_path: Path) -> None:
     path = make_store(tmp_path / "plant.sqlite")
     with Store.open(path) as s:
-        _log(s, "A1")
-    backup = _backup(path, tmp_path / "monday.sqlite")
+        log_named_lots(s, "A1")
+    backup = backup_copy(path, tmp_path / "monday.sqlite")
     holder = Store.open(path)
     try:
-        _log(holder, "B1")
+        log_named_lots(holder, "B1")
         _checkpoint(path)
-        _log(holder, "B2")
+        log_named_lots(holder, "B2")
         check_ok(path)  # nothing wrong yet
         _cp(backup, path)
         res = run_cli("check", "--db", path)

@@ -12,43 +12,30 @@ import sqlite3
 from pathlib import Path
 
 import pytest
-from lotwatch.store import LotEntry, Store, StoreError
+from lotwatch.store import Store, StoreError
 
 from tests.reliability.helpers import (
     CHAR,
     TAGS,
     Snapshot,
     assert_clean_refusal,
+    backup_copy,
     check_ok,
+    log_named_lots,
     lot_value_counts,
     make_store,
     run_cli,
 )
 
 
-def _log(store: Store, *lots: str) -> None:
-    store.log_lots([LotEntry(CHAR, ["500.1"], TAGS, lot=lot) for lot in lots])
-
-
-def _backup(path: Path, to: Path) -> Path:
-    src = sqlite3.connect(path)
-    dst = sqlite3.connect(to)
-    try:
-        src.backup(dst)  # how a backup is made while the store is in use (sqlite3 ".backup")
-    finally:
-        src.close()
-        dst.close()
-    return to
-
-
 def test_restore_while_a_session_is_open(tmp_path: Path) -> None:
     path = make_store(tmp_path / "plant.sqlite")
     with Store.open(path) as s:
-        _log(s, "A1", "A2")
-    backup = _backup(path, tmp_path / "monday.sqlite")
+        log_named_lots(s, "A1", "A2")
+    backup = backup_copy(path, tmp_path / "monday.sqlite")
     session = Store.open(path)  # an interface left open on the store
     try:
-        _log(session, "B1", "B2", "B3")
+        log_named_lots(session, "B1", "B2", "B3")
         assert set(lot_value_counts(path)) == {"A1", "A2", "B1", "B2", "B3"}
         res = run_cli("restore", backup, "--db", path)
         assert res.returncode == 0, res.stdout + res.stderr
@@ -57,7 +44,7 @@ def test_restore_while_a_session_is_open(tmp_path: Path) -> None:
         check_ok(path)
         before = Snapshot.of(path)
         with pytest.raises(StoreError, match="restored from a backup"):
-            _log(session, "LATE")
+            log_named_lots(session, "LATE")
         assert Snapshot.of(path) == before
     finally:
         session.close()
@@ -74,14 +61,14 @@ def test_restore_while_a_session_is_open(tmp_path: Path) -> None:
 def test_restore_refuses_a_bad_backup_and_changes_nothing(tmp_path: Path) -> None:
     path = make_store(tmp_path / "plant.sqlite")
     with Store.open(path) as s:
-        _log(s, "A1")
+        log_named_lots(s, "A1")
     before = Snapshot.of(path)
     not_store = tmp_path / "notes.sqlite"
     conn = sqlite3.connect(not_store)
     conn.execute("CREATE TABLE t(x)")
     conn.commit()
     conn.close()
-    damaged = _backup(path, tmp_path / "damaged.sqlite")
+    damaged = backup_copy(path, tmp_path / "damaged.sqlite")
     data = bytearray(damaged.read_bytes())
     data[4096:4104] = b"\xff" * 8  # the b-tree header of page 2 (page size 4096)
     damaged.write_bytes(bytes(data))
@@ -98,8 +85,8 @@ def test_restore_refuses_a_bad_backup_and_changes_nothing(tmp_path: Path) -> Non
 def test_restore_into_a_missing_store_creates_it(tmp_path: Path) -> None:
     path = make_store(tmp_path / "plant.sqlite")
     with Store.open(path) as s:
-        _log(s, "A1")
-    backup = _backup(path, tmp_path / "b.sqlite")
+        log_named_lots(s, "A1")
+    backup = backup_copy(path, tmp_path / "b.sqlite")
     target = tmp_path / "new" / "plant.sqlite"
     target.parent.mkdir()
     res = run_cli("restore", backup, "--db", target)
@@ -111,8 +98,8 @@ def test_restore_into_a_missing_store_creates_it(tmp_path: Path) -> None:
 def test_restore_over_a_damaged_store_keeps_its_bytes(tmp_path: Path) -> None:
     path = make_store(tmp_path / "plant.sqlite")
     with Store.open(path) as s:
-        _log(s, "A1")
-    backup = _backup(path, tmp_path / "b.sqlite")
+        log_named_lots(s, "A1")
+    backup = backup_copy(path, tmp_path / "b.sqlite")
     conn = sqlite3.connect(path)
     conn.execute("PRAGMA wal_checkpoint(TRUNCATE)")
     conn.close()
