@@ -46,6 +46,9 @@ class Plan:
     rounded: int
     values: int = 0
     notes: list[str] = field(default_factory=list)
+    # the store's PRAGMA data_version read before the plan read the store: while it is unchanged
+    # no other connection has written, so the plan needs no second judgement (None: judge again)
+    data_version: int | None = None
 
 
 def _char_table(chars: list[Characteristic]) -> pl.DataFrame:
@@ -100,7 +103,9 @@ def _value_checks(vals: pl.DataFrame) -> pl.DataFrame:
         | (pl.col("hi").is_not_null() & (scaled > pl.col("hi")))
         | ((u - pl.col("origin")).abs() > MAX_ABS_D)
     )
-    return vals.with_columns(_units()).with_columns(flag.alias("flag"))
+    # lazily, so the sub-expressions ``_units`` and ``flag`` repeat are computed once each
+    # (polars' common subexpression elimination runs only on lazy frames)
+    return vals.lazy().with_columns(_units()).with_columns(flag.alias("flag")).collect()
 
 
 def plan_values(store: Store, values: pl.DataFrame, tag_keys: list[str], *, source: str,
@@ -109,6 +114,7 @@ def plan_values(store: Store, values: pl.DataFrame, tag_keys: list[str], *, sour
     docstring). ``values`` is ``import_parse.parse_values``'s frame."""
     import polars as pl
 
+    version = store.data_version()
     chars = store.characteristics()
     factors = store.factors()
     zone = store.plant_zone
@@ -121,7 +127,10 @@ def plan_values(store: Store, values: pl.DataFrame, tag_keys: list[str], *, sour
     entries = (vals.group_by(key, maintain_order=True).agg(
         pl.col("cid").first(), pl.col("units"), pl.col("value"), pl.col("__row").alias("rows"),
         pl.col("measured_at").first(), pl.col("by").first(), pl.col("column").first(),
-        pl.col("flag").any(), pl.col("origin").first(), *(pl.col(c).first() for c in tags)))
+        pl.col("flag").any(), pl.col("origin").first(), *(pl.col(c).first() for c in tags),
+        pl.col("measured_at").n_unique().alias("_times")))
+    mixed = mixed_times_note(int((entries["_times"] > 1).sum()))
+    entries = entries.drop("_times")
     noted = vals.filter(pl.col("note").is_not_null())  # usually none: joined only if there
     entries = (entries.join(noted.group_by(key).agg(pl.col("note").unique(maintain_order=True)
                                                     .str.join("; ")),
@@ -164,7 +173,7 @@ def plan_values(store: Store, values: pl.DataFrame, tag_keys: list[str], *, sour
             pl.col("rows").list.first())
     plan = Plan(entries=good.drop("flag", "value"), tag_keys=tag_keys, problems=problems,
                 duplicates=0, refused_values=refused_values, rounded=rounded,
-                values=int(vals.height))
+                values=int(vals.height), data_version=version, notes=[mixed] if mixed else [])
     # stored lots are judged a slice of entries at a time, so a re-import of a big file never
     # holds all its stored rows in memory at once
     kept = []
@@ -176,6 +185,15 @@ def plan_values(store: Store, values: pl.DataFrame, tag_keys: list[str], *, sour
     plan.entries = pl.concat(kept) if kept else whole
     refuse_overflowing_plan(store.conn, plan.entries, [f.name for f in factors], TAG)
     return plan
+
+
+def mixed_times_note(pairs: int) -> str | None:
+    """The note for ``pairs`` lot/characteristic pairs whose replicate values carry different
+    times (counted in ``plan_values``' grouping), None for none."""
+    if not pairs:
+        return None
+    return (f"{pairs} lot/characteristic pair(s) have replicate values at different times; each "
+            "pair is stamped with the time of its first row")
 
 
 def _entry(r: dict, tag_keys: list[str], source: str) -> LotEntry:

@@ -236,16 +236,4 @@ def parse_values(frame: pl.DataFrame, layout: Layout, source: str) -> ParsedValu
     return ParsedValues(values, list(layout.tags), problems, rows_read, values_read, notes)
 
 
-def mixed_times_note(values: pl.DataFrame) -> str | None:
-    """A note when replicate values of one lot and characteristic carry different times."""
-    import polars as pl
-
-    n = (values.group_by("lot", "characteristic")
-         .agg(pl.col("measured_at").n_unique().alias("k")).filter(pl.col("k") > 1).height)
-    if not n:
-        return None
-    return (f"{n} lot/characteristic pair(s) have replicate values at different times; each "
-            "pair is stamped with the time of its first row")
-
-
-__all__ = ["Layout", "ParsedValues", "Path", "mixed_times_note", "parse_values"]
+__all__ = ["Layout", "ParsedValues", "Path", "parse_values"]

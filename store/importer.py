@@ -46,7 +46,7 @@ from typing import Any
 from lotwatch.store.errors import BadInput, RowProblem
 from lotwatch.store.export import NeutralWriter
 from lotwatch.store.import_cells import parse_timestamp
-from lotwatch.store.import_parse import Layout, mixed_times_note, parse_values
+from lotwatch.store.import_parse import Layout, parse_values
 from lotwatch.store.import_read import FORMATS, FileRefused, read_frame
 from lotwatch.store.rules import import_years
 
@@ -235,8 +235,7 @@ def parse_import(
     parsed = parse_values(frame, resolved, path.name)
     if parsed.rows_read == 0:
         raise FileRefused(f"{path.name}: the file has a header but no data rows")
-    mixed = mixed_times_note(parsed.values)
-    notes += parsed.notes + ([mixed] if mixed else [])
+    notes += parsed.notes
     return ParsedImport(
         path=path, source=path.name, layout=layout, frame=frame, values=parsed.values,
         tag_keys=parsed.tag_keys, problems=parsed.problems, rows_read=parsed.rows_read,
@@ -282,7 +281,7 @@ def store_import(
         rounded=plan.rounded,
         lots=lots,
         measurement_ids=ids,
-        notes=list(parsed.notes),
+        notes=list(parsed.notes) + plan.notes,
     )
 
 

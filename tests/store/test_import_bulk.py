@@ -400,3 +400,60 @@ def test_a_lot_whose_rows_disagree_on_a_tag_is_refused(lab, tmp_path, order):
     fine = write(tmp_path / "f.csv", HEADER + "\n" + (a1 + b + a1 if order == "apart"
                                                       else a1 + a1 + b))
     assert import_file(lab, fine).stored == 3
+
+
+def test_chunks_are_judged_again_only_after_another_connection_wrote(lab, tmp_path,
+                                                                     monkeypatch):
+    # PRAGMA data_version changes only when another connection commits
+    # (sqlite.org/pragma.html#pragma_data_version): while it stands still the plan's judgement
+    # holds and the chunks skip the second look; once it moves, every chunk is judged again.
+    from lotwatch.store import LotEntry
+    from lotwatch.store.bulk import plan_values, write_plan
+    from lotwatch.store.importer import parse_import
+
+    monkeypatch.setattr(bulk, "CHUNK_VALUES", 4)
+    judged: list[int] = []
+    real = bulk._judge_stored
+
+    def spy(conn, part, *args):
+        judged.append(part.entries.height)
+        return real(conn, part, *args)
+
+    monkeypatch.setattr(bulk, "_judge_stored", spy)
+    f = write(tmp_path / "a.csv", HEADER + "\n" + rows(20))
+    assert import_file(lab, f).stored == 20
+    assert judged == []  # five chunks, nobody else wrote: no second judgement
+    g = write(tmp_path / "b.csv", HEADER + "\n" + rows(20, start=20))
+    parsed = parse_import(g, ImportOptions(), factors=["site", "line", "shift"],
+                          characteristics=["fill_volume"], zone=lab.plant_zone)
+    plan = plan_values(lab, parsed.values, parsed.tag_keys, source="b.csv", round_values=False,
+                       now_s="2026-11-03T09:00:00Z")
+    with Store.open(lab.path) as floor:  # another terminal writes after the plan
+        floor.log_lots([LotEntry("fill_volume", ["500.1"], {"site": "S", "line": "L0",
+                                                            "shift": "e"}, lot="F1")])
+    ids, _ = write_plan(lab, plan, source="b.csv", skip_bad=False)
+    assert len(ids) == 20 and len(judged) == 5  # every chunk judged again
+    assert lab.check().ok
+
+
+def test_replicates_at_different_times_are_noted_once_per_pair(lab, tmp_path):
+    # importer docstring: a lot's replicate values are stamped with the time of its first row;
+    # the summary says how many lot/characteristic pairs had differing times
+    f = write(tmp_path / "t.csv", HEADER + "\n"
+              "A,fill_volume,500.1,2026-11-03T08:15:00Z,S,L,e\n"
+              "A,fill_volume,500.2,2026-11-03T08:20:00Z,S,L,e\n"
+              "A,fill_volume,500.3,2026-11-03T08:25:00Z,S,L,e\n"
+              "B,fill_volume,500.2,2026-11-03T08:15:00Z,S,L,e\n"
+              "B,fill_volume,500.2,2026-11-03T08:15:00Z,S,L,e\n"
+              "C,fill_volume,500.4,2026-11-03T09:15:00Z,S,L,e\n"
+              "C,fill_volume,500.5,2026-11-03T09:16:00Z,S,L,e\n")
+    summary = import_file(lab, f)
+    assert summary.stored == 7
+    mixed = [n for n in summary.notes if "different times" in n]
+    assert mixed == ["2 lot/characteristic pair(s) have replicate values at different times; "
+                     "each pair is stamped with the time of its first row"]
+    times = lab.conn.execute("SELECT DISTINCT measured_at FROM measurements m JOIN lots l "
+                             "ON l.id = m.lot_id WHERE l.lot_code = 'A'").fetchall()
+    assert times == [("2026-11-03T08:15:00Z",)]
+    plain = write(tmp_path / "p.csv", HEADER + "\n" + rows(6, start=100))
+    assert not [n for n in import_file(lab, plain).notes if "different times" in n]
