@@ -73,6 +73,7 @@ from lotwatch.stats.windows import (  # noqa: F401  (re-exported)
     GroupSums,
     Window,
     bucket_cube,
+    day_runs_cube,
     window_plan,
     window_span,
     window_sums,

@@ -10,7 +10,7 @@ from __future__ import annotations
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from datetime import date, timedelta
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Protocol
 
 import numpy as np
 from lotwatch.stats.review_settings import ReviewSettings
@@ -108,62 +108,106 @@ class BucketCube:
     cum_lots: np.ndarray | None = None  # lots per day, cumulated (None: the frame had no lots)
 
 
+class DayRuns(Protocol):
+    """Day sums in runs of one (characteristic, factor, level): ``keys[r]`` owns ``lengths[r]``
+    consecutive rows; ``day`` counts days since 1970-01-01; ``lots`` may be None (count values).
+    The store's ``day_sums`` read has this shape."""
+
+    keys: Sequence[tuple[str, str, str]]
+    lengths: np.ndarray
+    day: np.ndarray
+    n: np.ndarray
+    sum_d: np.ndarray
+    sum_d2: np.ndarray
+    lots: np.ndarray | None
+
+
+@dataclass(frozen=True)
+class _Runs:
+    keys: Sequence[tuple[str, str, str]]
+    lengths: np.ndarray
+    day: np.ndarray
+    n: np.ndarray
+    sum_d: np.ndarray
+    sum_d2: np.ndarray
+    lots: np.ndarray | None
+
+
 def bucket_cube(buckets: pl.DataFrame, comparisons: Sequence[Comparison], *, first_day: date,
                 last_day: date) -> BucketCube:
-    """Lay a bucket frame (characteristic, factor, level, day, n, sum_d, sum_d2) out as dense
-    day-wise cumulative sums for the given comparisons over [first_day, last_day].
-
-    The frame holds at most one row per characteristic, factor, level and day (the store's
-    primary key). Rows of other comparisons or outside the day range are ignored.
-    """
+    """Lay a bucket frame (characteristic, factor, level, day, n, sum_d, sum_d2[, lots]) out as
+    dense day-wise cumulative sums for the given comparisons over [first_day, last_day] (see
+    ``day_runs_cube``). Runs of equal (characteristic, factor, level) are found with one
+    ``rle_id``: one run per key when the frame is sorted (as the store returns it); correct,
+    only slower, when it is not."""
     import polars as pl
 
+    keys = ["characteristic", "factor", "level"]
+    b = buckets
+    run = b.select(pl.struct(keys).rle_id().alias("r"))["r"].to_numpy() if b.height else \
+        np.zeros(0, dtype=np.int64)
+    starts = np.flatnonzero(np.r_[True, run[1:] != run[:-1]]) if b.height else \
+        np.zeros(0, dtype=np.int64)
+    heads = b[starts, keys]
+    lengths = np.diff(np.r_[starts, b.height]).astype(np.int64)
+    day = b["day"].cast(pl.Int32).to_numpy().astype(np.int64)
+    col = {name: b[name].to_numpy() for name in ("n", "sum_d", "sum_d2")}
+    lots = b["lots"].to_numpy() if "lots" in b.columns else None
+    runs = _Runs([(str(c), str(f), str(lv)) for c, f, lv in heads.iter_rows()], lengths, day,
+                 col["n"], col["sum_d"], col["sum_d2"], lots)
+    return day_runs_cube(runs, comparisons, first_day=first_day, last_day=last_day)
+
+
+def day_runs_cube(runs: DayRuns, comparisons: Sequence[Comparison], *, first_day: date,
+                  last_day: date) -> BucketCube:
+    """Dense day-wise cumulative sums of the day sums ``runs`` for the given comparisons over
+    [first_day, last_day]: cum[c, g, t] = sum over days < first_day + t of group g.
+
+    The rows hold at most one day sum per characteristic, factor, level and day (the store's
+    primary key). Rows of other comparisons or outside the day range are ignored. Keys are
+    resolved once per run, so no string work is done per row.
+    """
     comps = list(comparisons)
     index = {(c.characteristic, c.factor): i for i, c in enumerate(comps)}
     ndays = (last_day - first_day).days + 1
-    b = buckets.filter((pl.col("day") >= first_day) & (pl.col("day") <= last_day))
-    # Runs of equal (characteristic, factor, level): one run per key when the frame is sorted
-    # (as the store returns it); correct, only slower, when it is not. Keys are resolved once
-    # per run, so no string work is done per row.
-    keys = ["characteristic", "factor", "level"]
-    run = b.select(pl.struct(keys).rle_id().alias("r"))["r"].to_numpy() if b.height else \
-        np.zeros(0, dtype=np.int64)
-    heads = b[np.flatnonzero(np.r_[True, run[1:] != run[:-1]]) if b.height else [], keys]
     level_sets: list[set[str]] = [set() for _ in comps]
     run_key = []
-    for ch, fa, lv in heads.iter_rows():
-        c = index.get((str(ch), str(fa)), -1)
+    for ch, fa, lv in runs.keys:
+        c = index.get((ch, fa), -1)
         if c >= 0:
-            level_sets[c].add(str(lv))
-        run_key.append((c, str(lv)))
+            level_sets[c].add(lv)
+        run_key.append((c, lv))
     levels = [sorted(x) for x in level_sets]
     lv_index = [{lv: g for g, lv in enumerate(x)} for x in levels]
     kmax = max([len(x) for x in levels] + [1])
     shape = (len(comps), kmax, ndays + 1)
+    run_c = np.array([c for c, _ in run_key], dtype=np.int64)
+    run_g = np.array([lv_index[c][lv] if c >= 0 else -1 for c, lv in run_key], dtype=np.int64)
+    ci = np.repeat(run_c, runs.lengths)
+    gi = np.repeat(run_g, runs.lengths)
+    t = runs.day - _epoch_day(first_day) + 1
+    keep = np.flatnonzero((ci >= 0) & (t >= 1) & (t <= ndays))
+    ci, gi, t = ci[keep], gi[keep], t[keep]
+    s2 = runs.sum_d2[keep]
     cum_n = np.zeros(shape, dtype=np.int64)
     # Each day sum fits SQLite's 64-bit integers, but a running total over many days need not,
-    # and int64 would wrap around without a word: such a frame is summed in float64 instead
-    # (relative error about 1e-16 per sum, no wrap-around).
-    wide = b.height > 0 and int(b["sum_d2"].cast(pl.Int128).sum()) > _INT64_MAX // 2
+    # and int64 would wrap around without a word: such sums are added in float64 instead
+    # (relative error about 1e-16 per sum, no wrap-around). The test is on a float64 total,
+    # whose rounding is far below the margin of 2^62 under 2^63.
+    wide = s2.size > 0 and float(s2.sum(dtype=np.float64)) > _INT64_MAX // 2
     sums_type = np.float64 if wide else np.int64
     cum_s1 = np.zeros(shape, dtype=sums_type)
     cum_s2 = np.zeros(shape, dtype=sums_type)
     # a lot's values of one characteristic share one day, so lots add up over days exactly
-    cum_lots = np.zeros(shape, dtype=np.int64) if "lots" in b.columns else None
-    if b.height:
-        run_c = np.array([c for c, _ in run_key], dtype=np.int64)
-        run_g = np.array([lv_index[c][lv] if c >= 0 else -1 for c, lv in run_key], dtype=np.int64)
-        ci, gi = run_c[run], run_g[run]
-        keep = ci >= 0
-        t = (b["day"].cast(pl.Int32).to_numpy() - _epoch_day(first_day)) + 1
-        ci, gi, t = ci[keep], gi[keep], t[keep]
-        # one bucket per (comparison, level, day), as the store's primary key guarantees:
+    cum_lots = np.zeros(shape, dtype=np.int64) if runs.lots is not None else None
+    if keep.size:
+        # one day sum per (comparison, level, day), as the store's primary key guarantees:
         # plain assignment, no accumulation needed
-        cum_n[ci, gi, t] = b["n"].to_numpy()[keep]
-        cum_s1[ci, gi, t] = b["sum_d"].to_numpy()[keep]
-        cum_s2[ci, gi, t] = b["sum_d2"].to_numpy()[keep]
-        if cum_lots is not None:
-            cum_lots[ci, gi, t] = b["lots"].to_numpy()[keep]
+        cum_n[ci, gi, t] = runs.n[keep]
+        cum_s1[ci, gi, t] = runs.sum_d[keep]
+        cum_s2[ci, gi, t] = s2
+        if cum_lots is not None and runs.lots is not None:
+            cum_lots[ci, gi, t] = runs.lots[keep]
             np.cumsum(cum_lots, axis=2, out=cum_lots)
         np.cumsum(cum_n, axis=2, out=cum_n)
         np.cumsum(cum_s1, axis=2, out=cum_s1)

@@ -38,6 +38,7 @@ from lotwatch.store.transaction import DEFAULT_TIMEOUT, Session, translate_error
 
 if TYPE_CHECKING:
     import polars as pl
+    from lotwatch.store.day_sums import DaySums
 
 __all__ = ["DEFAULT_TIMEOUT", "Store", "login_name", "translate_error"]
 
@@ -282,6 +283,14 @@ class Store(Session):
         with self.mapped():
             return bucket_frame(self, characteristic=characteristic, factor=factor,
                                 since=since, until=until)
+
+    def day_sums(self, *, characteristic: str | None = None, factor: str | None = None,
+                 since: date | None = None, until: date | None = None) -> DaySums:
+        from lotwatch.store.queries import day_sums
+
+        with self.mapped():
+            return day_sums(self, characteristic=characteristic, factor=factor, since=since,
+                            until=until)
 
     def values_frame(self, characteristic: str, factor: str, *, since: date | None = None,
                      until: date | None = None, last_n: int | None = None) -> pl.DataFrame:

@@ -6,16 +6,14 @@ Day bounds (``since``/``until``) are inclusive plant dates, compared with each m
 
 from __future__ import annotations
 
-from collections.abc import Iterator
-from contextlib import contextmanager
 from datetime import UTC, date, datetime, time, timedelta
-from itertools import chain
 from typing import TYPE_CHECKING
 from zoneinfo import ZoneInfo
 
 import numpy as np
 import polars as pl
-from lotwatch.store.errors import BadInput, NotFound, RowProblem, StoreCorrupt
+from lotwatch.store.day_sums import DaySums, read_day_sums
+from lotwatch.store.errors import BadInput, NotFound, RowProblem
 from lotwatch.store.plantzone import read_zone
 from lotwatch.store.timeutil import BadTime, date_text
 from lotwatch.store.values import scale_of
@@ -53,17 +51,10 @@ def _ts(col: str) -> pl.Expr:
     return pl.col(col).str.to_datetime(_TS, time_zone="UTC", time_unit="us")
 
 
-def bucket_frame(store: Store, *, characteristic: str | None = None, factor: str | None = None,
-                 since: date | None = None, until: date | None = None) -> pl.DataFrame:
-    """Bucket rows: characteristic:str, factor:str, level:str, day:date, n, sum_d, sum_d2,
-    lots (i64), sorted by characteristic, factor, level, day. ``n`` counts values, ``lots``
-    distinct lots (they differ when lots carry replicates); ``day`` is the plant-local date.
-
-    Read as two queries in one read transaction, both in the table's primary-key order (no
-    sort): each characteristic x factor x level with its number of days, then the days' numbers
-    alone (the day as days since 1970). Integers only, so the bulk of the rows reaches numpy
-    without a Python string per cell (about four times quicker than one query of all columns).
-    """
+def day_sums(store: Store, *, characteristic: str | None = None, factor: str | None = None,
+             since: date | None = None, until: date | None = None) -> DaySums:
+    """The stored day sums in numpy arrays, in runs of characteristic x factor x level (see
+    ``store.day_sums``); one query, so one snapshot."""
     lo, hi = _bounds(since, until)
     where: list[str] = []
     params: list[object] = []
@@ -79,46 +70,36 @@ def bucket_frame(store: Store, *, characteristic: str | None = None, factor: str
     short = (lo is not None and hi is not None
              and (date.fromisoformat(hi) - date.fromisoformat(lo)).days <= _INDEXED_DAYS)
     _day_range("b.day" if short else "+b.day", lo, hi, where, params)
-    cond = " WHERE " + " AND ".join(where) if where else ""
-    key_order = "b.characteristic_id, b.factor, b.level"
-    keys_sql = ("SELECT c.name, b.factor, b.level, count(*) FROM buckets b "
-                "JOIN characteristics c ON c.id = b.characteristic_id" + cond
-                + f" GROUP BY {key_order} ORDER BY {key_order}")
-    # unixepoch of a midnight is a multiple of 86400, so the division is exact
-    days_sql = ("SELECT unixepoch(b.day) / 86400, b.n, b.sum_d, b.sum_d2, b.lots FROM buckets b"
-                + cond + f" ORDER BY {key_order}, b.day")
-    with _one_snapshot(store.conn):
-        keys = store.conn.execute(keys_sql, params).fetchall()
-        rows = store.conn.execute(days_sql, params)
-        try:
-            cells = np.fromiter(chain.from_iterable(rows), dtype=np.int64).reshape(-1, 5)
-        except TypeError:  # unixepoch gave NULL: a day that is not YYYY-MM-DD
-            raise StoreCorrupt(f"{store.path}: a day sum has a malformed day; run lotwatch "
-                               "check for details") from None
-    run = np.repeat(np.arange(len(keys)), [k[3] for k in keys])
-    names = [pl.Series(name, [k[i] for k in keys], dtype=pl.String)[run]
+    return read_day_sums(store, " AND ".join(where), params)
+
+
+def bucket_frame(store: Store, *, characteristic: str | None = None, factor: str | None = None,
+                 since: date | None = None, until: date | None = None) -> pl.DataFrame:
+    """Bucket rows: characteristic:str, factor:str, level:str, day:date, n, sum_d, sum_d2,
+    lots (i64), sorted by characteristic, factor, level, day. ``n`` counts values, ``lots``
+    distinct lots (they differ when lots carry replicates); ``day`` is the plant-local date.
+    Read by ``day_sums`` (the numbers never become Python objects)."""
+    sums = day_sums(store, characteristic=characteristic, factor=factor, since=since,
+                    until=until)
+    run = np.repeat(np.arange(len(sums.keys)), sums.lengths)
+    names = [pl.Series(name, [k[i] for k in sums.keys], dtype=pl.String)[run]
              for i, name in enumerate(("characteristic", "factor", "level"))]
     frame = pl.DataFrame([
-        *names, pl.Series("day", cells[:, 0].astype(np.int32)).cast(pl.Date),
-        *(pl.Series(name, cells[:, i + 1]) for i, name in enumerate(
-            ("n", "sum_d", "sum_d2", "lots")))])
-    by_id = sorted(store.characteristics(), key=lambda c: c.id)
-    if [c.name for c in by_id] != sorted(c.name for c in by_id):
-        frame = frame.sort("characteristic", "factor", "level", "day", maintain_order=True)
-    return frame
+        *names, pl.Series("day", sums.day.astype(np.int32)).cast(pl.Date),
+        *(pl.Series(name, getattr(sums, name)) for name in ("n", "sum_d", "sum_d2", "lots"))])
+    # group_concat's order inside a run is the scan's (primary key: by day), but SQL does not
+    # promise it, and characteristic ids need not follow their names: sort unless sorted
+    return frame if _sorted(sums) else frame.sort("characteristic", "factor", "level", "day",
+                                                  maintain_order=True)
 
 
-@contextmanager
-def _one_snapshot(conn) -> Iterator[None]:
-    """Run reads in one read transaction (unless one is open), so they see the same commit."""
-    if conn.in_transaction:
-        yield
-        return
-    conn.execute("BEGIN")
-    try:
-        yield
-    finally:
-        conn.execute("COMMIT")
+def _sorted(sums: DaySums) -> bool:
+    """Runs in name order and days rising inside each run."""
+    inside = np.ones(sums.rows, dtype=bool)
+    inside[np.cumsum(sums.lengths)[:-1]] = False  # the first row of each run but the first
+    inside[:1] = False
+    rising = bool(np.all(np.diff(sums.day)[inside[1:]] > 0)) if sums.rows > 1 else True
+    return rising and sums.keys == sorted(sums.keys)
 
 
 def _float_values(units: pl.Series, resolution: str, name: str) -> pl.Series:

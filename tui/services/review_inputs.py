@@ -4,7 +4,7 @@ statistics from the bucket sums (headless; shared by the review, the trend and t
 from __future__ import annotations
 
 import math
-from datetime import UTC, date, datetime
+from datetime import UTC, date, datetime, timedelta
 from typing import Any
 
 from lotwatch.stats import monitor as mon
@@ -90,13 +90,13 @@ def compute_windows(store, comps: list[mon.Comparison], windows: list[mon.Window
                     settings: ReviewSettings, *,
                     characteristic: str | None = None,
                     factor: str | None = None) -> mon.WindowStats:
-    """Window statistics for the comparisons over the windows, from the store's bucket sums."""
+    """Window statistics for the comparisons over the windows, from the store's day sums (read
+    once, straight into numpy arrays: ``store.day_sums``)."""
     first, last = mon.window_span(windows, settings)
-    buckets = store.bucket_frame(characteristic=characteristic, factor=factor, since=first,
-                                 until=last)
-    if first is None:
-        first = buckets["day"].min() if buckets.height else last
+    sums = store.day_sums(characteristic=characteristic, factor=factor, since=first, until=last)
+    if first is None:  # all history (last-N windows): from the first stored day
+        first = date(1970, 1, 1) + timedelta(days=int(sums.day.min())) if sums.rows else last
         first = min(first, last)
-    cube = mon.bucket_cube(buckets, comps, first_day=first, last_day=last)
-    sums = mon.window_sums(cube, windows, settings)
-    return mon.window_statistics(sums, min_n=settings.min_n, alpha=settings.alpha)
+    cube = mon.day_runs_cube(sums, comps, first_day=first, last_day=last)
+    window = mon.window_sums(cube, windows, settings)
+    return mon.window_statistics(window, min_n=settings.min_n, alpha=settings.alpha)
