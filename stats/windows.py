@@ -183,12 +183,17 @@ def day_runs_cube(runs: DayRuns, comparisons: Sequence[Comparison], *, first_day
     shape = (len(comps), kmax, ndays + 1)
     run_c = np.array([c for c, _ in run_key], dtype=np.int64)
     run_g = np.array([lv_index[c][lv] if c >= 0 else -1 for c, lv in run_key], dtype=np.int64)
-    ci = np.repeat(run_c, runs.lengths)
-    gi = np.repeat(run_g, runs.lengths)
-    t = runs.day - _epoch_day(first_day) + 1
-    keep = np.flatnonzero((ci >= 0) & (t >= 1) & (t <= ndays))
-    ci, gi, t = ci[keep], gi[keep], t[keep]
-    s2 = runs.sum_d2[keep]
+    # flat index of each row into the (C, K, ndays + 1) cube: one repeat per run, then the day
+    base = np.where(run_c >= 0, (run_c * kmax + run_g) * (ndays + 1), -1)
+    t = runs.day - (_epoch_day(first_day) - 1)
+    flat = np.repeat(base, runs.lengths) + t
+    inside = np.repeat(run_c >= 0, runs.lengths) & (t >= 1) & (t <= ndays)
+    keep = None if inside.all() else np.flatnonzero(inside)
+
+    def kept(x: np.ndarray) -> np.ndarray:
+        return x if keep is None else x[keep]
+
+    flat, s2 = kept(flat), kept(runs.sum_d2)
     cum_n = np.zeros(shape, dtype=np.int64)
     # Each day sum fits SQLite's 64-bit integers, but a running total over many days need not,
     # and int64 would wrap around without a word: such sums are added in float64 instead
@@ -200,18 +205,13 @@ def day_runs_cube(runs: DayRuns, comparisons: Sequence[Comparison], *, first_day
     cum_s2 = np.zeros(shape, dtype=sums_type)
     # a lot's values of one characteristic share one day, so lots add up over days exactly
     cum_lots = np.zeros(shape, dtype=np.int64) if runs.lots is not None else None
-    if keep.size:
-        # one day sum per (comparison, level, day), as the store's primary key guarantees:
-        # plain assignment, no accumulation needed
-        cum_n[ci, gi, t] = runs.n[keep]
-        cum_s1[ci, gi, t] = runs.sum_d[keep]
-        cum_s2[ci, gi, t] = s2
-        if cum_lots is not None and runs.lots is not None:
-            cum_lots[ci, gi, t] = runs.lots[keep]
-            np.cumsum(cum_lots, axis=2, out=cum_lots)
-        np.cumsum(cum_n, axis=2, out=cum_n)
-        np.cumsum(cum_s1, axis=2, out=cum_s1)
-        np.cumsum(cum_s2, axis=2, out=cum_s2)
+    # one day sum per (comparison, level, day), as the store's primary key guarantees: plain
+    # assignment, no accumulation needed
+    for cube, col in ((cum_n, runs.n), (cum_s1, runs.sum_d), (cum_s2, s2),
+                      (cum_lots, runs.lots)):
+        if cube is not None and col is not None and flat.size:
+            cube.reshape(-1)[flat] = kept(col) if col is not s2 else s2
+            np.cumsum(cube, axis=2, out=cube)
     return BucketCube(comps, levels, first_day, cum_n, cum_s1, cum_s2, cum_lots)
 
 
