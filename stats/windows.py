@@ -229,7 +229,6 @@ def window_sums(cube: BucketCube, windows: Sequence[Window], settings: ReviewSet
     cl = cube.cum_lots if cube.cum_lots is not None else cube.cum_n
     ndays = cube.cum_n.shape[2] - 1
     C, K = cube.cum_n.shape[:2]
-    W = len(windows)
     # exclusive end index into the cumulative sums, clipped to the cube (0: window before data)
     ends = np.clip(np.array([(w.end - cube.day0).days + 1 for w in windows]), 0, ndays)
     if settings.window != "last_n":
@@ -241,20 +240,48 @@ def window_sums(cube: BucketCube, windows: Sequence[Window], settings: ReviewSet
         lots = np.moveaxis(cl[:, :, ends] - cl[:, :, starts], 2, 0)
         return GroupSums(list(windows), cube.comparisons, cube.levels, np.moveaxis(n, 2, 0),
                          np.moveaxis(s1, 2, 0), np.moveaxis(s2, 2, 0), lots=lots)
-    start_idx = np.zeros((W, C, K), dtype=np.int64)
-    for c in range(C):
-        for g in range(K):
-            cn = cl[c, g]  # the last N lots, counted as lots
-            target = cn[ends] - settings.last_n
-            s = np.searchsorted(cn, target, side="right") - 1
-            start_idx[:, c, g] = np.clip(s, 0, None)
+    start_idx = _last_n_starts(cl, ends, settings.last_n)
     ci = np.arange(C)[None, :, None]
     gi = np.arange(K)[None, None, :]
     ei = ends[:, None, None]
     n = cube.cum_n[ci, gi, ei] - cube.cum_n[ci, gi, start_idx]
     s1 = cube.cum_s1[ci, gi, ei] - cube.cum_s1[ci, gi, start_idx]
     s2 = cube.cum_s2[ci, gi, ei] - cube.cum_s2[ci, gi, start_idx]
-    first = [[[cube.day0 + timedelta(days=int(start_idx[w, c, g])) if n[w, c, g] else None
-               for g in range(K)] for c in range(C)] for w in range(W)]
+    # each group's first day as datetime.date (None where the group has no data): numpy's
+    # day-unit datetimes convert to dates in C, not in a W x C x K Python loop
+    firsts = (np.datetime64(cube.day0, "D") + start_idx).astype(object)
+    firsts[n == 0] = None
+    first = firsts.tolist()
     lots = cl[ci, gi, ei] - cl[ci, gi, start_idx]
     return GroupSums(list(windows), cube.comparisons, cube.levels, n, s1, s2, first, lots)
+
+
+def _last_n_starts(cl: np.ndarray, ends: np.ndarray, last_n: int) -> np.ndarray:
+    """(W, C, K) index into the cumulative lots ``cl`` (C, K, days + 1) where each group's last
+    ``last_n`` lots up to each end begin (see ``_last_n_starts_each``), with one
+    ``searchsorted`` for all groups: every group's row is shifted by its own multiple of a span
+    larger than any row's values, so the rows laid end to end stay sorted and no target reaches
+    another row's values."""
+    C, K, D = cl.shape
+    rows = C * K
+    span = int(cl[:, :, -1].max(initial=0)) + last_n + 1  # a row's values lie in [0, span - last_n)
+    if rows * span >= 2**62:  # (beyond any real store) one search per group
+        return _last_n_starts_each(cl, ends, last_n)
+    shift = (np.arange(rows, dtype=np.int64) * span).reshape(C, K, 1)
+    laid = (cl + shift).reshape(-1)
+    target = cl[:, :, ends] - last_n + shift  # (C, K, W)
+    pos = np.searchsorted(laid, target.reshape(-1), side="right").reshape(C, K, len(ends))
+    s = pos - np.arange(rows, dtype=np.int64).reshape(C, K, 1) * D - 1
+    return np.moveaxis(np.clip(s, 0, None), 2, 0)
+
+
+def _last_n_starts_each(cl: np.ndarray, ends: np.ndarray, last_n: int) -> np.ndarray:
+    """The same, one group at a time: the largest t with cl[c, g, t] <= cl[c, g, end] - last_n,
+    0 when the group holds fewer than ``last_n`` lots by then."""
+    C, K, _ = cl.shape
+    out = np.empty((len(ends), C, K), dtype=np.int64)
+    for c in range(C):
+        for g in range(K):
+            s = np.searchsorted(cl[c, g], cl[c, g, ends] - last_n, side="right") - 1
+            out[:, c, g] = np.clip(s, 0, None)
+    return out

@@ -170,3 +170,19 @@ def test_an_empty_read(tmp_path) -> None:
     store = Store.create(tmp_path / "s.sqlite")
     got = store.day_sums()
     assert got.rows == 0 and got.keys == [] and got.n.dtype == np.int64
+
+
+def test_last_n_starts_at_once_equal_one_group_at_a_time() -> None:
+    """The single laid-out search gives each group's own search (the definition), for groups
+    that never reach N lots, empty groups, flat runs of days and ends at the cube's edges."""
+    from lotwatch.stats.windows import _last_n_starts, _last_n_starts_each
+
+    rng = np.random.default_rng(7)
+    for _ in range(50):
+        C, K, D = int(rng.integers(1, 5)), int(rng.integers(1, 6)), int(rng.integers(2, 40))
+        per_day = rng.integers(0, 4, (C, K, D)) * (rng.random((C, K, D)) < 0.6)
+        cl = np.concatenate([np.zeros((C, K, 1), dtype=np.int64), per_day.cumsum(axis=2)], axis=2)
+        ends = np.sort(rng.integers(0, D + 1, int(rng.integers(1, 8))))
+        last_n = int(rng.integers(1, 25))
+        assert np.array_equal(_last_n_starts(cl, ends, last_n),
+                              _last_n_starts_each(cl, ends, last_n))
