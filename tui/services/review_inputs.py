@@ -21,8 +21,9 @@ def _f(x: Any) -> float | None:
 
 def review_settings(store, *, fdr_method: str | None = None, fdr_level: float | None = None,
                     window: str | None = None) -> ReviewSettings:
-    """The store's review settings, with per-run overrides; ``ValueError`` names a bad setting."""
-    s = ReviewSettings.from_lookup(store.get_setting)
+    """The store's review settings (read in one query), with per-run overrides; ``ValueError``
+    names a bad setting."""
+    s = ReviewSettings.from_lookup(store.settings().get)
     changes: dict[str, Any] = {}
     if window is not None:
         changes["window"] = window
