@@ -305,8 +305,13 @@ def contrasts(n: np.ndarray, s1: np.ndarray, s2: np.ndarray, comp: np.ndarray,
         delta = np.where(np.isnan(gate), settings.no_limits_sigmas * pooled_sd, gate)
         z = c / np.sqrt(v0)
         start_phi = max(first - settings.clear_days, 0)
-        # ln of a one-sided detector's in-control run length (see ``cusum.thresholds``)
-        log_arl = np.log(settings.years_per_false_alert * 3.0 * groups * 365.0)
+        # reporting days per year over the trailing days the group has existed
+        first_seen = np.where((n > 0).any(axis=1), np.argmax(n > 0, axis=1), T)
+        span = np.clip(np.arange(T)[None, :] - first_seen[:, None], 1, L)
+        days_per_year = 365.0 * t_days / span
+        # ln of a one-sided detector's in-control run length (as ``cusum.thresholds``)
+        log_arl = np.log(np.maximum(settings.years_per_false_alert * 3.0 * groups
+                                    * days_per_year, 1.0))
 
         def shape(zz: np.ndarray, ok: np.ndarray):
             """(skewness, phi, ok where phi is known) of one kind's standardised contrasts.
@@ -343,10 +348,6 @@ def contrasts(n: np.ndarray, s1: np.ndarray, s2: np.ndarray, comp: np.ndarray,
         nubar_r = np.maximum(t_rdf / t_rdays, 2.0)
         var_u_typ = trigamma(nubar_g / 2) + trigamma(nubar_r / 2)
         a_typ_s = 2.0 * np.log(settings.spread_ratio) / np.sqrt(phi_s * var_u_typ)
-        # reporting days per year over the trailing days the group has existed
-        first_seen = np.where((n > 0).any(axis=1), np.argmax(n > 0, axis=1), T)
-        span = np.clip(np.arange(T)[None, :] - first_seen[:, None], 1, L)
-        days_per_year = 365.0 * t_days / span
     return Contrasts(c=c, v=v0 * phi_m, mean_ok=mean_ok, delta=delta, u=u,
                      var_u=var_u0 * phi_s, spread_ok=spread_ok, phi_m=phi_m, phi_s=phi_s,
                      a_typ_m=a_typ_m, a_typ_s=a_typ_s, days_per_year=days_per_year,
