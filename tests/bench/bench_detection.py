@@ -21,7 +21,10 @@ group per year. It restarts at zero after an alarm.
 
 Printed per scenario: median and p90 detection delay in days (first alert in the changed
 comparison on or after the change day), % detected within 6 weeks, % of detections naming the
-right group and kind, median |onset - change day|, and the ratio of medians to the baseline.
+right group and kind, median |onset - change day|, and the ratio of medians to the baseline;
+then the days of data the median detection used against the information bound
+(``information_bound``), for lotwatch's group-vs-rest contrast and for a detector told the
+in-control mean: no procedure at this false-alert rate is faster on average.
 Null data (no change; normal, lognormal with sigma of the log 0.5, and lots AR(1) with
 correlation 0.3 within a line) give false alerts per comparison-year (alerts opened or reopened
 after the warm-up, restarting after each clears), from at least 1,000 comparison-years in full
@@ -201,6 +204,33 @@ def baseline_alarms(plant: Plant, lots_list: list[tuple], factor: str) -> list[l
     return alarms
 
 
+def information_bound(sc: Scenario) -> tuple[float, float] | None:
+    """Days of data a detector needs on average, at least, to find a step of this scenario at
+    lotwatch's run length: ``ln(gamma) / KL`` per day (the asymptotic lower bound on the
+    detection delay of any procedure with in-control run length gamma; Lorden 1971, Lai 1998),
+    gamma = 500 comparison-years x 3 K detectors x 365 days. KL is the Kullback-Leibler
+    information one day gives: (lotwatch) the day's group-vs-rest contrast, N(delta,
+    1/m + 1/m_rest) against N(0, ...); (oracle) the group's m lots against a known in-control
+    mean and SD, m delta^2 / 2 -- what the baseline is given. For spread, the day's within-day
+    variance with m - 1 degrees of freedom against the rest's (known) one:
+    (m - 1)/2 (r - 1 - ln r), r the variance ratio. None for ramps and plant-wide steps.
+    Asymptotic and for a detector starting from zero: a CUSUM already above zero when the
+    change comes (or a small plant's few lots a day) can come in under it."""
+    if sc.ramp_days or sc.plant_wide:
+        return None
+    k = sc.plant.lines if sc.factor == "line" else sc.plant.shifts
+    m = sc.plant.lots * sc.plant.lines / k
+    log_gamma = float(np.log(BUDGET * 3 * k * 365.0))
+    if sc.kind == "mean":
+        design = sc.shift ** 2 / (2.0 * (1.0 / m + 1.0 / (m * (k - 1))))
+        oracle = m * sc.shift ** 2 / 2.0
+    else:
+        r = sc.sd ** 2
+        design = (m - 1) / 2.0 * (r - 1.0 - np.log(r))
+        oracle = m / 2.0 * (r - 1.0 - np.log(r))
+    return log_gamma / design, log_gamma / oracle
+
+
 def q(values: list[float], p: float) -> float:
     return float(np.percentile(values, p)) if values else float("nan")
 
@@ -352,6 +382,11 @@ def main() -> None:
                   f"{100 * r['right'] / max(det, 1):5.0f}% {q(r['onset'], 50):6.1f} "
                   f"{bmed:8.1f} {med / bmed if bmed else float('nan'):6.2f}"
                   f"   ({det}/{r['n']} detected; advance {r['seconds']:.1f} s)")
+            bound = information_bound(sc)
+            if bound:
+                print(f"{'':<34} days of data (delay + 1): median {med + 1:.1f}; asymptotic "
+                      f"information bound {bound[0]:.1f} for a group-vs-rest contrast, {bound[1]:.1f} "
+                      "for any detector told the in-control mean")
         plant = Plant(8, 3, 9)
         print(f"\nfalse alerts per comparison-year (budget {1 / BUDGET:.4f}):")
         for noise in () if args.no_null else ("normal", "lognormal", "ar1"):
