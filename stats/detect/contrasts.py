@@ -56,7 +56,7 @@ from dataclasses import dataclass
 
 import numpy as np
 from lotwatch.stats.detect.settings import DetectorSettings
-from lotwatch.stats.detect.skewness import contrast_skewness, spread_llr
+from lotwatch.stats.detect.skewness import contrast_skewness, neighbour_correlation, spread_llr
 from scipy import special
 
 MIN_DF = 10  # trailing degrees of freedom a group and its rest need before they are watched
@@ -145,8 +145,29 @@ CHANGE_CORR = 1.5  # variance inflation of a mean of squared consecutive differe
 # correlation of the squares of two changes sharing a day is 1/4 for iid normal z: 1 + 2 x 1/4)
 
 
+def _trimmed_changes(z: np.ndarray, valid: np.ndarray, days: int, first: int, lag: int
+                     ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Per slot and day t >= first, over the trailing ``days`` days: the sum of the kept
+    squared changes ``lag`` days with data apart (the largest TRIM share, at least CHANGE_LAG,
+    left out), what that sum would be for phi = 1, the number kept, and whether enough were
+    seen."""
+    diffs = _successive(z, valid, lambda a, b, *_: (b - a) ** 2, lag=lag)
+    S, T = z.shape
+    padded = np.full((S, T + days), np.nan)
+    padded[:, days:] = diffs
+    win = np.lib.stride_tricks.sliding_window_view(padded[:, first:T + days - 1], days, axis=1)
+    ordered = np.sort(win, axis=2)  # NaN last
+    count = np.sum(np.isfinite(win), axis=2)
+    keep = np.maximum(np.minimum(np.floor((1.0 - TRIM) * count), count - CHANGE_LAG), 0.0)
+    used = np.arange(days)[None, None, :] < keep[:, :, None]
+    num = np.where(used, ordered, 0.0).sum(axis=2)
+    # what the kept changes' mean square would be for phi = 1: 2 E[X^2 | X below the cut]
+    expect = 2.0 * keep * trimmed_second_moment(keep / np.maximum(count, 1.0))
+    return num, expect, keep, count >= MIN_CONTRAST_DAYS - CHANGE_LAG
+
+
 def _dispersion(z: np.ndarray, valid: np.ndarray, days: int, first: int, comp: np.ndarray,
-                log_arl: np.ndarray, floor: float) -> np.ndarray:
+                log_arl: np.ndarray, floor: float, rho: np.ndarray) -> np.ndarray:
     """phi for each slot and day t >= first (see the module docstring); NaN (not watched yet)
     with fewer than MIN_CONTRAST_DAYS days of the slot's own.
 
@@ -158,23 +179,15 @@ def _dispersion(z: np.ndarray, valid: np.ndarray, days: int, first: int, comp: n
     ``exp(-L phi / phi_hat)`` for a chart of in-control run length ``e^L``, becomes on average
     ``exp(L^2 cv^2 / 2)`` times likelier; scaling phi by ``1 + L cv^2 / 2`` restores it
     (first order). ``cv^2 = 2 x 1.5 / kept changes`` (chi-square with 1 df per change, the
-    overlap of consecutive changes counted). The result is kept within [floor, PHI_MAX]."""
-    diffs = _successive(z, valid, lambda a, b, *_: (b - a) ** 2, lag=CHANGE_LAG)
+    overlap of consecutive changes counted). Last, it is divided by ``(1 - rho)^2`` for the
+    correlation ``rho`` of neighbouring days (``neighbour_correlation``): for an AR(1) the
+    long-run variance is ``var (1 + rho) / (1 - rho)`` and changes two days apart measure
+    ``var (1 - rho^2)``. The result is kept within [floor, PHI_MAX]."""
     S, T = z.shape
     phi = np.ones((S, T))
     if first >= T:
         return phi
-    padded = np.full((S, T + days), np.nan)
-    padded[:, days:] = diffs
-    win = np.lib.stride_tricks.sliding_window_view(padded[:, first:T + days - 1], days, axis=1)
-    ordered = np.sort(win, axis=2)  # NaN last
-    count = np.sum(np.isfinite(win), axis=2)
-    keep = np.maximum(np.minimum(np.floor((1.0 - TRIM) * count), count - CHANGE_LAG), 0.0)
-    used = np.arange(days)[None, None, :] < keep[:, :, None]
-    num = np.where(used, ordered, 0.0).sum(axis=2)
-    ok = count >= MIN_CONTRAST_DAYS - CHANGE_LAG
-    # what the kept changes' mean square would be for phi = 1: 2 E[X^2 | X below the cut]
-    expect = 2.0 * keep * trimmed_second_moment(keep / np.maximum(count, 1.0))
+    num, expect, keep, ok = _trimmed_changes(z, valid, days, first, CHANGE_LAG)
     C = int(comp.max()) + 1
     pooled_num = np.zeros((C, num.shape[1]))
     pooled_expect = np.zeros((C, num.shape[1]))
@@ -191,7 +204,9 @@ def _dispersion(z: np.ndarray, valid: np.ndarray, days: int, first: int, comp: n
         eff = (pooled_keep * np.maximum(members - 1.0, 1.0)[:, None] / members[:, None])[comp]
         cv2 = 2.0 * CHANGE_CORR / eff
         pool = pool * (1.0 + log_arl[:, first:] * cv2 / 2.0)
-        est = np.fmax(pool, own_low)
+        # neighbouring days correlated (``neighbour_correlation``): the long-run variance a
+        # CUSUM feels is 1 / (1 - rho)^2 times what changes two days apart measure (AR(1))
+        est = np.fmax(pool, own_low) / (1.0 - rho[:, first:]) ** 2
     phi[:, first:] = np.where(ok, np.clip(np.nan_to_num(est, nan=1.0), floor, PHI_MAX), np.nan)
     return phi
 
@@ -319,8 +334,10 @@ def contrasts(n: np.ndarray, s1: np.ndarray, s2: np.ndarray, comp: np.ndarray,
             same in a catch-up and day by day, as the history read before the first day
             covers its window."""
             sk = contrast_skewness(zz, ok, settings.dispersion_days, settings.clear_days, comp)
+            rho = neighbour_correlation(zz, ok, settings.dispersion_days, settings.clear_days,
+                                        comp)
             phi = _dispersion(zz, ok, settings.dispersion_days, start_phi, comp, log_arl,
-                              PHI_FLOOR)
+                              PHI_FLOOR, rho)
             return sk, np.nan_to_num(phi, nan=1.0), ok & np.isfinite(phi)
 
         skew_m, phi_m, mean_ok = shape(z, mean_ok)

@@ -1,6 +1,7 @@
 """The shape of the day contrasts beyond their variance (pure numpy): the skewness of a
-comparison's standardised mean contrasts, for the thresholds, and the exact likelihood ratio of
-a day's variance ratio, for the spread detector."""
+comparison's standardised mean contrasts, for the thresholds, the correlation of neighbouring
+days, for the dispersion, and the exact likelihood ratio of a day's variance ratio, for the
+spread detector."""
 
 from __future__ import annotations
 
@@ -56,6 +57,56 @@ def contrast_skewness(z: np.ndarray, valid: np.ndarray, days: int, lag: int, com
     upper = np.where(ok, np.maximum(g - SKEW_SHRINK * se, 0.0), 0.0)[comp]
     lower = np.where(ok, np.maximum(-g - SKEW_SHRINK * se, 0.0), 0.0)[comp]
     return upper, lower
+
+
+RHO_MAX = 0.8  # the largest correlation of neighbouring days allowed for (a factor of 25)
+
+
+def neighbour_correlation(z: np.ndarray, valid: np.ndarray, days: int, lag: int,
+                          comp: np.ndarray) -> np.ndarray:
+    """The correlation of a comparison's standardised contrasts on neighbouring days with data,
+    per slot and day, for the dispersion (``contrasts._dispersion``): from the same days as
+    ``contrast_skewness`` (the most recent ``lag`` left out, so a change being looked for does
+    not feed it), each slot centred on its own mean::
+
+        r = sum_s sum (z_t - zbar_s)(z_prev - zbar_s) / sum_s sum (z_t - zbar_s)^2
+
+    pooled over the comparison, shrunk toward zero by one standard error ``1 / sqrt(N_eff)``
+    (``N_eff`` as for the skewness), and kept within [0, RHO_MAX]: only a positive correlation
+    makes a CUSUM's in-control run shorter. 0 with fewer than 60 pooled days."""
+    S, T = z.shape
+    prev = np.full((S, T), np.nan)
+    for s in range(S):
+        idx = np.flatnonzero(valid[s])
+        prev[s, idx[1:]] = z[s, idx[:-1]]
+    pair = valid & np.isfinite(prev)
+    y = np.where(valid, z, 0.0)
+    yp = np.where(pair, prev, 0.0)
+    yc = np.where(pair, y, 0.0)
+    w = valid.astype(np.float64)
+
+    def window(x: np.ndarray) -> np.ndarray:
+        cs = np.zeros((S, T + 1))
+        np.cumsum(x, axis=1, out=cs[:, 1:])
+        t = np.arange(T)
+        return cs[:, np.clip(t - lag, 0, T)] - cs[:, np.clip(t - lag - days, 0, T)]
+
+    cnt, s1, s2 = window(w), window(y), window(y * y)
+    npair, sxy, sx, sy = window(pair.astype(np.float64)), window(yc * yp), window(yc), window(yp)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        mean = s1 / cnt
+        m2 = np.where(cnt > 2, s2 - cnt * mean ** 2, 0.0)
+        c1 = np.where(npair > 2, sxy - mean * (sx + sy) + npair * mean ** 2, 0.0)
+    C = int(comp.max()) + 1
+    tot = np.zeros((3, C, T))
+    for i, x in enumerate((np.where(cnt > 2, cnt, 0.0), m2, c1)):
+        np.add.at(tot[i], comp, x)
+    members = np.bincount(comp, minlength=C).astype(np.float64)[:, None]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        r = tot[2] / tot[1]
+        se = 1.0 / np.sqrt(tot[0] * np.maximum(members - 1.0, 1.0) / members)
+    ok = (tot[0] >= 60) & np.isfinite(r)
+    return np.where(ok, np.clip(r - se, 0.0, RHO_MAX), 0.0)[comp]
 
 
 def spread_llr(ratio: np.ndarray, nu_g: np.ndarray, nu_r: np.ndarray, rho: float) -> np.ndarray:

@@ -65,6 +65,7 @@ class Plant:
     lines: int
     shifts: int
     lots: float  # lots per line per day (Poisson)
+    fixed: bool = False  # exactly ``lots`` lots per line every day instead
 
 
 @dataclass
@@ -83,7 +84,8 @@ class Scenario:
 def simulate(rng, plant: Plant, sc: Scenario | None, *, noise: str = "normal",
              days: int = DAYS):
     """Lots of one plant: arrays day, line, shift, value (sigma units), and the changed group."""
-    counts = rng.poisson(plant.lots, size=(days, plant.lines))
+    counts = (np.full((days, plant.lines), int(plant.lots)) if plant.fixed
+              else rng.poisson(plant.lots, size=(days, plant.lines)))
     day = np.repeat(np.repeat(np.arange(days), plant.lines), counts.ravel())
     line = np.repeat(np.tile(np.arange(plant.lines), days), counts.ravel())
     shift = rng.integers(0, plant.shifts, size=day.size)

@@ -9,7 +9,8 @@ import numpy as np
 import pytest
 from lotwatch.stats.detect import arl, cusum
 from lotwatch.stats.detect import contrasts as dcon
-from lotwatch.stats.detect.skewness import contrast_skewness
+from lotwatch.stats.detect.settings import DetectorSettings
+from lotwatch.stats.detect.skewness import contrast_skewness, neighbour_correlation
 from scipy import stats
 
 
@@ -92,7 +93,7 @@ def test_dispersion_is_pooled_over_the_comparison():
     z = rng.standard_normal((S, T)) * sd
     valid = np.ones((S, T), dtype=bool)
     log_arl = np.full((S, T), np.log(1e6))
-    phi = dcon._dispersion(z, valid, days, 0, comp, log_arl, 1.0)
+    phi = dcon._dispersion(z, valid, days, 0, comp, log_arl, 1.0, np.zeros((S, T)))
     others = np.delete(phi[:, -1], 5)
     # the pooled mean square of all eight: (7 x 2 + 5) / 8 = 2.375, times 1 + L cv^2 / 2
     assert others == pytest.approx(2.375 * 1.03, rel=0.2)
@@ -100,20 +101,63 @@ def test_dispersion_is_pooled_over_the_comparison():
     assert phi[5, -1] > 3.0
 
 
+def _ar1(rng, S: int, T: int, rho: float, var: float) -> np.ndarray:
+    """S series of an AR(1) with coefficient rho and stationary variance var."""
+    e = rng.standard_normal((S, T)) * np.sqrt(var * (1 - rho ** 2))
+    z = np.empty((S, T))
+    z[:, 0] = rng.standard_normal(S) * np.sqrt(var)
+    for t in range(1, T):
+        z[:, t] = rho * z[:, t - 1] + e[:, t]
+    return z
+
+
 def test_dispersion_sees_correlation_between_neighbouring_days():
-    """Contrasts correlated 0.3 from one day to the next (variance 2): changes between
-    neighbouring days would see 2 (1 - 0.3) = 1.4; changes two days apart see 2 (1 - 0.09)."""
+    """Contrasts correlated 0.3 from one day to the next (variance 2): changes two days apart
+    see 2 (1 - 0.09); with the neighbours' correlation the estimate reaches the long-run
+    variance a CUSUM feels, 2 (1 + 0.3) / (1 - 0.3) = 3.71 (an AR(1)'s spectrum at zero;
+    Box & Jenkins), less the correlation's shrinkage by one standard error."""
     rng = np.random.default_rng(3)
     S, T, days = 8, 400, 84
-    e = rng.standard_normal((S, T)) * np.sqrt(2.0 * (1 - 0.09))
-    z = np.empty((S, T))
-    z[:, 0] = rng.standard_normal(S) * np.sqrt(2.0)
-    for t in range(1, T):
-        z[:, t] = 0.3 * z[:, t - 1] + e[:, t]
+    z = _ar1(rng, S, T, 0.3, 2.0)
     valid = np.ones((S, T), dtype=bool)
-    phi = dcon._dispersion(z, valid, days, 0, np.zeros(S, dtype=np.int64),
-                           np.full((S, T), np.log(1e6)), 1.0)
-    assert np.median(phi[:, 200:]) > 1.7
+    comp = np.zeros(S, dtype=np.int64)
+    rho = neighbour_correlation(z, valid, days, 14, comp)
+    phi = dcon._dispersion(z, valid, days, 0, comp, np.full((S, T), np.log(1e6)), 1.0, rho)
+    assert 2.9 < np.median(phi[:, 200:]) < 4.5
+    flat = dcon._dispersion(z, valid, days, 0, comp, np.full((S, T), np.log(1e6)), 1.0,
+                            np.zeros((S, T)))
+    assert np.median(flat[:, 200:]) == pytest.approx(2.0 * (1 - 0.09), rel=0.2)
+
+
+@pytest.mark.parametrize("rho", [0.0, 0.3, 0.6])
+def test_neighbour_correlation_estimates_an_ar1s_coefficient(rho):
+    """The lag-one autocorrelation of an AR(1) is its coefficient (Box & Jenkins); the pooled
+    estimate is shrunk by one standard error (about 0.04 here) and never negative."""
+    rng = np.random.default_rng(8)
+    S, T = 8, 300
+    z = _ar1(rng, S, T, rho, 1.0) + rng.normal(0.0, 3.0, (S, 1))  # each slot its own level
+    r = neighbour_correlation(z, np.ones((S, T), dtype=bool), 84, 14, np.zeros(S, np.int64))
+    assert np.all(r >= 0.0)
+    assert np.median(r[:, 150:]) == pytest.approx(max(rho - 0.04, 0.0), abs=0.08)
+    assert np.all(r[:, :22] == 0.0)  # fewer than 60 pooled days (8 slots x (t - 14 days))
+
+
+def test_one_lot_a_day_correlated_lots_are_standardised_to_their_long_run_variance():
+    """Six lines with one lot a day each, lots AR(1) 0.3 from day to day: the standardised
+    contrasts (phi included) have a long-run variance near 1 (sums over 10 days / 10), which is
+    what keeps a CUSUM's false alerts at its budget; without the neighbours' correlation it
+    was about 1.7."""
+    rng = np.random.default_rng(12)
+    S, T = 6, 500
+    lots = _ar1(rng, S, T, 0.3, 1.0)
+    units = np.rint(lots / 0.01)
+    n = np.ones((S, T))
+    comp = np.zeros(S, dtype=np.int64)
+    con = dcon.contrasts(n, units, units ** 2, comp, np.array([100.0]), np.zeros(1, bool),
+                         DetectorSettings(), 0)
+    z = (con.c / np.sqrt(con.v))[:, 200:]
+    sums = z[:, :300].reshape(S, 30, 10).sum(axis=2)
+    assert 0.7 < sums.var() / 10 < 1.35
 
 
 @pytest.mark.parametrize(("nu_g", "nu_r"), [(3.0, 20.0), (8.0, 56.0), (20.0, 100.0)])
