@@ -11,7 +11,9 @@ characteristic x factor x level x plant day) and the detectors are advanced over
 history by ``tui.services.detection.advance_detectors`` -- lotwatch's own code path from the day
 sums on (the measurements table itself is skipped so that thousands of plant-years build in
 seconds). Limits are at +-4 sigma, so the default minimum shift (1/8 of the tolerance) is 1
-sigma. Days 0-119 are clean; a change starts on day 120; each plant runs 220 days.
+sigma. Days 0-119 are clean; a change starts on day 120; each plant runs 220 days. Most plants
+have 8 lines x 3 shifts and about 9 lots a line a day (Poisson); two others are smaller, one
+of them with exactly one lot a line a day (no within-day spread for its lines).
 
 Baseline: for every group (each line, each shift) a two-sided tabular CUSUM with k = 0.5 on the
 group's individual lots in time order, standardised by the group's mean and SD from the clean
@@ -26,9 +28,9 @@ then the days of data the median detection used against the information bound
 (``information_bound``), for lotwatch's group-vs-rest contrast and for a detector told the
 in-control mean: no procedure at this false-alert rate is faster on average.
 Null data (no change; normal, lognormal with sigma of the log 0.5, and lots AR(1) with
-correlation 0.3 within a line) give false alerts per comparison-year (alerts opened or reopened
-after the warm-up, restarting after each clears), from at least 1,000 comparison-years in full
-mode. Last: the time to bring every detector of a store current after one lot is logged, against
+correlation 0.3 within a line), in the large plant and in the one-lot-a-day plant, give false
+alerts per comparison-year (alerts opened or reopened after the warm-up, restarting after each
+clears), from at least 1,000 comparison-years in full mode. Last: the time to bring every detector of a store current after one lot is logged, against
 recomputing its detectors from the first day.
 """
 
@@ -288,7 +290,7 @@ def null_rate(noise: str, n_chars: int, rng, tmp: Path, plant: Plant
     """(lotwatch false alerts, baseline's per comparison-year, comparison-years)."""
     plants = [(plant, simulate(rng, plant, None, noise=noise, days=NULL_DAYS))
               for _ in range(n_chars)]
-    store = build_store(tmp / f"null_{noise}.sqlite", plants, None)
+    store = build_store(tmp / f"null_{noise}_{plant.lines}x{plant.lots}.sqlite", plants, None)
     advance_detectors(store)
     opened = store.conn.execute(
         "SELECT count(*) FROM alert_events WHERE event IN ('opened', 'reopened') AND "
@@ -354,7 +356,10 @@ SCENARIOS = [
     Scenario("small plant: line +1 sigma", Plant(3, 2, 4), "line", "mean", shift=1.0),
     Scenario("plant-wide step +2 sigma", Plant(8, 3, 9), "line", "mean", shift=2.0,
              plant_wide=True),
+    Scenario("one lot a day: line +1 sigma", Plant(6, 2, 1, fixed=True), "line", "mean",
+             shift=1.0),
 ]
+NULL_PLANTS = {"": Plant(8, 3, 9), "one lot a day: ": Plant(6, 2, 1, fixed=True)}
 
 
 def main() -> None:
@@ -389,15 +394,16 @@ def main() -> None:
                 print(f"{'':<34} days of data (delay + 1): median {med + 1:.1f}; asymptotic "
                       f"information bound {bound[0]:.1f} for a group-vs-rest contrast, {bound[1]:.1f} "
                       "for any detector told the in-control mean")
-        plant = Plant(8, 3, 9)
         print(f"\nfalse alerts per comparison-year (budget {1 / BUDGET:.4f}):")
-        for noise in () if args.no_null else ("normal", "lognormal", "ar1"):
-            count, base, years = null_rate(noise, null_chars, rng, tmp, plant)
-            rate = count / years
-            lo, hi = (x / years * BUDGET for x in poisson_interval(count))
-            print(f"  {noise:<10} lotwatch {rate:.4f} ({count} alerts; {rate * BUDGET:.2f}x "
-                  f"budget, 95% interval {lo:.2f}-{hi:.2f}x), baseline {base:.4f} "
-                  f"({base * BUDGET:.0f}x), over {years:.0f} comparison-years")
+        for label, plant in NULL_PLANTS.items():
+            for noise in () if args.no_null else ("normal", "lognormal", "ar1"):
+                count, base, years = null_rate(noise, null_chars, rng, tmp, plant)
+                rate = count / years
+                lo, hi = (x / years * BUDGET for x in poisson_interval(count))
+                print(f"  {label + noise:<24} lotwatch {rate:.4f} ({count} alerts; "
+                      f"{rate * BUDGET:.2f}x budget, 95% interval {lo:.2f}-{hi:.2f}x), "
+                      f"baseline {base:.4f} ({base * BUDGET:.0f}x), over {years:.0f} "
+                      "comparison-years")
         one, full = update_latency(tmp)
         print(f"\none lot logged: every detector current in {1000 * one:.1f} ms; recomputing "
               f"from the first day {1000 * full:.0f} ms; ratio {full / one:.1f}x")
