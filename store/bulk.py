@@ -104,9 +104,10 @@ def _insert_fresh_lots(conn, fresh: pl.DataFrame, tag_keys: list[str], now_s: st
     conn.execute("CREATE TEMP TABLE import_lots (lot_id INTEGER PRIMARY KEY, lot_code TEXT"
                  + (", " + cols if cols else "") + ")")
     marks = ", ".join("?" * (2 + len(tag_keys)))
+    rows = fresh.select(pl.col("_i").cast(pl.Int64) + next_lot, "lot",
+                        *(pl.col(TAG + k) for k in tag_keys))
     conn.executemany(f"INSERT INTO temp.import_lots VALUES ({marks})",
-                     fresh.select(pl.col("_i").cast(pl.Int64) + next_lot, "lot",
-                                  *(pl.col(TAG + k) for k in tag_keys)).iter_rows())
+                     zip(*(s.to_list() for s in rows.iter_columns()), strict=True))
     conn.execute("INSERT INTO lots(id, lot_code, created_at) SELECT lot_id, lot_code, ? "
                  "FROM temp.import_lots ORDER BY lot_id", (now_s,))
     for i, key in enumerate(tag_keys):  # t{i} are our own column names, never user text

@@ -131,11 +131,13 @@ def plan_values(store: Store, values: pl.DataFrame, tag_keys: list[str], *, sour
         pl.col("measured_at").n_unique().alias("_times")))
     mixed = mixed_times_note(int((entries["_times"] > 1).sum()))
     entries = entries.drop("_times")
-    noted = vals.filter(pl.col("note").is_not_null())  # usually none: joined only if there
-    entries = (entries.join(noted.group_by(key).agg(pl.col("note").unique(maintain_order=True)
-                                                    .str.join("; ")),
-                            on=key, how="left", maintain_order="left") if noted.height
-               else entries.with_columns(pl.lit(None, pl.String).alias("note")))
+    if vals["note"].null_count() < vals.height:  # usually no note: joined only if there
+        noted = vals.select(*key, "note").filter(pl.col("note").is_not_null())
+        entries = entries.join(noted.group_by(key).agg(pl.col("note").unique(maintain_order=True)
+                                                       .str.join("; ")),
+                               on=key, how="left", maintain_order="left")
+    else:
+        entries = entries.with_columns(pl.lit(None, pl.String).alias("note"))
     at = pl.col("measured_at").fill_null(pl.lit(now_s).str.to_datetime(
         STORED_FORMAT, time_zone="UTC", time_unit="us")).dt.truncate("1s")
     # the bucket day is the plant-local date of the time (store.plantzone)
@@ -228,7 +230,8 @@ def _judge_stored(conn, plan: Plan, source: str, required: list[str]) -> dict[st
     if entries.height == 0:
         plan.entries = entries.with_columns(pl.lit(False).alias(STORED))
         return {}
-    lot_ids = _stored_lots(conn, entries["lot"].unique().to_list())
+    lot_ids = (_stored_lots(conn, entries["lot"].unique().to_list())
+               if conn.execute("SELECT 1 FROM lots LIMIT 1").fetchone() else {})
     known = pl.DataFrame({"lot": list(lot_ids), "lot_id": list(lot_ids.values())},
                          schema={"lot": pl.String, "lot_id": pl.Int64})
     e = entries.with_row_index("_e").join(known, on="lot", how="left", maintain_order="left")

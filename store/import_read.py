@@ -97,7 +97,7 @@ def read_frame(path: Path, fmt: str, delimiter: str | None, notes: list[str]) ->
         raise FileRefused(f"{path}: is a directory, not a file") from None
     except OSError as exc:
         raise FileRefused(f"{path}: cannot be read ({exc.strerror or exc})") from None
-    if not data.strip():
+    if not data or data.isspace():  # (no stripped copy of a big file)
         raise FileRefused(f"{path.name}: the file is empty (no header, no rows)")
 
     if fmt not in FORMATS:
@@ -119,7 +119,8 @@ def read_frame(path: Path, fmt: str, delimiter: str | None, notes: list[str]) ->
         return _parquet_as_text(frame)
 
     text, was_utf8 = _decode(path, data, notes)
-    first_line = text.split("\n", 1)[0]
+    end = text.find("\n")
+    first_line = text if end < 0 else text[:end]
     # Plain UTF-8 goes to polars as read (no second copy of a large file); anything decoded
     # from another encoding goes as UTF-8.
     utf8 = data[3:] if data[:3] == b"\xef\xbb\xbf" else data
