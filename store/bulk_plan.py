@@ -124,11 +124,11 @@ def plan_values(store: Store, values: pl.DataFrame, tag_keys: list[str], *, sour
                        maintain_order="left")
     vals = _value_checks(vals)
     key = ["lot", "characteristic"]
-    entries = (vals.group_by(key, maintain_order=True).agg(
+    entries = _grouped(vals, key, [
         pl.col("cid").first(), pl.col("units"), pl.col("value"), pl.col("__row").alias("rows"),
         pl.col("measured_at").first(), pl.col("by").first(), pl.col("column").first(),
         pl.col("flag").any(), pl.col("origin").first(), *(pl.col(c).first() for c in tags),
-        pl.col("measured_at").n_unique().alias("_times")))
+        pl.col("measured_at").n_unique().alias("_times")])
     mixed = mixed_times_note(int((entries["_times"] > 1).sum()))
     entries = entries.drop("_times")
     if vals["note"].null_count() < vals.height:  # usually no note: joined only if there
@@ -187,6 +187,25 @@ def plan_values(store: Store, values: pl.DataFrame, tag_keys: list[str], *, sour
     plan.entries = pl.concat(kept) if kept else whole
     refuse_overflowing_plan(store.conn, plan.entries, [f.name for f in factors], TAG)
     return plan
+
+
+def _grouped(vals: pl.DataFrame, key: list[str], aggs: list[pl.Expr]) -> pl.DataFrame:
+    """``vals.group_by(key, maintain_order=True).agg(*aggs)``, quicker when each key's rows
+    are adjacent (the usual file: a lot's replicates one after the other). Then the groups are
+    the runs of equal keys, numbered in order, and grouping by that sorted number needs no
+    hashing of the text keys. The runs are the groups when the keys are in order, or else when
+    no key has two runs; otherwise the text keys are hashed after all."""
+    import polars as pl
+
+    a, b = (pl.col(k) for k in key)
+    back = (a < a.shift()) | ((a == a.shift()) & (b < b.shift()))
+    ordered = not vals.select(back.fill_null(True).slice(1).any()).item()  # (a null: hash)
+    run = (a.ne_missing(a.shift()) | b.ne_missing(b.shift())).cum_sum().set_sorted()
+    runs = (vals.with_columns(run.alias("_run")).group_by("_run", maintain_order=True)
+            .agg(a.first(), b.first(), *aggs).drop("_run"))
+    if ordered or runs.select(pl.struct(key).n_unique()).item() == runs.height:
+        return runs
+    return vals.group_by(key, maintain_order=True).agg(*aggs)
 
 
 def mixed_times_note(pairs: int) -> str | None:

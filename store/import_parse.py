@@ -85,11 +85,15 @@ def _tags_consistent(work: pl.DataFrame, lot: str, tag_columns: list[str]) -> bo
     if not tag_columns or work.height == 0:
         return True
     same_lot = pl.col(lot).eq_missing(pl.col(lot).shift())
-    runs, lots, differs = work.select(
-        pl.col(lot).rle_id().max() + 1, pl.col(lot).n_unique().alias("_lots"),
+    # lot IDs in order (each no less than the one before, none missing): their runs are the lots,
+    # known without hashing the IDs to count them
+    ordered, runs, differs = work.select(
+        ~(pl.col(lot) < pl.col(lot).shift()).fill_null(True).slice(1).any()
+        & pl.col(lot).is_not_null().all().alias("_ordered"),
+        (pl.col(lot).rle_id().max() + 1).alias("_runs"),
         pl.any_horizontal([(same_lot & pl.col(c).ne_missing(pl.col(c).shift())).any()
                            for c in tag_columns]).alias("_differs")).row(0)
-    if runs == lots:
+    if ordered or runs == work[lot].n_unique():
         return not differs
     return work.select(lot, *tag_columns).n_unique() == work[lot].n_unique()
 

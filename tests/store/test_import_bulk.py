@@ -457,3 +457,41 @@ def test_replicates_at_different_times_are_noted_once_per_pair(lab, tmp_path):
     assert times == [("2026-11-03T08:15:00Z",)]
     plain = write(tmp_path / "p.csv", HEADER + "\n" + rows(6, start=100))
     assert not [n for n in import_file(lab, plain).notes if "different times" in n]
+
+
+@pytest.mark.parametrize("lots", [
+    ["A", "A", "B", "B", "C"],            # in order: the runs are the groups
+    ["C", "C", "A", "B", "B"],            # adjacent, not in order: runs checked for repeats
+    ["A", "B", "A", "C", "B"],            # interleaved: grouped by hashing the keys
+    ["A", None, "A", "B", None],          # missing keys group together, as polars does
+])
+def test_entries_grouped_by_runs_equal_a_plain_group_by(lots):
+    # the oracle is polars' own group_by(maintain_order=True): same groups, same order, same
+    # lists in row order
+    import polars as pl
+    from lotwatch.store.bulk_plan import _grouped
+
+    vals = pl.DataFrame({"lot": lots, "characteristic": ["x"] * 5, "__row": [1, 2, 3, 4, 5]},
+                        schema={"lot": pl.String, "characteristic": pl.String, "__row": pl.Int64})
+    aggs = [pl.col("__row").alias("rows"), pl.col("__row").first().alias("first")]
+    got = _grouped(vals, ["lot", "characteristic"], aggs)
+    want = vals.group_by(["lot", "characteristic"], maintain_order=True).agg(*aggs)
+    assert got.equals(want)
+
+
+@pytest.mark.parametrize("order", ["A,A,B,B", "B,B,A,A", "A,B,A,B"])
+def test_a_lot_whose_rows_disagree_on_a_tag_is_refused_in_any_row_order(lab, tmp_path, order):
+    # import_parse: every row of a lot carries the tags of its first row; lots in order, adjacent
+    # but not in order, and interleaved take different paths to the same answer
+    lots = order.split(",")
+    lines = [f"{lot},fill_volume,500.{i},2026-11-03T08:15:00Z,S,L0,e"
+             for i, lot in enumerate(lots)]
+    bad_row = max(i for i, lot in enumerate(lots, start=1) if lot == "B")
+    lines[bad_row - 1] = lines[bad_row - 1].replace(",L0,", ",L1,")
+    f = write(tmp_path / "t.csv", HEADER + "\n" + "\n".join(lines) + "\n")
+    with pytest.raises(BadInput) as err:
+        import_file(lab, f)
+    [p] = err.value.problems
+    first_b = lots.index("B") + 1
+    assert (p.row, p.column, p.value) == (bad_row, "line", "L1")
+    assert f"lot 'B' has line='L0' on row {first_b}" in p.reason
