@@ -13,7 +13,8 @@ Baselines:
   rows), prebuilt in temporary tables, copied into a fresh store of the same schema with
   ``INSERT ... SELECT`` in transactions of ``bulk.CHUNK_VALUES`` values. No Python touches a row
   and nothing is checked, so no import into this schema can be faster.
-A refused import (the same file with one bad cell in its last row) is timed against the real one.
+A refused import (the same file with one bad cell in its last row) is timed against the real one
+(the median of three runs).
 Goals (issue 13): >= 200,000 rows/s for a 1M-row file, peak memory < 1 GB, a refused import
 <= 10% of a real one. The demo store build is timed too (goal < 10 s).
 """
@@ -254,7 +255,11 @@ def main() -> None:
         new_store(d / "c.sqlite")
         shared = run_child(good, d / "c.sqlite", floor_log=True)
         new_store(d / "b.sqlite")
-        refused = run_child(bad, d / "b.sqlite")
+        # the refused import is short, so one busy moment of the shared machine moves its
+        # share a lot: three runs, the median counts (each is printed)
+        tries = sorted((run_child(bad, d / "b.sqlite") for _ in range(3)),
+                       key=lambda r: r["seconds"])
+        refused = tries[1]
         again = run_child(good, d / "a.sqlite")  # re-import: every lot a duplicate
 
         from lotwatch.store.demo import build_demo_store
@@ -279,8 +284,10 @@ def main() -> None:
     print(f"peak memory: {real['peak_mb']:,.0f} MB; goal < 1024 MB: "
           f"{'met' if real['peak_mb'] < 1024 else 'NOT met'}")
     share = refused["seconds"] / real["seconds"]
+    times = ", ".join(f"{r['seconds']:.2f}" for r in tries)
     print(f"refused import (one bad cell, {refused['outcome']}): {refused['seconds']:.2f} s = "
-          f"{share:.1%} of the real one; goal <= 10%: {'met' if share <= 0.10 else 'NOT met'}")
+          f"{share:.1%} of the real one (median of {times} s); "
+          f"goal <= 10%: {'met' if share <= 0.10 else 'NOT met'}")
     waits = shared["floor_waits"] or [0.0]
     print(f"a floor terminal logging one lot every 0.2 s during an import: {len(waits)} lots, "
           f"longest wait {max(waits):.2f} s, median {sorted(waits)[len(waits) // 2]:.3f} s "
