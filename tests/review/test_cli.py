@@ -54,6 +54,11 @@ def test_review_text_fits_80_columns_and_states_family(demo_copy, demo_replay):
     rows = [line for line in lines if line.startswith("fill_volume line")]
     assert rows and rows[0].rstrip().endswith("OPEN")
     assert CAUTION in " ".join(lines[-3:])
+    # the shift column follows the one decimals rule (resolution 0.01: three decimals), never
+    # an exponent
+    table = [line for line in lines if re.match(r"(cap_torque|turbidity) ", line)]
+    assert table and all(re.search(r" [+-]\d+\.\d{3} ", line) for line in table)
+    assert not any(re.search(r"\de-\d", line) for line in lines)
 
 
 def test_review_json_contract(demo_copy, demo_replay):

@@ -63,12 +63,16 @@ def alert_tag(c: Any) -> str:
     return STATE_TAGS.get(c.alert_state, "")
 
 
-def _shift(c: Any, group_width: int) -> str:
+def _shift(c: Any, width: int) -> str:
+    """The largest shift and its group in ``width`` characters: the shift by the resolution's
+    decimals (``numbers.size``), the group's name shortened to what is left; a shift too long
+    to leave two characters for the name falls back to four significant digits."""
     if c.largest_shift is None:
         return "-"
-    sign = "+" if c.largest_shift >= 0 else "-"
-    value = fit(abs(c.largest_shift), 4)
-    return f"{sign}{value} {clean(c.largest_shift_group or '', group_width)}"
+    value = size(c.largest_shift, getattr(c, "resolution", "") or None, sign=True)
+    if len(value) > width - 3:
+        value = ("+" if c.largest_shift >= 0 else "-") + fit(abs(c.largest_shift), 4)
+    return f"{value} {clean(c.largest_shift_group or '', max(width - len(value) - 1, 1))}"
 
 
 # --------------------------------------------------------------------------------------------
@@ -113,12 +117,12 @@ def render_review_text(result: Any) -> str:
         lines.append(_text_row([
             clean(c.characteristic), clean(c.factor), c.window_short, str(c.k),
             _f_cell(c, 6), pval(c.p_used), pval(c.q), _omega(c.omega_squared),
-            _shift(c, 4), detector_cell(c), alert_tag(c)]))
+            _shift(c, 10), detector_cell(c), alert_tag(c)]))
     lines.append("")
     lines += _wrap("char.: characteristic; by: grouping factor. k: groups used. F: classical F; 'w' marks Welch's F, read where Bartlett's "
                    "test finds unequal spread (p is then Welch's). q: FDR-adjusted p. shift grp: "
-                   "the largest difference of one group's mean from the mean of the others, "
-                   "and that group. evid: "
+                   "the largest difference of one group's mean from the mean of the others "
+                   "(in the characteristic's unit), and that group. evid: "
                    "the strongest detector's statistic / threshold (1 or more: crossed), m mean, "
                    "s spread. alert: NEW/RE opened or reopened now, CLR "
                    "cleared now, OPEN, ACK acknowledged.")
