@@ -345,7 +345,6 @@ def demo_summary(store) -> str:
         )
     out.append("Planted for you to find:")
     for e in DEMO_EFFECTS:
-        if not e.implied:
-            out.append(f"  - {e.description}")
+        out.append(f"    which implies: {e.description}" if e.implied else f"  - {e.description}")
     out.append("Everything else has no real group differences.")
     return "\n".join(out)
