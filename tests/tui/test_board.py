@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import re
+
 import pytest
 from lotwatch.tui.app.application import LotwatchApp
 from lotwatch.tui.app.messages import ChooseView, OpenComparison
@@ -114,6 +116,9 @@ async def test_the_chart_draws_the_flagged_group_apart_without_colour(demo_copy,
         table = app.screen.query_one("#group-table")
         headers = [c.label.plain.strip() for c in table.columns.values()]
         assert headers[-2:] == ["Cpk", "Ppk"]
+        # capability indices with two decimals, as everywhere (tui/render/numbers.index)
+        caps = [str(table.get_row_at(i)[-k]).strip() for i in range(table.row_count) for k in (1, 2)]
+        assert caps and all(re.fullmatch(r"-?\d+\.\d\d|–|no spread", x) for x in caps), caps
         assert table.virtual_size.width <= table.scrollable_content_region.width
         assert chart.region.x >= table.region.right  # side by side, not over it
         assert chart.region.width >= 45

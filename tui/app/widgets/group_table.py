@@ -4,7 +4,7 @@ from the others, ANOM, and each group's own Cpk and Ppk (the unit on the mean's 
 from __future__ import annotations
 
 from lotwatch.tui.app.widgets.compact import fill
-from lotwatch.tui.render.numbers import MISSING, decimals_of, fixed, num
+from lotwatch.tui.render.numbers import MISSING, decimals_of, fixed, index, size
 from lotwatch.tui.render.safe_text import clean
 from lotwatch.tui.services.view_models import DetailView
 from textual.widgets import DataTable
@@ -52,14 +52,15 @@ class GroupTable(DataTable):
             flag = anom.get(g.name, "")
             row = [clean(g.name, GROUP_WIDTH - 1),
                    MISSING if g.lots is None else f"{g.lots:,}", f"{g.n:,}", fixed(g.mean, dec),
-                   fixed(g.sd, dec), ci, MISSING if diff is None else f"{diff:+.{dec}f}",
+                   fixed(g.sd, dec), ci,
+                   size(diff, detail.characteristic.resolution or None, sign=True),
                    ANOM_MARK.get(flag, MISSING)]
             if b.capability:
                 cap = caps.get(g.name)
                 if cap is not None and cap.status:
                     row += ["no spread", "no spread"] if cap.sd_overall == 0 else [MISSING] * 2
                 else:
-                    row += [num(cap.cpk if cap else None, 3), num(cap.ppk if cap else None, 3)]
+                    row += [index(cap.cpk if cap else None), index(cap.ppk if cap else None)]
             rows.append(row)
             st = [""] * len(row)
             if flag in ("above", "below"):
