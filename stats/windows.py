@@ -113,13 +113,20 @@ class DayRuns(Protocol):
     consecutive rows; ``day`` counts days since 1970-01-01; ``lots`` may be None (count values).
     The store's ``day_sums`` read has this shape."""
 
-    keys: Sequence[tuple[str, str, str]]
-    lengths: np.ndarray
-    day: np.ndarray
-    n: np.ndarray
-    sum_d: np.ndarray
-    sum_d2: np.ndarray
-    lots: np.ndarray | None
+    @property
+    def keys(self) -> Sequence[tuple[str, str, str]]: ...
+    @property
+    def lengths(self) -> np.ndarray: ...
+    @property
+    def day(self) -> np.ndarray: ...
+    @property
+    def n(self) -> np.ndarray: ...
+    @property
+    def sum_d(self) -> np.ndarray: ...
+    @property
+    def sum_d2(self) -> np.ndarray: ...
+    @property
+    def lots(self) -> np.ndarray | None: ...
 
 
 @dataclass(frozen=True)

@@ -59,11 +59,12 @@ def read_day_sums(store: Store, where: str, params: list[object]) -> DaySums:
     groups = store.conn.execute(sql, params).fetchall()
     lengths = np.array([g[3] for g in groups], dtype=np.int64)
     total = int(lengths.sum())
-    cols = [_parse([g[4 + i] for g in groups], total) for i in range(len(COLUMNS))]
-    if any(c is None for c in cols):
+    parsed = [_parse([g[4 + i] for g in groups], total) for i in range(len(COLUMNS))]
+    cols = [c for c in parsed if c is not None]
+    if len(cols) != len(parsed):
         raise StoreCorrupt(f"{store.path}: a day sum has a malformed day; run lotwatch check "
                            "for details")
-    day, n, s1, s2, lots = cols  # type: ignore[misc]
+    day, n, s1, s2, lots = cols
     return DaySums([(g[0], g[1], g[2]) for g in groups], lengths, day, n, s1, s2, lots)
 
 
