@@ -159,6 +159,7 @@ def test_not_enough_data_is_not_no_difference(tmp_path):
     c = _state(r)
     assert c.status == mon.NOT_ENOUGH and c.p is None and c.q is None
     assert c.excluded == [("B", 2)]
+    assert c.to_dict()["excluded"] == [{"level": "B", "lots": 2, "n": 2}]  # counted as lots
     assert r.family_size == 0
     store.close()
 

@@ -105,7 +105,9 @@ class ComparisonSummary:
 
     def to_dict(self) -> dict[str, Any]:
         d = {k: getattr(self, k) for k in self.__dataclass_fields__}
-        d["excluded"] = [{"level": lv, "n": n} for lv, n in self.excluded]
+        # a group is left out for too few lots: the count is of lots ("n" kept for scripts
+        # that read it before "lots" was added; it holds the same count)
+        d["excluded"] = [{"level": lv, "lots": n, "n": n} for lv, n in self.excluded]
         return json_safe(d)
 
 
