@@ -18,7 +18,8 @@ def _replicated_store(path) -> None:
 
     now = datetime.now(UTC).replace(microsecond=0)
     with Store.create(path) as store:
-        store.add_characteristic("bore", unit="mm", resolution="0.01", plausible=(9.0, 11.0))
+        store.add_characteristic("bore", unit="mm", resolution="0.01", plausible=(9.0, 11.0),
+                                 min_shift=0.125)
         entries = []
         for i in range(24):
             site = ("North", "South", "East")[i % 3]
@@ -51,6 +52,8 @@ async def test_the_review_screen_counts_lots_not_values(tmp_path):
         assert cells[labels.index("lots")] == f"{lots}"
         # bore is read to 0.01 mm: the shift carries three decimals and the unit
         assert re.fullmatch(r"-?\d+\.\d{3} mm", cells[labels.index("shift")]), cells
+        # so does the gate an alert needs (its minimum shift; the unit is on the shift's column)
+        assert cells[labels.index("gate")] == "0.125", cells
 
 
 async def test_an_earlier_week_says_it_shows_the_state_as_of_that_week(tmp_path):

@@ -80,7 +80,7 @@ class ReviewScreen(LotwatchScreen):
             lots = r.n_total if r.lots_total is None else r.lots_total  # lots counted as lots
             rows.append([clean(r.characteristic, 14), clean(r.factor, 7), f"{lots:,}",
                          num(r.f, 3) + ("w" if r.test == "Welch" else ""), pval(r.q), group,
-                         shift, num(r.gate, 2),
+                         shift, size(r.gate, r.resolution),
                          clean(alert, 12)])
             hot = r.alert_state == "open"
             styles.append(["bold" if hot else ""] * 8 + ["bold reverse" if hot else ""])
