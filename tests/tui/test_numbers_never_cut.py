@@ -34,6 +34,9 @@ def test_battery_text_wraps_and_never_cuts_a_number() -> None:
     ms_within = sum(((g - g.mean()) ** 2).sum() for g in groups) / (120 - 3)  # numpy oracle
     resid = f"{math.sqrt(ms_within):.6g}"
     assert f"residual SD = {resid}" in " ".join(text.split())
+    # with the data's unit and resolution: the resolution's decimals plus one, then the unit
+    with_unit = " ".join(render_battery(r, unit="mL", resolution="0.1").split())
+    assert f"residual SD = {math.sqrt(ms_within):.2f} mL" in with_unit
     assert "p = <" not in text and "F crit" not in text
     assert "Critical F" in text or "critical F" in text
     assert not re.search(r"\b-0\.0+\b", text)

@@ -68,7 +68,7 @@ def _heading(title: str) -> list[str]:
     return ["", title, "-" * len(title)]
 
 
-def _anova(r: BatteryResult) -> list[str]:
+def _anova(r: BatteryResult, unit: str, res: str | None) -> list[str]:
     a = r.anova
     route = "exact integer arithmetic" if a.exact else "floating point"
     lines = _heading(f"One-way ANOVA (k = {a.k} groups, N = {a.n_total}, alpha {a.alpha:g}, "
@@ -82,7 +82,8 @@ def _anova(r: BatteryResult) -> list[str]:
     if a.f_crit is not None:
         lines.append(f"Critical F ({1 - a.alpha:g}; {a.df_between}, {a.df_within}) = "
                      f"{num(a.f_crit, 0).strip()}    R-squared = {num(a.r_squared, 0).strip()}"
-                     f"    residual SD = {num(a.resid_sd, 0).strip()}")
+                     f"    residual SD = {meas(a.resid_sd, res, 0)}"
+                     + (f" {clean(unit, 10)}" if unit else ""))
     lines.extend(_wrap(a.decision, ""))
     if a.status != "ok":
         lines.append(f"Status: {a.status}")
@@ -249,7 +250,7 @@ def render_battery(result: BatteryResult, *, unit: str = "", resolution: str | N
     lines: list[str] = []
     if r.status != "ok":
         lines.extend(_wrap(f"Status: {r.status}", ""))
-    lines.extend(_anova(r))
+    lines.extend(_anova(r, unit, res))
     lines.extend(_checks(r))
     lines.extend(_groups(r, unit, res))
     for title, pairs, ranks in (("Tukey-Kramer comparisons", r.tukey, False),
