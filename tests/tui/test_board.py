@@ -415,3 +415,20 @@ async def test_the_status_line_says_computing_while_the_numbers_are_stale(small_
         await pilot.pause()
         assert "computing…" not in str(status.content)
         assert scroll.scroll_y == 0  # the new comparison's tests start at their top
+
+
+async def test_the_spread_tab_writes_the_pooled_sd_by_the_resolution_with_its_unit(demo_copy):
+    """fill_volume is read to 0.1 mL: the pooled within-group SD under the Spread tab carries
+    two decimals and the unit, as each group's SD in the table above it."""
+    app = LotwatchApp(demo_copy)
+    async with app.run_test(size=(120, 40)) as pilot:
+        await _ready(pilot)
+        await pilot.press("enter")
+        await settle(pilot, lambda: app.current_mode == "comparison" and not app.computing)
+        await pilot.press("4")
+        await pilot.pause()
+        title = str(app.screen.query_one("#spread-title").render())
+        assert re.search(r"Pooled within-group SD \d+\.\d\d mL\.", title), title
+        table = app.screen.query_one("#spread-table")
+        sds = [str(table.get_row_at(i)[2]).strip() for i in range(table.row_count)]
+        assert sds and all(re.fullmatch(r"\d+\.\d\d", x) for x in sds), sds

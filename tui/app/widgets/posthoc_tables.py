@@ -4,7 +4,7 @@ reference group, and the spread view (each group's SD against the pooled SD). Re
 from __future__ import annotations
 
 from lotwatch.tui.app.widgets.compact import fill
-from lotwatch.tui.render.numbers import MISSING, decimals_of, fixed, num, pval
+from lotwatch.tui.render.numbers import MISSING, decimals_of, fixed, pval
 from lotwatch.tui.render.safe_text import clean
 from lotwatch.tui.services.view_models import DetailView
 from textual.widgets import DataTable
@@ -82,5 +82,5 @@ class SpreadTable(DataTable):
                  MISSING if s.ratio is None else f"{s.ratio:.2f}x"] for s in detail.spread]
         fill(self, ["group", "n", "SD", "/ pooled"], [False, True, True, True], rows)
         bf = detail.battery.brown_forsythe
-        return (f"Pooled within-group SD {num(detail.pooled_sd, 4)} "
+        return (f"Pooled within-group SD {fixed(detail.pooled_sd, dec)} "
                 f"{clean(detail.characteristic.unit, 6)}. {clean(bf.sentence or bf.status, 200)}")
