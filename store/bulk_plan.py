@@ -109,9 +109,12 @@ def _value_checks(vals: pl.DataFrame) -> pl.DataFrame:
 
 
 def plan_values(store: Store, values: pl.DataFrame, tag_keys: list[str], *, source: str,
-                round_values: bool, now_s: str) -> Plan:
+                round_values: bool, now_s: str, problems_only: bool = False) -> Plan:
     """Judge every value against the store as it is now (no write lock; see the module
-    docstring). ``values`` is ``import_parse.parse_values``'s frame."""
+    docstring). ``values`` is ``import_parse.parse_values``'s frame. With ``problems_only``
+    (the import is refused anyway: the file has bad rows) only the problems are wanted, so the
+    entries' times are not written out as stored text and the day-sum overflow check, which
+    guards a write, is left out."""
     import polars as pl
 
     version = store.data_version()
@@ -141,9 +144,9 @@ def plan_values(store: Store, values: pl.DataFrame, tag_keys: list[str], *, sour
     at = pl.col("measured_at").fill_null(pl.lit(now_s).str.to_datetime(
         STORED_FORMAT, time_zone="UTC", time_unit="us")).dt.truncate("1s")
     # the bucket day is the plant-local date of the time (store.plantzone)
-    entries = entries.with_columns(
-        at.dt.strftime(STORED_FORMAT).alias("measured_at"),
-        at.dt.convert_time_zone(zone).dt.strftime("%Y-%m-%d").alias("day"))
+    entries = entries.with_columns(at.alias("measured_at")) if problems_only else (
+        entries.with_columns(at.dt.strftime(STORED_FORMAT).alias("measured_at"),
+                             at.dt.convert_time_zone(zone).dt.strftime("%Y-%m-%d").alias("day")))
     # lot IDs and tags are checked once per entry, not once per value
     bad_lot = (pl.col("lot").str.len_chars() > 100) | pl.col("lot").str.contains(_UNSAFE.pattern)
     for k, c in zip(tag_keys, tags, strict=True):
@@ -185,7 +188,8 @@ def plan_values(store: Store, values: pl.DataFrame, tag_keys: list[str], *, sour
         _judge_stored(store.conn, plan, source, required)
         kept.append(plan.entries)
     plan.entries = pl.concat(kept) if kept else whole
-    refuse_overflowing_plan(store.conn, plan.entries, [f.name for f in factors], TAG)
+    if not problems_only:
+        refuse_overflowing_plan(store.conn, plan.entries, [f.name for f in factors], TAG)
     return plan
 
 
@@ -218,9 +222,11 @@ def mixed_times_note(pairs: int) -> str | None:
 
 
 def _entry(r: dict, tag_keys: list[str], source: str) -> LotEntry:
+    at = r["measured_at"]  # stored text, or (problems_only) the UTC time it is written from
     return LotEntry(characteristic=r["characteristic"], values=list(r["value"]),
                     tags={k: r[TAG + k] for k in tag_keys if r[TAG + k] is not None},
-                    lot=r["lot"], measured_at=r["measured_at"], note=r["note"] or None,
+                    lot=r["lot"], note=r["note"] or None,
+                    measured_at=at if isinstance(at, str) else at.strftime(STORED_FORMAT),
                     by=r["by"], source=source, rows=list(r["rows"]), column=r["column"])
 
 

@@ -126,8 +126,10 @@ def parse_values(frame: pl.DataFrame, layout: Layout, source: str) -> ParsedValu
     used += [c for c in (layout.time, layout.note, layout.by, layout.char_column) if c]
     used = list(dict.fromkeys(used))
     clean = _cleaned(frame)
-    clean = (clean.with_row_index(ROW, offset=1).with_columns(pl.col(ROW).cast(pl.Int64))
-             .filter(~pl.all_horizontal(pl.exclude(ROW).is_null())))
+    clean = clean.with_row_index(ROW, offset=1).with_columns(pl.col(ROW).cast(pl.Int64))
+    blank = pl.all_horizontal(pl.exclude(ROW).is_null())
+    if clean.select(blank.any()).item():  # (filtering copies every column: only when needed)
+        clean = clean.filter(~blank)
     rows_read = clean.height
     if rows_read == 0:
         return ParsedValues(None, [], [], 0, 0, notes)

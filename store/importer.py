@@ -259,8 +259,10 @@ def store_import(
     from lotwatch.store.bulk import plan_values, write_plan
     from lotwatch.store.timeutil import format_stored, now_utc
 
+    refusing = bool(parsed.problems) and not skip_bad  # only the store's problems are wanted
     plan = plan_values(store, parsed.values, parsed.tag_keys, source=parsed.source,
-                       round_values=round_values, now_s=format_stored(now_utc()))
+                       round_values=round_values, now_s=format_stored(now_utc()),
+                       problems_only=refusing)
     problems = list(parsed.problems) + plan.problems
     if problems and not skip_bad:
         raise BadInput(_sorted(problems))

@@ -495,3 +495,31 @@ def test_a_lot_whose_rows_disagree_on_a_tag_is_refused_in_any_row_order(lab, tmp
     first_b = lots.index("B") + 1
     assert (p.row, p.column, p.value) == (bad_row, "line", "L1")
     assert f"lot 'B' has line='L0' on row {first_b}" in p.reason
+
+
+def test_a_file_with_bad_cells_gets_the_stores_messages_word_for_word(lab, tmp_path):
+    # A file with bad cells is refused whatever else is found, so its plan only looks for
+    # problems (no stored text laid out); the store's messages must be the very words of a file
+    # whose only problems are the store's own (oracle: the same rows without the bad cell).
+    from lotwatch.store import LotEntry
+
+    lab.log_lots([LotEntry("fill_volume", ["500.0"], {"site": "S", "line": "L", "shift": "e"},
+                           lot="OLD", measured_at="2026-11-01T08:00:00Z")])
+    store_rows = ("F1,fill_volume,9999.9,2026-11-03T09:15:00+01:00,S,L,e\n"  # 1 implausible
+                  "OLD,fill_volume,500.9,2026-11-03T08:15:00Z,S,L,e\n"        # 2 conflicts
+                  "X3,fill_volume,500.15,2026-11-03T08:15:00Z,S,L,e\n")       # 3 too fine
+    only_store = write(tmp_path / "s.csv", HEADER + "\n" + store_rows)
+    with_bad = write(tmp_path / "b.csv", HEADER + "\n" + store_rows
+                     + "X4,fill_volume,5OO.1,2026-11-03T08:15:00Z,S,L,e\n")
+    before = dump(lab)
+    found = {}
+    for f in (only_store, with_bad):
+        with pytest.raises(BadInput) as err:
+            import_file(lab, f)
+        found[f.name] = [(p.row, p.column, p.value, p.reason) for p in err.value.problems]
+    assert found["b.csv"][:3] == found["s.csv"] and len(found["s.csv"]) == 3
+    assert [p[:3] for p in found["s.csv"]] == [(1, "value", "9999.9"), (2, "value", "500.9"),
+                                               (3, "value", "500.15")]
+    assert "OLD" in found["s.csv"][1][3] and "plausible" in found["s.csv"][0][3]
+    assert found["b.csv"][3][:3] == (4, "value", "5OO.1")
+    assert dump(lab) == before
