@@ -2,6 +2,7 @@
 straightforward pandas + scipy baseline measured in the same run.
 
 Run: cd /work/main && /work/venv/bin/python tests/bench/bench_review.py [--quick] [--ten-million]
+[--phases]
 
 Synthetic store (fixed seed): 20 characteristics, 12 sites (two lines each), 3 shifts, 2 years
 ending 2026-11-29; 1,000,000 measurements (one lot = one value of each characteristic). To build
@@ -179,6 +180,31 @@ def full_review(store: Store) -> tuple[mon.WindowStats, np.ndarray]:
     return ws, q
 
 
+def phases(store: Store, repeats: int) -> dict[str, float]:
+    """Median process CPU seconds of each step of ``full_review``: the day-sum read, the
+    day-wise cube, the window sums, the statistics and BH."""
+    cfg, wins = window_plan()
+    comps, _ = eng.comparisons_of(store)
+    first, last = mon.window_span(wins, cfg)
+    steps = {
+        "read (store.day_sums)": lambda _: store.day_sums(since=first, until=last),
+        "cube (day_runs_cube)": lambda sums: mon.day_runs_cube(sums, comps, first_day=first,
+                                                               last_day=last),
+        "window sums": lambda cube: mon.window_sums(cube, wins, cfg),
+        "statistics": lambda sums: mon.window_statistics(sums, min_n=cfg.min_n,
+                                                         alpha=cfg.alpha),
+        "BH": lambda ws: mon.family_fdr(ws.p_used, "bh"),
+    }
+    times: dict[str, list[float]] = {name: [] for name in steps}
+    for _ in range(repeats):
+        out: object = None
+        for name, step in steps.items():
+            c0 = time.process_time()
+            out = step(out)
+            times[name].append(time.process_time() - c0)
+    return {name: statistics.median(t) for name, t in times.items()}
+
+
 def check_same(ws: mon.WindowStats, ref: dict) -> float:
     """Largest relative difference of F and p between the review and the baseline."""
     index = {(c.characteristic, c.factor): i for i, c in enumerate(ws.sums.comparisons)}
@@ -249,6 +275,8 @@ def main() -> None:
     ap.add_argument("--quick", action="store_true", help="100k measurements, fewer repeats")
     ap.add_argument("--ten-million", action="store_true", help="also build and review 10M")
     ap.add_argument("--measurements", type=int, default=None)
+    ap.add_argument("--phases", action="store_true",
+                    help="also print the CPU time of each step of the full review")
     args = ap.parse_args()
     n = args.measurements or (100_000 if args.quick else 1_000_000)
     reps, base_reps = (3, 1) if args.quick else (7, 1)
@@ -265,6 +293,9 @@ def main() -> None:
         W, C = ws.f.shape
         print(f"full review ({W} windows x {C} comparisons, F, Welch, Bartlett, effect sizes, "
               f"BH): median {t_rev * 1000:.1f} ms over {reps} (CPU {CPU['review'] * 1000:.1f} ms)")
+        if args.phases:
+            for name, t in phases(store, reps).items():
+                print(f"  {name}: median {t * 1000:.1f} ms CPU")
         worst = check_same(ws, ref)
         print(f"same F and p as the baseline: max relative difference {worst:.2e} "
               f"({'ok' if worst <= 1e-9 else 'FAILED'}, limit 1e-9)")
