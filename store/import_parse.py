@@ -3,13 +3,15 @@ row problem found (the second step of ``store.importer``).
 
 All checks are polars expressions over whole columns; Python only writes the message of each
 refused row. A row is refused when its lot ID, timestamp, characteristic or value is empty or
-unreadable, when its year is outside the plausible range, or when its tags differ from the
-first row of the same lot. Refused rows carry no value further.
+unreadable, when its year is outside the plausible range, when its time is in the future
+(``store.rules``, the rule of every door), or when its tags differ from the first row of the
+same lot. Refused rows carry no value further.
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from datetime import UTC, datetime
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
@@ -20,6 +22,7 @@ from lotwatch.store.import_cells import (
     number_reason,
     timestamps,
 )
+from lotwatch.store.rules import FUTURE_SLACK, FUTURE_TIME
 
 if TYPE_CHECKING:
     import polars as pl
@@ -174,7 +177,14 @@ def parse_values(frame: pl.DataFrame, layout: Layout, source: str) -> ParsedValu
                 "year {} is outside the plausible range {}-{} (change it with --years FROM-TO)",
                 year, pl.lit(lo), pl.lit(hi)).alias("_r")),
             source, f"={layout.time}", layout.time, "_r")
-        bad = bad | empty | unread | odd_year
+        # the rule every door applies (store.rules.time_problem): a lot is not measured later
+        # than the clock (plus the slack for a lab PC's clock)
+        future = (~empty & ~unread & ~odd_year
+                  & (pl.col("at") > pl.lit(datetime.now(UTC) + FUTURE_SLACK)))
+        problems += _problems(
+            work.filter(future).with_columns(pl.lit(FUTURE_TIME).alias("_r")),
+            source, f"={layout.time}", layout.time, "_r")
+        bad = bad | empty | unread | odd_year | future
     else:
         work = work.with_columns(pl.lit(None, pl.Datetime("us", "UTC")).alias("at"))
 

@@ -18,6 +18,7 @@ import re
 from datetime import UTC, datetime, timedelta
 
 FUTURE_SLACK = timedelta(minutes=10)
+FUTURE_TIME = "the measurement time is in the future"
 # The one home of the year bounds. MIN_YEAR: the earliest plausible measurement (common
 # practice: older stamps are typing mistakes). FIRST_YEAR..LAST_YEAR: the calendar lotwatch can
 # store and compute windows in at all (four-digit years in the stored text form, room for window
@@ -46,7 +47,7 @@ def time_problem(when: datetime, now: datetime | None = None) -> str | None:
         return f"{when.year} is before {MIN_YEAR}; type the year in full, e.g. 2026"
     now = now or datetime.now(UTC)
     if when > now + FUTURE_SLACK:
-        return "the measurement time is in the future"
+        return FUTURE_TIME
     return None
 
 

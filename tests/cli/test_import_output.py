@@ -4,6 +4,8 @@ control; the OSC sequence ESC ] 0 ; ... BEL sets the terminal's title)."""
 
 from __future__ import annotations
 
+import sqlite3
+from datetime import UTC, datetime, timedelta
 from pathlib import Path
 
 
@@ -41,6 +43,24 @@ def test_years_option(cli, db: Path, tmp_path: Path) -> None:
     assert bad.exit_code == 2 and "FROM-TO" in bad.output
     done = cli("import", f, "--years", "1950-2030", "--db", db)
     assert done.exit_code == 0, done.output
+
+
+def test_a_future_measurement_time_is_refused_as_typing_it_would_be(cli, db: Path,
+                                                                    tmp_path: Path) -> None:
+    """store.rules: a lot is not measured later than the clock (plus ten minutes' slack), at
+    every door; the import names the file, row, column and value, and stores nothing."""
+    ahead = (datetime.now(UTC) + timedelta(days=2)).strftime("%Y-%m-%dT%H:%M:%SZ")
+    f = tmp_path / "f.csv"
+    f.write_text("lot,characteristic,value,measured_at,site,line,shift\n"
+                 "A,fill_volume,500.1,2026-11-03T08:15:00Z,S,L,e\n"
+                 f"B,fill_volume,500.2,{ahead},S,L,e\n", encoding="utf-8")
+    refused = cli("import", f, "--db", db)
+    assert refused.exit_code == 2
+    assert (f"f.csv, row 2, column 'measured_at', value '{ahead}': the measurement time is in "
+            "the future") in " ".join(refused.output.split())
+    assert "Traceback" not in refused.output
+    with sqlite3.connect(db) as conn:
+        assert conn.execute("SELECT count(*) FROM measurements").fetchone()[0] == 0
 
 
 def test_each_note_is_printed_once(cli, db: Path, tmp_path: Path) -> None:
