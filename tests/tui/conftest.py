@@ -61,12 +61,16 @@ def small_store(tmp_path: Path) -> tuple[Path, dict[str, dict[str, list[float]]]
 
 @pytest.fixture
 def alert_store(small_store):
-    """The small store with one open alert on bore by site (recorded through store.alerts)."""
+    """The small store with one open alert on bore by site (recorded through store.alerts),
+    its detectors current first: the app brings them current when it opens, and detectors
+    that had not seen the data yet would clear an alert they do not hold."""
     from lotwatch.store import Store
     from lotwatch.store.alerts import Transition, record_transitions
+    from lotwatch.tui.services.detection import advance_detectors
 
     path, values = small_store
     with Store.open(path) as store:
+        advance_detectors(store)
         [alert] = record_transitions(store, [Transition(
             "bore", "site", "opened", "28 days to today", ["East"], "higher", 0.15, 0.15,
             0.001)], by="review")

@@ -85,6 +85,7 @@ class LotwatchApp(StoreWorkers, App[None]):
         self._generation: dict[str, int] = {}
         self._detail_timer: Timer | None = None
         self._stop_polling = threading.Event()
+        self._detectors_checked = False  # brought current once the first board is up
         if read_only:
             self.sub_title = "read-only"
 
@@ -202,6 +203,11 @@ class LotwatchApp(StoreWorkers, App[None]):
             return
         ov = message.overview
         self.overview = ov
+        if not ov.partial and not self._detectors_checked:
+            # once the first numbers are up: the days since the detectors last ran (the
+            # computation's imports would otherwise compete with the first paint)
+            self._detectors_checked = True
+            self.catch_up_detectors()
         if ov.partial and (not ov.board or self.view.characteristic):
             return
         # The early board (alerts and detector evidence) already names the most urgent
@@ -235,7 +241,9 @@ class LotwatchApp(StoreWorkers, App[None]):
             self.alerts = message.alerts
 
     def on_store_changed(self, message: msg.StoreChanged) -> None:
-        """The one reload after any write (ours or another terminal's)."""
+        """The one reload after any write (ours or another terminal's); lots another terminal
+        stored reach the detectors here (a no-op when they are current)."""
+        self.catch_up_detectors()
         self.load_overview(self._next("overview"), False)
         self.request_detail()
         if self.current_mode == "review":

@@ -150,6 +150,14 @@ class StoreWorkers:
             return WriteDone("review", text)
         self._write("review", "recording the review", reply_to, do)
 
+    @work(thread=True, exclusive=True, group="catch-up", exit_on_error=False,
+          description="bringing the detectors current")
+    def catch_up_detectors(self) -> None:
+        """Advance the detectors over what other terminals stored (and the days since the last
+        review); the poller then sees the write and the board reloads. Not when read-only."""
+        if not self.read_only:
+            writers.catch_up(self.db_path, self.user)
+
     # --- the store poller --------------------------------------------------------------------
 
     @work(thread=True, group="poll", exit_on_error=False, description="watching the store")

@@ -64,6 +64,14 @@ def advance_after_write(store, by: str) -> None:
         pass
 
 
+def catch_up(path: Path, by: str) -> None:
+    """Bring the detectors current with whatever the store holds: lots logged from the command
+    line or imported by another terminal, and the days since the last review. Writes nothing
+    when they are current already (so the store's change it causes is seen once)."""
+    with opened(path, False) as store:
+        advance_after_write(store, by)
+
+
 def plain_words(exc: Exception, lot: str | None) -> Exception:
     """The store's refusal of an entry for a lot it already holds, said as what to do."""
     from lotwatch.store import BadInput, RowProblem
