@@ -75,11 +75,12 @@ def neighbour_correlation(z: np.ndarray, valid: np.ndarray, days: int, lag: int,
     (``N_eff`` as for the skewness), and kept within [0, RHO_MAX]: only a positive correlation
     makes a CUSUM's in-control run shorter. 0 with fewer than 60 pooled days."""
     S, T = z.shape
-    prev = np.full((S, T), np.nan)
-    for s in range(S):
-        idx = np.flatnonzero(valid[s])
-        prev[s, idx[1:]] = z[s, idx[:-1]]
-    pair = valid & np.isfinite(prev)
+    # each day's previous day with data: the running maximum of the valid days' indices
+    last = np.maximum.accumulate(np.where(valid, np.arange(T), -1), axis=1)
+    before = np.full((S, T), -1)
+    before[:, 1:] = last[:, :-1]
+    prev = np.where(before >= 0, np.take_along_axis(z, np.maximum(before, 0), axis=1), np.nan)
+    pair = valid & (before >= 0) & np.isfinite(prev)
     y = np.where(valid, z, 0.0)
     yp = np.where(pair, prev, 0.0)
     yc = np.where(pair, y, 0.0)
