@@ -49,7 +49,7 @@ def _fill(store: Store, seed: int) -> None:
         unit = store.conn.execute("SELECT c.resolution FROM measurements m JOIN characteristics c "
                                   "ON c.id = m.characteristic_id WHERE m.id = ?",
                                   (mid,)).fetchone()[0]
-        store.correct(mid, "503.4" if unit == "0.1" else "2.71", reason="transcription")
+        store.correct(mid, "503.4" if unit == "0.1" else "2.71", reason="typed wrong")
     for mid in rng.sample(ids, 30):
         store.void(mid, reason="sample spilled")
 
