@@ -11,6 +11,26 @@ SKEW_MIN = 60  # pooled days of contrasts a skewness estimate needs
 SKEW_SHRINK = 1.0  # standard errors the skewness is shrunk by
 
 
+def _recent_sum(x: np.ndarray, days: int, lag: int) -> np.ndarray:
+    """Per slot and day t, the sum of x over the days ``t - lag - days .. t - lag - 1``."""
+    S, T = x.shape
+    cs = np.zeros((S, T + 1))
+    np.cumsum(x, axis=1, out=cs[:, 1:])
+    t = np.arange(T)
+    return cs[:, np.clip(t - lag, 0, T)] - cs[:, np.clip(t - lag - days, 0, T)]
+
+
+def _pooled(comp: np.ndarray, cnt: np.ndarray, *parts: np.ndarray
+            ) -> tuple[np.ndarray, np.ndarray]:
+    """Sums over each comparison's slots of the day counts (slots with more than two days) and
+    of ``parts``: an array (1 + len(parts), comparisons, days), and each comparison's slots."""
+    C = int(comp.max()) + 1
+    tot = np.zeros((1 + len(parts), C, cnt.shape[1]))
+    for i, x in enumerate((np.where(cnt > 2, cnt, 0.0), *parts)):
+        np.add.at(tot[i], comp, x)
+    return tot, np.bincount(comp, minlength=C).astype(np.float64)[:, None]
+
+
 def contrast_skewness(z: np.ndarray, valid: np.ndarray, days: int, lag: int, comp: np.ndarray
               ) -> tuple[np.ndarray, np.ndarray]:
     """The skewness of the standardised contrasts that a detector may rely on, per slot and
@@ -28,28 +48,17 @@ def contrast_skewness(z: np.ndarray, valid: np.ndarray, days: int, lag: int, com
     a small allowance otherwise (it only ever raises a threshold). Skewed values (a one-sided tail of the lots) make one side's CUSUM cross its
     threshold far more often than the normal theory says; ``cusum.thresholds`` raises that
     side's threshold by the skewness."""
-    S, T = z.shape
     y = np.where(valid, z, 0.0)
-    w = valid.astype(np.float64)
 
     def window(x: np.ndarray) -> np.ndarray:
-        cs = np.zeros((S, T + 1))
-        np.cumsum(x, axis=1, out=cs[:, 1:])
-        t = np.arange(T)
-        hi = np.clip(t - lag, 0, T)
-        lo = np.clip(t - lag - days, 0, T)
-        return cs[:, hi] - cs[:, lo]
+        return _recent_sum(x, days, lag)
 
-    cnt, s1, s2, s3 = window(w), window(y), window(y * y), window(y ** 3)
+    cnt, s1, s2, s3 = window(valid.astype(np.float64)), window(y), window(y * y), window(y ** 3)
     with np.errstate(invalid="ignore", divide="ignore"):
         mean = s1 / cnt
         m2 = np.where(cnt > 2, s2 - cnt * mean ** 2, 0.0)
         m3 = np.where(cnt > 2, s3 - 3.0 * mean * s2 + 2.0 * cnt * mean ** 3, 0.0)
-    C = int(comp.max()) + 1
-    tot = np.zeros((3, C, T))
-    for i, x in enumerate((np.where(cnt > 2, cnt, 0.0), m2, m3)):
-        np.add.at(tot[i], comp, x)
-    members = np.bincount(comp, minlength=C).astype(np.float64)[:, None]
+    tot, members = _pooled(comp, cnt, m2, m3)
     with np.errstate(invalid="ignore", divide="ignore"):
         g = (tot[2] / tot[0]) / (tot[1] / tot[0]) ** 1.5
         se = np.sqrt(6.0 / (tot[0] * np.maximum(members - 1.0, 1.0) / members))
@@ -84,25 +93,17 @@ def neighbour_correlation(z: np.ndarray, valid: np.ndarray, days: int, lag: int,
     y = np.where(valid, z, 0.0)
     yp = np.where(pair, prev, 0.0)
     yc = np.where(pair, y, 0.0)
-    w = valid.astype(np.float64)
 
     def window(x: np.ndarray) -> np.ndarray:
-        cs = np.zeros((S, T + 1))
-        np.cumsum(x, axis=1, out=cs[:, 1:])
-        t = np.arange(T)
-        return cs[:, np.clip(t - lag, 0, T)] - cs[:, np.clip(t - lag - days, 0, T)]
+        return _recent_sum(x, days, lag)
 
-    cnt, s1, s2 = window(w), window(y), window(y * y)
+    cnt, s1, s2 = window(valid.astype(np.float64)), window(y), window(y * y)
     npair, sxy, sx, sy = window(pair.astype(np.float64)), window(yc * yp), window(yc), window(yp)
     with np.errstate(invalid="ignore", divide="ignore"):
         mean = s1 / cnt
         m2 = np.where(cnt > 2, s2 - cnt * mean ** 2, 0.0)
         c1 = np.where(npair > 2, sxy - mean * (sx + sy) + npair * mean ** 2, 0.0)
-    C = int(comp.max()) + 1
-    tot = np.zeros((3, C, T))
-    for i, x in enumerate((np.where(cnt > 2, cnt, 0.0), m2, c1)):
-        np.add.at(tot[i], comp, x)
-    members = np.bincount(comp, minlength=C).astype(np.float64)[:, None]
+    tot, members = _pooled(comp, cnt, m2, c1)
     with np.errstate(invalid="ignore", divide="ignore"):
         r = tot[2] / tot[1]
         se = 1.0 / np.sqrt(tot[0] * np.maximum(members - 1.0, 1.0) / members)
