@@ -148,13 +148,13 @@ CHANGE_CORR = 1.5  # variance inflation of a mean of squared consecutive differe
 # correlation of the squares of two changes sharing a day is 1/4 for iid normal z: 1 + 2 x 1/4)
 
 
-def _trimmed_changes(z: np.ndarray, valid: np.ndarray, days: int, first: int, lag: int
+def _trimmed_changes(z: np.ndarray, valid: np.ndarray, days: int, first: int
                      ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """Per slot and day t >= first, over the trailing ``days`` days: the sum of the kept
-    squared changes ``lag`` days with data apart (the largest TRIM share, at least CHANGE_LAG,
+    squared changes CHANGE_LAG days with data apart (the largest TRIM share, at least CHANGE_LAG,
     left out), what that sum would be for phi = 1, the number kept, and whether enough were
     seen."""
-    diffs = _successive(z, valid, lambda a, b, *_: (b - a) ** 2, lag=lag)
+    diffs = _successive(z, valid, lambda a, b, *_: (b - a) ** 2, lag=CHANGE_LAG)
     S, T = z.shape
     padded = np.full((S, T + days), np.nan)
     padded[:, days:] = diffs
@@ -190,7 +190,7 @@ def _dispersion(z: np.ndarray, valid: np.ndarray, days: int, first: int, comp: n
     phi = np.ones((S, T))
     if first >= T:
         return phi
-    num, expect, keep, ok = _trimmed_changes(z, valid, days, first, CHANGE_LAG)
+    num, expect, keep, ok = _trimmed_changes(z, valid, days, first)
     C = int(comp.max()) + 1
     pooled_num = np.zeros((C, num.shape[1]))
     pooled_expect = np.zeros((C, num.shape[1]))
@@ -293,8 +293,8 @@ def contrasts(n: np.ndarray, s1: np.ndarray, s2: np.ndarray, comp: np.ndarray,
         t_rdays = _trailing((rn > 0).astype(np.float64), L)
         t_ss, t_df = _trailing(ss, L), _trailing(df, L)
         t_rss, t_rdf = _trailing(rss, L), _trailing(rdf, L)
-        # sparse groups (too few lots a day for a within-day spread): the day-to-day estimate,
-        # for the rest the median of its comparison's estimates
+        # sparse groups (too few lots a day for a within-day spread), and sparse rests: the
+        # median of their comparison's day-to-day estimates
         sparse = np.full((S, T), np.nan)
         comp_sparse = np.full((C, T), np.nan)
         if ((t_df < MIN_DF) | (t_rdf < MIN_DF))[:, max(first - 1, 0):].any():
@@ -303,8 +303,7 @@ def contrasts(n: np.ndarray, s1: np.ndarray, s2: np.ndarray, comp: np.ndarray,
                 warnings.simplefilter("ignore", RuntimeWarning)
                 for c_ in range(C):
                     comp_sparse[c_] = np.nanmedian(sparse[comp == c_], axis=0)
-        var_g = np.where(t_df >= MIN_DF, t_ss / t_df,
-                         np.where(np.isfinite(comp_sparse[comp]), comp_sparse[comp], sparse))
+        var_g = np.where(t_df >= MIN_DF, t_ss / t_df, comp_sparse[comp])
         var_r = np.where(t_rdf >= MIN_DF, t_rss / t_rdf, comp_sparse[comp])
         warm = ((t_days >= settings.warmup_days) & np.isfinite(var_g) & np.isfinite(var_r)
                 & (var_g > 0) & (var_r > 0))
@@ -328,8 +327,7 @@ def contrasts(n: np.ndarray, s1: np.ndarray, s2: np.ndarray, comp: np.ndarray,
         span = np.clip(np.arange(T)[None, :] - first_seen[:, None], 1, L)
         days_per_year = 365.0 * t_days / span
         # ln of a one-sided detector's in-control run length (as ``cusum.thresholds``)
-        log_arl = np.log(np.maximum(settings.years_per_false_alert * 3.0 * groups
-                                    * days_per_year, 1.0))
+        log_arl = np.log(np.maximum(settings.run_length(groups, days_per_year), 1.0))
 
         def shape(zz: np.ndarray, ok: np.ndarray):
             """(skewness, phi, ok where phi is known) of one kind's standardised contrasts.

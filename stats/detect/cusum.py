@@ -120,8 +120,7 @@ def thresholds(con: Contrasts, settings: DetectorSettings, first: int
                ) -> dict[str, dict[str, np.ndarray]]:
     """h (LLR scale) per kind, side ("hi", "lo"), slot and day t >= first (NaN where the group
     is not watched): the normal theory's, divided by ``skew_factor`` of the side's skewness."""
-    arl = settings.years_per_false_alert * 3.0 * con.groups[:, first:] * \
-        con.days_per_year[:, first:]
+    arl = settings.run_length(con.groups[:, first:], con.days_per_year[:, first:])
     out: dict[str, dict[str, np.ndarray]] = {}
     for kind, a, skew in (("mean", con.a_typ_m[:, first:], con.skew_m),
                           ("spread", con.a_typ_s[:, first:], con.skew_s)):

@@ -4,8 +4,12 @@ from __future__ import annotations
 
 from collections.abc import Callable
 from dataclasses import dataclass, fields
+from typing import TYPE_CHECKING
 
 from lotwatch.stats.review_settings import typed_values
+
+if TYPE_CHECKING:  # the settings are read where no numpy is loaded (the board's first rows)
+    import numpy as np
 
 
 @dataclass(frozen=True)
@@ -68,6 +72,13 @@ class DetectorSettings:
         if problems:
             raise ValueError("; ".join(problems))
         return self
+
+    def run_length(self, groups: np.ndarray, days_per_year: np.ndarray) -> np.ndarray:
+        """The in-control run length, in days, each one-sided detector is set for:
+        ``years_per_false_alert x 3 K x reporting days per year`` for K watched groups with
+        three detectors each (mean up, mean down, spread up), so that a comparison's false
+        alerts, a sum of its detectors' rates, stay within the budget."""
+        return self.years_per_false_alert * 3.0 * groups * days_per_year
 
     def fingerprint(self) -> str:
         """A text that changes whenever a setting does (stored beside the detector state)."""
